@@ -1,0 +1,1 @@
+"""arcwindow front end: the command line, the Dash dashboard and the benchmark."""
