@@ -14,11 +14,11 @@ class InputError(ValueError):
     Parameters
     ----------
     field : str
-        Name of the offending field as the user wrote it (``"r1_km"``, ``"window.departure_start"``).
+        Name of the offending field as the user wrote it (``"r1_km"``, ``"window.arrival_end"``).
     value : Any
         The value that was given.
     accepted : str
-        Plain-language description of what is accepted (``"> 0 s"``, ``"1800-01-01 to 2200-01-01"``).
+        What is accepted, in plain words (``"> 0 s"``, ``"1800-01-01 to 2200-01-01"``).
     """
 
     def __init__(self, field: str, value: Any, accepted: str) -> None:

@@ -69,7 +69,9 @@ def format_lines(lines: list[BenchLine]) -> str:
         if line.ratio is not None:
             text += f" | ratio {line.ratio:,.1f}x"
         if line.goal:
-            verdict = "" if line.meets_goal is None else (" (met)" if line.meets_goal else " (NOT met)")
+            verdict = (
+                "" if line.meets_goal is None else (" (met)" if line.meets_goal else " (NOT met)")
+            )
             text += f" | goal {line.goal}{verdict}"
         if line.notes:
             text += f"\n    {line.notes}"
