@@ -11,7 +11,7 @@ from solver.errors import InputError
 # Subcommand name -> module in app.commands exposing ``add_parser(subparsers)`` and ``run(args)``.
 # Modules are imported lazily so ``arcwindow lambert`` does not pay for Dash or Dask imports.
 SUBCOMMANDS: dict[str, str] = {
-    # "lambert": "app.commands.lambert_cmd",
+    "lambert": "app.commands.lambert_cmd",
     "serve": "app.commands.serve_cmd",
     "bench": "app.commands.bench_cmd",
 }

@@ -29,7 +29,7 @@ _CHI_NOISE_FLOOR = 1e-9
 _PERIAPSIS_SPLIT_ALPHA_R0 = -1.0
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, error_model="numpy")
 def _propagate_one(rx, ry, rz, vx, vy, vz, dt, mu, out):
     """Move one state by dt seconds; write (r, v) into out[0:6]; return convergence."""
     r0 = math.sqrt(rx * rx + ry * ry + rz * rz)
@@ -117,7 +117,7 @@ def _propagate_one(rx, ry, rz, vx, vy, vz, dt, mu, out):
     return converged and math.isfinite(r)
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, error_model="numpy")
 def _propagate_via_periapsis(rx, ry, rz, vx, vy, vz, dt, mu, out):
     """Like ``_propagate_one``, but an inbound hyperbolic flight restarts from periapsis.
 
@@ -157,7 +157,7 @@ def _propagate_via_periapsis(rx, ry, rz, vx, vy, vz, dt, mu, out):
     return _propagate_one(rx, ry, rz, vx, vy, vz, dt, mu, out)
 
 
-@numba.njit(cache=True, parallel=True)
+@numba.njit(cache=True, parallel=True, error_model="numpy")
 def _propagate_kernel(r0, v0, dt, mu, r_out, v_out, ok_out):
     for i in numba.prange(r0.shape[0]):
         buf = np.empty(6)

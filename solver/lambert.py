@@ -52,12 +52,13 @@ _NOT_CONVERGED = np.int8(Reason.NOT_CONVERGED)
 _STEP_TOL_SINGLE = 1e-5
 _STEP_TOL_MULTI = 1e-8
 _MAX_HOUSEHOLDER = 15
+_ZERO_RADIUS_FRACTION = 1e-10
 # Distance |x - 1| below which Battin's series, and below which Lagrange's form, give T(x).
 _BATTIN_BAND = 0.01
 _LAGRANGE_BAND = 0.2
 
 
-@numba.njit(cache=True, inline="always")
+@numba.njit(cache=True, error_model="numpy", inline="always")
 def _hypergeometric_f(z: float) -> float:
     """Gauss 2F1(3, 1; 5/2; z) by its series (|z| is small where this is used)."""
     total = 1.0
@@ -70,7 +71,7 @@ def _hypergeometric_f(z: float) -> float:
     return total
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, error_model="numpy")
 def _tof_lagrange(x: float, lam: float, revs: int) -> float:
     """Non-dimensional time from Lagrange's equation in x (used for 0.01 < |x - 1| < 0.2)."""
     a = 1.0 / (1.0 - x * x)
@@ -92,7 +93,7 @@ def _tof_lagrange(x: float, lam: float, revs: int) -> float:
     return -a * math.sqrt(-a) * ((beta - math.sinh(beta)) - (alpha - math.sinh(alpha))) / 2.0
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, error_model="numpy")
 def tof_of_x(x: float, lam: float, revs: int) -> float:
     """Non-dimensional time of flight T(x) for geometry λ and ``revs`` complete revolutions.
 
@@ -133,7 +134,7 @@ def tof_of_x(x: float, lam: float, revs: int) -> float:
     return (x_minus - d / y) / e
 
 
-@numba.njit(cache=True, inline="always")
+@numba.njit(cache=True, error_model="numpy", inline="always")
 def _tof_derivatives(x: float, tof: float, lam: float):
     """dT/dx, d²T/dx², d³T/dx³ at x (Izzo 2015, eq. 22)."""
     l2 = lam * lam
@@ -148,7 +149,7 @@ def _tof_derivatives(x: float, tof: float, lam: float):
     return dt, ddt, dddt
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, error_model="numpy")
 def _minimum_tof_x(lam: float, revs: int):
     """(x, T) at the minimum of T(x) for ``revs`` revolutions, by Halley's iteration from x = 0."""
     x = 0.0
@@ -168,7 +169,7 @@ def _minimum_tof_x(lam: float, revs: int):
     return x, tof
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, error_model="numpy")
 def _householder(target: float, x0: float, lam: float, revs: int, step_tol: float):
     """Householder iteration on T(x) = target; returns (x, iterations, converged, dT/dx)."""
     x = x0
@@ -186,12 +187,15 @@ def _householder(target: float, x0: float, lam: float, revs: int, step_tol: floa
             return x, it, False, dt
         step = abs(x_new - x)
         x = x_new
-        if step < step_tol:
+        # Near x = ±1 on an ellipse T grows like (1 - x²)^(-3/2): the step must be small
+        # next to the distance left to ±1, or a "converged" x can still miss the time.
+        room = 1.0 - abs(x) if abs(x) < 1.0 else 1.0
+        if step < step_tol * room:
             return x, it, True, dt
     return x, _MAX_HOUSEHOLDER, False, dt
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, error_model="numpy")
 def _bracketed(target: float, lo: float, hi: float, lam: float, revs: int, decreasing: bool):
     """Safeguarded Newton-bisection for T(x) = target on [lo, hi], where T is monotone.
 
@@ -217,7 +221,7 @@ def _bracketed(target: float, lo: float, hi: float, lam: float, revs: int, decre
     return x, 200, False
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, error_model="numpy")
 def _solve_one(
     r1,
     r2,
@@ -250,7 +254,8 @@ def _solve_one(
         return
     r1n = math.sqrt(r1[0] * r1[0] + r1[1] * r1[1] + r1[2] * r1[2])
     r2n = math.sqrt(r2[0] * r2[0] + r2[1] * r2[1] + r2[2] * r2[2])
-    if r1n == 0.0 or r2n == 0.0 or mu <= 0.0:
+    # A radius this small next to the other one puts an end of the arc on the focus.
+    if min(r1n, r2n) <= _ZERO_RADIUS_FRACTION * max(r1n, r2n) or mu <= 0.0:
         reason_out[:] = _ZERO_RADIUS
         return
     if tof_s <= 0.0:
@@ -374,7 +379,11 @@ def _solve_one(
     # Velocities from x (Izzo 2015, Algorithm 1, final lines).
     gamma = math.sqrt(mu * semiperimeter / 2.0)
     rho = (r1n - r2n) / chord if chord > 0.0 else 0.0
-    sigma = math.sqrt(max(0.0, 1.0 - rho * rho))
+    # σ = sqrt(1 - ρ²) cancels at small transfer angles; c² - (r1 - r2)² = r1 r2 |û1 - û2|²
+    # keeps its digits.
+    dx, dy, dz = u1x - u2x, u1y - u2y, u1z - u2z
+    sigma = math.sqrt(r1n * r2n * (dx * dx + dy * dy + dz * dz)) / chord if chord > 0.0 else 0.0
+    sigma = min(sigma, 1.0)
     for k in range(n_slots):
         if reason_out[k] != _OK:
             x_out[k] = np.nan
@@ -404,7 +413,7 @@ def _solve_one(
         v2_out[k, 2] = vr2 * u2z + vt2 * t2z
 
 
-@numba.njit(cache=True, parallel=True)
+@numba.njit(cache=True, parallel=True, error_model="numpy")
 def _solve_kernel(r1, r2, tof, mu, pole, retrograde, max_revs, angle_tol, v1, v2, x, iters, reason):
     for i in numba.prange(r1.shape[0]):
         _solve_one(

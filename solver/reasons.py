@@ -32,7 +32,7 @@ class Reason(IntEnum):
 _DESCRIPTIONS = {
     Reason.OK: "solved",
     Reason.NONFINITE_INPUT: "an input is NaN or infinite",
-    Reason.ZERO_RADIUS: "a position vector has zero length",
+    Reason.ZERO_RADIUS: "a position vector has zero length (or under 1e-10 of the other)",
     Reason.NONPOSITIVE_TOF: "time of flight is not positive",
     Reason.PLANE_UNDEFINED: (
         "transfer angle within tolerance of 0 or 180 degrees: the transfer plane is undefined"

@@ -16,7 +16,7 @@ _SERIES_LIMIT = 1.0
 _SERIES_TERMS = 10
 
 
-@numba.njit(cache=True, fastmath=False, inline="always")
+@numba.njit(cache=True, error_model="numpy", inline="always")
 def stumpff_c(z: float) -> float:
     """C(z) = (1 - cos √z) / z, analytic through z = 0 (C(0) = 1/2)."""
     if abs(z) < _SERIES_LIMIT:
@@ -34,7 +34,7 @@ def stumpff_c(z: float) -> float:
     return (math.cosh(math.sqrt(-z)) - 1.0) / (-z)
 
 
-@numba.njit(cache=True, fastmath=False, inline="always")
+@numba.njit(cache=True, error_model="numpy", inline="always")
 def stumpff_s(z: float) -> float:
     """S(z) = (√z - sin √z) / √z³, analytic through z = 0 (S(0) = 1/6)."""
     if abs(z) < _SERIES_LIMIT:
