@@ -240,19 +240,37 @@ def jd_tdb_to_utc(
     -------
     str for scalar input, else an array of str with the broadcast shape.
     """
+    return _format(jd_tdb, jd_tdb2, digits, suffix, utc=True)
+
+
+def jd_tdb_to_iso_tdb(
+    jd_tdb: ArrayLike, jd_tdb2: ArrayLike = 0.0, *, digits: int = 3
+) -> str | NDArray[np.str_]:
+    """TDB Julian dates to ISO 8601 calendar date-times in the TDB scale itself (no suffix).
+
+    For labels of ranges that are defined in TDB (e.g. an ephemeris file's coverage).
+    """
+    return _format(jd_tdb, jd_tdb2, digits, "", utc=False)
+
+
+def _format(jd_tdb, jd_tdb2, digits, suffix: str, *, utc: bool):
     if not 0 <= int(digits) <= 9:
         raise InputError("digits", digits, "an integer 0-9")
     a = np.asarray(jd_tdb, dtype=float)
     b = np.asarray(jd_tdb2, dtype=float)
     a, b = np.broadcast_arrays(a, b)
-    if not np.all(np.isfinite(a) & np.isfinite(b)):
-        raise InputError("jd_tdb", a[~(np.isfinite(a) & np.isfinite(b))][0], "finite numbers")
+    finite = np.isfinite(a) & np.isfinite(b)
+    if not np.all(finite):
+        raise InputError("jd_tdb", float(a[~finite][0]), "finite numbers")
     day1, frac1 = split_jd(a)
     jd1, jd2 = day1, frac1 + b
-    utc1, utc2 = tdb_jd_to_utc_jd(jd1, jd2)
-    year, month, day, hmsf, status = erfa.ufunc.d2dtf("UTC", int(digits), utc1, utc2)
+    if utc:
+        jd1, jd2 = tdb_jd_to_utc_jd(jd1, jd2)
+    scale = "UTC" if utc else "TDB"
+    year, month, day, hmsf, status = erfa.ufunc.d2dtf(scale, int(digits), jd1, jd2)
+    status = np.asarray(status).reshape(-1)
     if np.any(status < 0):
-        k = int(np.flatnonzero(np.asarray(status).reshape(-1) < 0)[0])
+        k = int(np.flatnonzero(status < 0)[0])
         raise InputError("jd_tdb", float((a + b).reshape(-1)[k]), "a JD within years -4799..9999")
     width = int(digits)
     year_f, month_f, day_f = (np.asarray(x).reshape(-1) for x in (year, month, day))
