@@ -178,7 +178,9 @@ def test_shapes():
 
 @settings(max_examples=200, deadline=None)
 @given(
-    st.datetimes(min_value=datetime(1961, 1, 1), max_value=datetime(2199, 12, 31)),
+    # From 1972 (leap-second UTC). In 1960-1971 ERFA's UTC day carries a drift term and its
+    # string <-> quasi-JD pair is consistent to ~1 microsecond only (astropy shows the same).
+    st.datetimes(min_value=datetime(1972, 1, 1), max_value=datetime(2199, 12, 31)),
 )
 def test_round_trip_property(moment):
     text = moment.strftime("%Y-%m-%dT%H:%M:%S.%f")
