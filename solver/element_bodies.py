@@ -398,9 +398,9 @@ class ElementSet:
         r_pf, v_pf = elements_to_state(
             self.semi_major_axis_km[sl, None], e, 0.0, 0.0, 0.0, nu, self.mu_km3_s2[sl, None]
         )
-        rot = self._perifocal_to_icrf[sl]
-        np.einsum("nij,nmj->nmi", rot, r_pf, out=r_out)
-        np.einsum("nij,nmj->nmi", rot, v_pf, out=v_out)
+        rot_t = self._perifocal_to_icrf[sl].transpose(0, 2, 1)
+        np.matmul(r_pf, rot_t, out=r_out)
+        np.matmul(v_pf, rot_t, out=v_out)
 
 
 # ---------------------------------------------------------------------------------------------
