@@ -24,6 +24,9 @@ _LAGUERRE_ORDER = 5.0
 _MAX_ITERATIONS = 60
 # Stop when the χ step is this small relative to χ; one more step then polishes the last bit.
 _CHI_REL_TOL = 1e-13
+_CHI_NOISE_FLOOR = 1e-9
+# Hyperbolas with α·r0 below this, flown toward periapsis, are restarted from periapsis.
+_PERIAPSIS_SPLIT_ALPHA_R0 = -1.0
 
 
 @numba.njit(cache=True)
@@ -64,6 +67,7 @@ def _propagate_one(rx, ry, rz, vx, vy, vz, dt, mu, out):
     n = _LAGUERRE_ORDER
     converged = False
     polish = False
+    step = np.inf
     for _ in range(_MAX_ITERATIONS):
         chi_sq = chi * chi
         z = alpha * chi_sq
@@ -89,6 +93,10 @@ def _propagate_one(rx, ry, rz, vx, vy, vz, dt, mu, out):
             break
         if abs(step) <= _CHI_REL_TOL * max(abs(chi), 1e-300):
             polish = True
+    if not converged:
+        # Where the terms of the equation nearly cancel (fast hyperbolas grazing the focus), the
+        # iteration wanders in rounding noise; accept a χ settled to this noise floor.
+        converged = abs(step) <= _CHI_NOISE_FLOOR * abs(chi)
 
     chi_sq = chi * chi
     z = alpha * chi_sq
@@ -109,11 +117,51 @@ def _propagate_one(rx, ry, rz, vx, vy, vz, dt, mu, out):
     return converged and math.isfinite(r)
 
 
+@numba.njit(cache=True)
+def _propagate_via_periapsis(rx, ry, rz, vx, vy, vz, dt, mu, out):
+    """Like ``_propagate_one``, but an inbound hyperbolic flight restarts from periapsis.
+
+    Flying toward periapsis on a fast hyperbola, the universal Kepler equation is a difference
+    of huge, nearly equal terms and χ loses digits. From periapsis (r·v = 0) every term has the
+    same sign, forward or backward, so the flight is re-expressed from there: periapsis state
+    from the eccentricity vector, time to periapsis from the hyperbolic anomaly (Vallado §2.2;
+    Curtis §3.5).
+    """
+    r0 = math.sqrt(rx * rx + ry * ry + rz * rz)
+    v0_sq = vx * vx + vy * vy + vz * vz
+    alpha = 2.0 / r0 - v0_sq / mu
+    rv = rx * vx + ry * vy + rz * vz
+    if alpha * r0 > _PERIAPSIS_SPLIT_ALPHA_R0 or rv * dt >= 0.0:
+        return _propagate_one(rx, ry, rz, vx, vy, vz, dt, mu, out)
+    minus_a = -1.0 / alpha
+    hx, hy, hz = ry * vz - rz * vy, rz * vx - rx * vz, rx * vy - ry * vx
+    h = math.sqrt(hx * hx + hy * hy + hz * hz)
+    k = v0_sq - mu / r0
+    ex, ey, ez = (k * rx - rv * vx) / mu, (k * ry - rv * vy) / mu, (k * rz - rv * vz) / mu
+    e = math.sqrt(ex * ex + ey * ey + ez * ez)
+    sinh_h0 = rv / (math.sqrt(mu * minus_a) * e)
+    mean_anomaly0 = e * sinh_h0 - math.asinh(sinh_h0)
+    time_to_periapsis = -mean_anomaly0 * math.sqrt(minus_a**3 / mu)
+    r_p = minus_a * (e - 1.0)
+    v_p = math.sqrt(mu * (2.0 / r_p + 1.0 / minus_a))
+    ux, uy, uz = ex / e, ey / e, ez / e
+    # Velocity at periapsis is along h x e.
+    wx = (hy * uz - hz * uy) / h
+    wy = (hz * ux - hx * uz) / h
+    wz = (hx * uy - hy * ux) / h
+    if _propagate_one(
+        r_p * ux, r_p * uy, r_p * uz, v_p * wx, v_p * wy, v_p * wz, dt - time_to_periapsis, mu, out
+    ):
+        return True
+    # A nearly rectilinear hyperbola grazes the focus; the direct route is the better one there.
+    return _propagate_one(rx, ry, rz, vx, vy, vz, dt, mu, out)
+
+
 @numba.njit(cache=True, parallel=True)
 def _propagate_kernel(r0, v0, dt, mu, r_out, v_out, ok_out):
     for i in numba.prange(r0.shape[0]):
         buf = np.empty(6)
-        ok = _propagate_one(
+        ok = _propagate_via_periapsis(
             r0[i, 0], r0[i, 1], r0[i, 2], v0[i, 0], v0[i, 1], v0[i, 2], dt[i], mu[i], buf
         )
         r_out[i, 0], r_out[i, 1], r_out[i, 2] = buf[0], buf[1], buf[2]
