@@ -230,11 +230,12 @@ class BodyRegistry:
                 added.append(item)
             elif isinstance(item, ElementBody):
                 added.append(body_from_elements(item))
-            elif isinstance(item, (ElementSet, list, tuple)) or hasattr(item, "__iter__"):
+            elif not isinstance(item, (str, bytes)) and hasattr(item, "__iter__"):
                 for sub in item:  # type: ignore[union-attr]
                     collect(sub)
             else:
-                raise InputError("bodies", repr(item), "ElementBody, ElementSet or Body")
+                shown = item if isinstance(item, str) else type(item).__name__
+                raise InputError("bodies", shown, "ElementBody, ElementSet or Body")
 
         for item in items:
             collect(item)

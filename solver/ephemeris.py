@@ -22,8 +22,6 @@ gives (3,), a 1-D array (n, 3), a 2-D grid (n, m, 3).
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
@@ -302,8 +300,3 @@ def element_set_states(
         r = rotate(r, ICRF, out_frame)
         v = rotate(v, ICRF, out_frame)
     return r, v
-
-
-def known_sources() -> Sequence[str]:
-    """Sources a caller may pass as ``source``."""
-    return SOURCES

@@ -183,6 +183,11 @@ def test_registry_is_not_mutated():
         ))  # fmt: skip
 
 
+def test_with_bodies_rejects_other_things():
+    with pytest.raises(InputError, match="ElementBody"):
+        default_registry().with_bodies("mars")
+
+
 @settings(max_examples=60, deadline=None)
 @given(
     a_au=st.floats(0.3, 40.0),
