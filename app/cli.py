@@ -12,6 +12,8 @@ from solver.errors import InputError
 # Modules are imported lazily so ``arcwindow lambert`` does not pay for Dash or Dask imports.
 SUBCOMMANDS: dict[str, str] = {
     "lambert": "app.commands.lambert_cmd",
+    "state": "app.commands.state_cmd",
+    "bodies": "app.commands.bodies_cmd",
     "serve": "app.commands.serve_cmd",
     "bench": "app.commands.bench_cmd",
 }

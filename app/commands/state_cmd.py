@@ -1,0 +1,96 @@
+"""``arcwindow state``: position and velocity of one body at one UTC date."""
+
+from __future__ import annotations
+
+import argparse
+
+
+def add_parser(subparsers: argparse._SubParsersAction) -> None:
+    parser = subparsers.add_parser(
+        "state",
+        help="position (km) and velocity (km/s) of a body at a UTC date",
+        description=(
+            "Position and velocity of BODY relative to a central body at a UTC date, from the "
+            "JPL DE423 ephemeris (default) or the mean-element table."
+        ),
+    )
+    parser.add_argument("body", metavar="BODY", help="body name (see 'arcwindow bodies')")
+    parser.add_argument(
+        "utc", metavar="UTC", help="ISO 8601 UTC date or date-time, e.g. 2026-05-01T12:00:00Z"
+    )
+    parser.add_argument("--central", default="sun", help="central body (default: sun)")
+    parser.add_argument(
+        "--frame",
+        default="icrf",
+        choices=["icrf", "ecliptic", "equator"],
+        help="axes: icrf (equatorial J2000, default), ecliptic (J2000) or the central body's "
+        "equator",
+    )
+    parser.add_argument(
+        "--source",
+        default=None,
+        choices=["de423", "mean"],
+        help="ephemeris for the Sun, planets and Moon (default: de423)",
+    )
+    parser.add_argument(
+        "--elements-csv",
+        metavar="FILE",
+        help="also know the element bodies of this CSV (format: DEVELOPERS.md)",
+    )
+    parser.add_argument("--json", action="store_true", help="print machine-readable JSON")
+    parser.set_defaults(run=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    import json
+
+    import numpy as np
+
+    from solver.bodies import default_registry
+    from solver.constants import AU_KM
+    from solver.element_bodies import read_element_csv
+    from solver.ephemeris import states
+    from solver.timescales import FUTURE_UTC_NOTE, LAST_LEAP_SECOND_UTC, utc_to_jd_tdb
+
+    registry = default_registry()
+    if args.elements_csv:
+        registry = registry.with_bodies(read_element_csv(args.elements_csv))
+    jd_tdb = float(utc_to_jd_tdb(args.utc, field="UTC"))
+    r, v = states(
+        args.body,
+        jd_tdb,
+        central=args.central,
+        frame=args.frame,
+        source=args.source,
+        registry=registry,
+        field="UTC",
+    )
+    body = registry.get(args.body).name
+    central = registry.get(args.central).name
+    source = args.source or registry.get(args.body).default_source
+    if args.json:
+        print(
+            json.dumps(
+                {
+                    "body": body,
+                    "central": central,
+                    "frame": args.frame,
+                    "source": source,
+                    "utc": args.utc,
+                    "jd_tdb": jd_tdb,
+                    "r_km": [float(x) for x in r],
+                    "v_km_s": [float(x) for x in v],
+                },
+                indent=2,
+            )
+        )
+        return 0
+    r_norm = float(np.linalg.norm(r))
+    print(f"{body} relative to {central}, {args.frame} frame, source {source}")
+    print(f"epoch   {args.utc} UTC = JD {jd_tdb:.9f} TDB")
+    print(f"r_km    {r[0]:+.6e} {r[1]:+.6e} {r[2]:+.6e}   |r| = {r_norm:.6e} km "
+          f"({r_norm / AU_KM:.6f} au)")  # fmt: skip
+    print(f"v_km_s  {v[0]:+.9f} {v[1]:+.9f} {v[2]:+.9f}   |v| = {np.linalg.norm(v):.9f} km/s")
+    if args.utc.strip()[:10] > LAST_LEAP_SECOND_UTC:
+        print(f"note: {FUTURE_UTC_NOTE}")
+    return 0
