@@ -17,6 +17,7 @@ from dataclasses import asdict, dataclass, field
 # Section name -> module. Order is the printing order.
 SECTIONS: dict[str, str] = {
     "lambert": "app.bench.lambert_bench",
+    "cache": "app.bench.cache_bench",
 }
 OPTIONAL_SECTIONS: dict[str, str] = {}
 
