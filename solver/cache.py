@@ -404,12 +404,11 @@ class GridCache:
         -------
         list[CacheEntry]
         """
-        found = []
-        for path, key, stat in self._scan_entries():
-            last_used = datetime.fromtimestamp(stat.st_mtime_ns / 1e9, tz=UTC)
-            found.append(CacheEntry(key, path, stat.st_size, last_used))
-        found.sort(key=lambda entry: entry.last_used_utc, reverse=True)
-        return found
+        scanned = sorted(self._scan_entries(), key=lambda found: found[2].st_mtime_ns, reverse=True)
+        return [
+            CacheEntry(key, path, stat.st_size, datetime.fromtimestamp(stat.st_mtime_ns / 1e9, UTC))
+            for path, key, stat in scanned
+        ]
 
     def total_bytes(self) -> int:
         """Total size of the entries on disk, bytes (temporaries not counted)."""

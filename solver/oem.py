@@ -183,7 +183,7 @@ def format_oem(
         f"{epoch} {x: .15e} {y: .15e} {z: .15e} {vx: .15e} {vy: .15e} {vz: .15e}"
         for epoch, (x, y, z), (vx, vy, vz) in zip(epoch_list, r.tolist(), v.tolist(), strict=True)
     ]
-    # Data lines are at most 34 + 6 * 23 = 172 characters; text fields were checked above.
+    # Data lines are at most 34 + 6 * 24 = 178 characters; text fields were checked above.
     return "\n".join([*header_lines, "", *meta_lines, "", *data_lines]) + "\n"
 
 

@@ -132,7 +132,7 @@ def test_states_between_samples_follow_the_arc(tmp_path: Path) -> None:
     t_mid_s = 40 * 2 * half_step_s + half_step_s
     mid = message.span[0] + timedelta(seconds=t_mid_s)
     r_mid, _ = propagate(r[0], v[0], t_mid_s, MU_SUN_KM3_S2)
-    # Degree-5 Lagrange over half-day steps on a 1 au orbit: agreement to well under a km.
+    # Degree-5 Lagrange over half-day steps on a 1 au orbit: agreement to better than a metre.
     np.testing.assert_allclose(message(mid).position, r_mid, rtol=0, atol=1e-3)
 
 
