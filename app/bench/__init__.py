@@ -18,6 +18,7 @@ from dataclasses import asdict, dataclass, field
 SECTIONS: dict[str, str] = {
     "lambert": "app.bench.lambert_bench",
     "ephemeris": "app.bench.ephemeris_bench",
+    "cache": "app.bench.cache_bench",
 }
 OPTIONAL_SECTIONS: dict[str, str] = {}
 
