@@ -411,6 +411,28 @@ def minimum_energy_tau(lam: float, revolutions: int = 0) -> float:
     return float(tau_of_epsilon(-1.0, lam, revolutions, False))
 
 
+def family_from_x(x: ArrayLike, long_way: ArrayLike) -> NDArray[np.int8]:
+    """Family codes from the Lambert solver's own variable x and the sense of the transfer.
+
+    x > 1 hyperbola, x = 1 parabola, 0 <= x < 1 ellipse before the minimum-energy time (a faster
+    arc), x < 0 after it (Izzo 2015, §2: ε = x² - 1). A cheap labelling for whole grids; use
+    :func:`classify` to check a solution independently of x. NaN gives 0.
+    """
+    x = np.asarray(x, dtype=float)
+    long_way = np.broadcast_to(np.asarray(long_way, dtype=bool), x.shape)
+    code = np.select(
+        [x > 1.0, x == 1.0, x >= 0.0, x < 0.0],
+        [
+            np.where(long_way, Family.HYPERBOLA_LONG, Family.HYPERBOLA_SHORT),
+            np.where(long_way, Family.PARABOLA_LONG, Family.PARABOLA_SHORT),
+            np.where(long_way, Family.ELLIPSE_LONG_BEFORE, Family.ELLIPSE_SHORT_BEFORE),
+            np.where(long_way, Family.ELLIPSE_LONG_AFTER, Family.ELLIPSE_SHORT_AFTER),
+        ],
+        0,
+    )
+    return code.astype(np.int8)
+
+
 # ---------------------------------------------------------------------------------------------
 # Classifying solutions
 
@@ -543,6 +565,7 @@ __all__ = [
     "Geometry",
     "classify",
     "family_curves",
+    "family_from_x",
     "family_label",
     "geometry",
     "lagrange_tof_s",
