@@ -1,0 +1,61 @@
+"""The arcwindow dashboard: window map, arc view, family chart, details and a shared shortlist.
+
+``create_app()`` builds the Dash app; ``arcwindow serve`` runs it on waitress. Modules:
+
+* ``state``: the view state and its URL query;
+* ``cases``: sample and uploaded cases; ``jobs``: grids in memory and background jobs;
+  ``shortlist``: the shared shortlist file; ``exports``: downloads;
+* ``prepare``: solver results to display arrays; ``figures``: pure figure builders;
+  ``theme``: colours and fonts;
+* ``model``: the above put together for the callbacks; ``layout``; ``callbacks``.
+"""
+
+from __future__ import annotations
+
+import os
+
+from dash import Dash
+
+from .config import ASSETS_DIR, Settings
+from .model import DashboardModel
+
+__all__ = ["DashboardModel", "Settings", "create_app"]
+
+
+def create_app(
+    *,
+    cache_dir: str | os.PathLike | None = None,
+    data_dir: str | os.PathLike | None = None,
+    cases_dir: str | os.PathLike | None = None,
+    model: DashboardModel | None = None,
+) -> Dash:
+    """Build the dashboard app.
+
+    Parameters
+    ----------
+    cache_dir, data_dir, cases_dir : path, optional
+        Grid cache folder, data folder (shortlist and uploaded cases) and sample-case folder;
+        each falls back to its environment variable, then its default (see ``config``).
+    model : DashboardModel, optional
+        A ready model (tests pass one with a stand-in grid engine).
+
+    Returns
+    -------
+    dash.Dash
+        Serve ``app.server`` (a Flask WSGI app) with a production WSGI server.
+    """
+    from . import callbacks, layout
+
+    if model is None:
+        model = DashboardModel(Settings.resolve(cache_dir, data_dir, cases_dir))
+    app = Dash(
+        __name__,
+        title="arcwindow",
+        update_title=None,
+        assets_folder=str(ASSETS_DIR),
+        serve_locally=True,
+    )
+    app.layout = layout.page()
+    callbacks.register(app, model)
+    app.server.config["ARCWINDOW_MODEL"] = model
+    return app

@@ -1,0 +1,661 @@
+"""Solver results turned into the plain arrays the figure builders draw.
+
+The figure builders (``figures.py``) know nothing of cases, grids or ephemerides: they take the
+dataclasses made here. This module calls the engine (``solver.window``, ``solver.kepler``,
+``solver.ephemeris``, ``solver.families``) and does the unit conversions for display, so the
+figures stay pure and fast to test.
+
+Dates on the plots are milliseconds since 1970-01-01 UTC, the number a plotly date axis reads.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+from numpy.typing import NDArray
+
+from solver.case import Case
+from solver.constants import AU_KM, SECONDS_PER_DAY
+from solver.ephemeris import states
+from solver.families import (
+    FamilyCurve,
+    classify,
+    family_curves,
+    family_label,
+    geometry,
+    minimum_energy_tau,
+    parabolic_tau,
+)
+from solver.frames import ECLIPTIC, ICRF, equator_frame, rotate
+from solver.kepler import sample_arc, state_to_elements
+from solver.reasons import describe
+from solver.timescales import jd_tdb_to_utc, split_jd, tdb_jd_to_utc_jd
+from solver.window import METRICS, Arc, CaseBodies, WindowGrid
+
+from .state import parse_arcs
+
+DISPLAY_MAX_POINTS = 600
+"""Largest number of heat-map columns or rows sent to the browser. A map panel is about 900 x
+520 pixels; more points than pixels only cost transfer time. Clicks map back to exact dates."""
+
+PREVIEW_MAX_POINTS = 60
+"""Grid size per axis of the coarse preview computed while a date slider is dragged."""
+
+_UNIX_EPOCH_JD = 2440587.5
+_MS_PER_DAY = 86_400_000.0
+
+# The numbers every heat-map cell carries for its hover label: (metric column, label, unit, format)
+HOVER_FIELDS: tuple[tuple[str, str, str, str], ...] = (
+    ("tof_days", "TOF", "days", ".1f"),
+    ("c3_km2_s2", "C3", "km²/s²", ".2f"),
+    ("dla_deg", "DLA", "deg", ".1f"),
+    ("vinf_arrival_km_s", "arrival v∞", "km/s", ".3f"),
+    ("dv_departure_km_s", "departure Δv", "km/s", ".3f"),
+    ("dv_arrival_km_s", "arrival Δv", "km/s", ".3f"),
+    ("dv_total_km_s", "total Δv", "km/s", ".3f"),
+    ("transfer_angle_deg", "transfer angle", "deg", ".1f"),
+)
+
+LIMIT_OF_METRIC = {
+    "c3_km2_s2": "c3_max_km2_s2",
+    "vinf_arrival_km_s": "vinf_arrival_max_km_s",
+    "dla_deg": "dla_max_deg",
+    "tof_days": "tof_max_days",
+}
+
+
+# ---------------------------------------------------------------------------------------------
+# Dates
+
+
+def jd_tdb_to_unix_ms(jd_tdb: NDArray[np.float64] | float) -> NDArray[np.float64]:
+    """JD TDB to milliseconds since 1970-01-01 UTC (the plot's date coordinate)."""
+    day, frac = split_jd(np.asarray(jd_tdb, dtype=float))
+    utc1, utc2 = tdb_jd_to_utc_jd(day, frac)
+    return ((utc1 - _UNIX_EPOCH_JD) + utc2) * _MS_PER_DAY
+
+
+def utc_text(jd_tdb: float) -> str:
+    """ISO 8601 UTC to the second, for labels and the details panel."""
+    return str(jd_tdb_to_utc(float(jd_tdb), digits=0))
+
+
+def display_indices(n: int, max_points: int = DISPLAY_MAX_POINTS) -> NDArray[np.int64]:
+    """Indices of the grid rows (or columns) drawn: all of them, or the one nearest each of
+    ``max_points`` evenly spaced display positions."""
+    if n <= max_points:
+        return np.arange(n)
+    return np.unique(np.round(np.linspace(0.0, n - 1.0, max_points)).astype(np.int64))
+
+
+# ---------------------------------------------------------------------------------------------
+# Window map
+
+
+@dataclass(frozen=True)
+class MapPoint:
+    """A marked point of the window map (the best arc, the selected cell)."""
+
+    departure_ms: float
+    arrival_ms: float
+    value: float
+    label: str
+
+
+@dataclass(frozen=True)
+class MapData:
+    """What the window map draws.
+
+    Shapes: ``nx`` departure dates (columns), ``ny`` arrival dates (rows).
+
+    Attributes
+    ----------
+    departure_ms : (nx,)  arrival_ms : (ny,)
+        Plot coordinates of the display columns and rows.
+    values : (ny, nx) float32
+        The metric on the arcs shown (|value| for DLA), NaN where a cell has none.
+    outside : (ny, nx) bool
+        Cells whose arc exists but breaks a limit.
+    transfer_angle_deg : (ny, nx) float32
+        For the Type I / Type II boundary.
+    hover : (ny, nx, len(HOVER_FIELDS)) float32
+        Every number of a cell, for its hover label.
+    arc_text : (ny, nx) str or None
+        Which arc a cell shows, when the case has several per cell.
+    """
+
+    metric: str
+    metric_label: str
+    unit: str
+    departure_ms: NDArray[np.float64]
+    arrival_ms: NDArray[np.float64]
+    values: NDArray[np.float32]
+    outside: NDArray[np.bool_]
+    transfer_angle_deg: NDArray[np.float32]
+    hover: NDArray[np.float32] | None
+    arc_text: NDArray[np.str_] | None
+    limit: float | None
+    tof_days_min: float
+    tof_days_max: float
+    best: MapPoint | None = None
+    selected: MapPoint | None = None
+    full_shape: tuple[int, int] = (0, 0)
+    arcs_label: str = ""
+    preview: bool = False
+    title: str = ""
+
+
+def shown_slot(grid: WindowGrid, arcs: str) -> int | None:
+    """Slot index for an arcs choice ("best" gives None: the best slot of each cell)."""
+    revolutions, branch = parse_arcs(arcs)
+    if revolutions is None:
+        return None
+    branch_code = {"single": 0, "low": 1, "high": 2}[branch or "single"]
+    for k in range(len(grid.revolutions)):
+        if int(grid.revolutions[k]) == revolutions and int(grid.branch[k]) == branch_code:
+            return k
+    return 0
+
+
+def map_data(
+    grid: WindowGrid,
+    metric: str,
+    arcs: str = "best",
+    *,
+    max_points: int = DISPLAY_MAX_POINTS,
+    best: MapPoint | None = None,
+    selected: MapPoint | None = None,
+    preview: bool = False,
+    title: str = "",
+) -> MapData:
+    """Display arrays of one metric over a grid, decimated to at most ``max_points`` per axis."""
+    slot = shown_slot(grid, arcs)
+    if slot is None:
+        slot_per_cell = grid.best_slot(metric)
+        within = grid.cell_within()
+    else:
+        slot_per_cell = np.where(grid.converged[..., slot], slot, -1)
+        within = grid.within[..., slot]
+    i = display_indices(len(grid.departure_jd_tdb), max_points)
+    j = display_indices(len(grid.arrival_jd_tdb), max_points)
+    cells = np.ix_(i, j)
+    slot_shown = slot_per_cell[cells]
+    exists = slot_shown >= 0
+    rank = METRICS[metric].rank_by_magnitude
+
+    def field(name: str) -> NDArray[np.float32]:
+        """(ny, nx) values of a metric on the arcs shown in the display cells."""
+        if name in ("tof_days", "transfer_angle_deg"):
+            values = getattr(grid, name)[cells]
+        elif slot is None:
+            picked = np.take_along_axis(
+                grid.metric(name)[cells], np.maximum(slot_shown, 0)[..., None], -1
+            )
+            values = picked[..., 0]
+        else:
+            values = grid.metric(name)[(*cells, slot)]
+        return np.where(exists, values, np.nan).T.astype(np.float32)
+
+    values = field(metric)
+    if rank:
+        values = np.abs(values)
+    hover = None
+    if not preview:
+        hover = np.stack([field(name) for name, *_ in HOVER_FIELDS], axis=-1)
+    arc_text = None
+    if len(grid.revolutions) > 1:
+        labels = np.array(
+            [
+                _slot_label(int(n), int(b))
+                for n, b in zip(grid.revolutions, grid.branch, strict=True)
+            ]
+            + ["no arc"]
+        )
+        arc_text = labels[np.where(exists, slot_shown, -1)].T
+    limit_name = LIMIT_OF_METRIC.get(metric)
+    limit = getattr(grid.case.limits, limit_name) if limit_name else None
+    m = METRICS[metric]
+    label = f"|{m.label}|" if rank else m.label
+    return MapData(
+        metric=metric,
+        metric_label=label,
+        unit=m.unit,
+        departure_ms=jd_tdb_to_unix_ms(grid.departure_jd_tdb[i]),
+        arrival_ms=jd_tdb_to_unix_ms(grid.arrival_jd_tdb[j]),
+        values=values,
+        outside=(exists & ~within[cells]).T,
+        transfer_angle_deg=np.where(exists, grid.transfer_angle_deg[cells], np.nan).T.astype(
+            np.float32
+        ),
+        hover=hover,
+        arc_text=arc_text,
+        limit=limit,
+        tof_days_min=float(np.nanmin(grid.tof_days)),
+        tof_days_max=float(np.nanmax(grid.tof_days)),
+        best=best,
+        selected=selected,
+        full_shape=(len(grid.departure_jd_tdb), len(grid.arrival_jd_tdb)),
+        arcs_label=_arcs_label(arcs),
+        preview=preview,
+        title=title,
+    )
+
+
+def _slot_label(revolutions: int, branch: int) -> str:
+    if revolutions == 0:
+        return "N = 0"
+    return f"N = {revolutions}, {'low' if branch == 1 else 'high'} branch"
+
+
+def _arcs_label(arcs: str) -> str:
+    revolutions, branch = parse_arcs(arcs)
+    if revolutions is None:
+        return "best arc of each cell"
+    if revolutions == 0:
+        return "single revolution"
+    return f"N = {revolutions}, {branch} branch"
+
+
+def map_point(arc: Arc, metric: str, label: str) -> MapPoint:
+    """A map marker at an arc's dates carrying its value of ``metric``."""
+    value = arc.metrics.get(metric, math.nan)
+    if METRICS[metric].rank_by_magnitude:
+        value = abs(value)
+    return MapPoint(
+        float(jd_tdb_to_unix_ms(arc.departure_jd_tdb)),
+        float(jd_tdb_to_unix_ms(arc.arrival_jd_tdb)),
+        float(value),
+        label,
+    )
+
+
+def grid_best_point(grid: WindowGrid, metric: str, arcs: str) -> MapPoint | None:
+    """The grid node holding the best arc within limits among the arcs shown, or None."""
+    slot = shown_slot(grid, arcs)
+    if slot is None:
+        found = grid.best_cell(metric)
+        if found is None:
+            return None
+        i, j, k = found
+    else:
+        values = grid.metric(metric)[..., slot]
+        if METRICS[metric].rank_by_magnitude:
+            values = np.abs(values)
+        score = np.where(grid.within[..., slot], values, np.inf)
+        if not np.isfinite(score).any():
+            return None
+        i, j = np.unravel_index(int(np.argmin(score)), score.shape)
+        k = slot
+    value = float(grid.metric(metric)[i, j, k])
+    if METRICS[metric].rank_by_magnitude:
+        value = abs(value)
+    return MapPoint(
+        float(jd_tdb_to_unix_ms(grid.departure_jd_tdb[i])),
+        float(jd_tdb_to_unix_ms(grid.arrival_jd_tdb[j])),
+        value,
+        "best arc (grid node)",
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# Arc view
+
+
+@dataclass(frozen=True)
+class BodyTrack:
+    """A body's path during the transfer and its full orbit, in display units."""
+
+    name: str
+    path: NDArray[np.float64]  # (n, 3) over the transfer interval
+    orbit: NDArray[np.float64] | None  # (m, 3) one full period, None if not closed or covered
+    at_departure: NDArray[np.float64]  # (3,)
+    at_arrival: NDArray[np.float64]  # (3,)
+
+
+@dataclass(frozen=True)
+class ArcScene:
+    """What the arc view draws, in the display frame and unit."""
+
+    central_name: str
+    central_radius: float  # display units; 0 when the body is a point at this scale
+    unit: str  # "au" or "10³ km"
+    plane_label: str  # "ecliptic J2000" / "Earth equator (ICRF)"
+    arc: NDArray[np.float64]  # (n, 3)
+    departure: BodyTrack
+    target: BodyTrack
+    title: str = ""
+    extent: float = field(default=1.0)
+
+
+def _display_frame(bodies: CaseBodies):
+    central = bodies.central
+    if central.key == "sun":
+        return ECLIPTIC, "ecliptic J2000", AU_KM, "au"
+    if central.key == "earth" or not math.isfinite(central.pole_ra_deg):
+        return ICRF, f"{central.name.capitalize()} equator (ICRF)", 1000.0, "10³ km"
+    frame = equator_frame(central.pole_ra_deg, central.pole_dec_deg, central.key)
+    return frame, f"{central.name.capitalize()} equator", 1000.0, "10³ km"
+
+
+def _period_s(r_km: NDArray, v_km_s: NDArray, mu: float) -> float:
+    r = float(np.linalg.norm(r_km))
+    energy = 0.5 * float(np.dot(v_km_s, v_km_s)) - mu / r
+    if energy >= 0:
+        return math.inf
+    a = -mu / (2.0 * energy)
+    return 2.0 * math.pi * math.sqrt(a**3 / mu)
+
+
+def _track(case: Case, bodies: CaseBodies, body, arc: Arc, frame, scale: float) -> BodyTrack:
+    mu = bodies.mu_central_km3_s2
+    r0, v0 = states(
+        body.name,
+        arc.departure_jd_tdb,
+        central=bodies.central.name,
+        frame=ICRF,
+        source=case.ephemeris_source,
+        registry=case.registry(),
+    )
+    period_s = _period_s(np.asarray(r0), np.asarray(v0), mu)
+    tof_s = max(arc.tof_days, 1e-9) * SECONDS_PER_DAY
+    laps = tof_s / period_s if math.isfinite(period_s) else 0.0
+    n_path = int(np.clip(math.ceil(laps * 180.0) + 2, 120, 4000))
+    jd_path = np.linspace(arc.departure_jd_tdb, arc.arrival_jd_tdb, n_path)
+    orbit = None
+    if math.isfinite(period_s) and laps < 1.0:
+        jd_orbit = arc.departure_jd_tdb + np.linspace(0.0, period_s / SECONDS_PER_DAY, 241)
+        jd_all = np.concatenate([jd_path, jd_orbit])
+    else:
+        jd_all = jd_path
+    r, _ = states(
+        body.name,
+        jd_all,
+        central=bodies.central.name,
+        frame=frame,
+        source=case.ephemeris_source,
+        registry=case.registry(),
+        out_of_range="nan",
+    )
+    r = np.asarray(r) / scale
+    path = r[:n_path]
+    if len(jd_all) > n_path:
+        orbit = r[n_path:]
+    return BodyTrack(body.name, path, orbit, path[0], path[-1])
+
+
+def arc_scene(case: Case, arc: Arc, bodies: CaseBodies | None = None) -> ArcScene:
+    """Transfer arc, both bodies' paths and orbits, in the display frame of the case."""
+    bodies = bodies or CaseBodies.of(case)
+    frame, plane_label, scale, unit = _display_frame(bodies)
+    if arc.ok:
+        _, r_arc = sample_arc(arc.r1_km, arc.v1_km_s, arc.tof_days * SECONDS_PER_DAY, arc.mu_km3_s2)
+        arc_xyz = rotate(r_arc, ICRF, frame) / scale
+    else:
+        arc_xyz = np.empty((0, 3))
+    dep = _track(case, bodies, bodies.departure, arc, frame, scale)
+    tgt = _track(case, bodies, bodies.target, arc, frame, scale)
+    pieces = [p for p in (arc_xyz, dep.path, tgt.path, dep.orbit, tgt.orbit) if p is not None]
+    extent = float(np.nanmax(np.abs(np.concatenate(pieces)))) if pieces else 1.0
+    radius = bodies.central.radius_km / scale if math.isfinite(bodies.central.radius_km) else 0.0
+    return ArcScene(
+        central_name=bodies.central.name.capitalize(),
+        central_radius=radius if radius > 0.01 * extent else 0.0,
+        unit=unit,
+        plane_label=plane_label,
+        arc=arc_xyz,
+        departure=dep,
+        target=tgt,
+        title=f"{dep.name.capitalize()} to {tgt.name.capitalize()}, {arc.tof_days:.1f} days",
+        extent=extent if math.isfinite(extent) and extent > 0 else 1.0,
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# Family chart
+
+
+@dataclass(frozen=True)
+class FamilyPoint:
+    tau: float
+    epsilon: float
+    label: str
+    revolutions: int
+
+
+@dataclass(frozen=True)
+class FamilyData:
+    """What the family chart draws for one cell's geometry."""
+
+    lam: float
+    transfer_angle_deg: float
+    curves: list[FamilyCurve]
+    parabolic_tau: float
+    minimum_energy: list[FamilyPoint]  # one per N
+    cell_arcs: list[FamilyPoint]  # every solved arc of the cell
+    selected: FamilyPoint | None
+    max_revolutions: int
+    title: str = ""
+
+
+def family_data(case: Case, arcs: list[Arc], selected: Arc, bodies: CaseBodies | None = None):
+    """Family curves for the selected cell's geometry, its arcs and the selected arc."""
+    bodies = bodies or CaseBodies.of(case)
+    geo = geometry(selected.r1_km, selected.r2_km, bodies.pole_icrf, case.retrograde)
+    lam = float(geo.lam)
+    points = []
+    chosen = None
+    for arc in arcs:
+        if not arc.ok:
+            continue
+        c = classify(
+            arc.r1_km,
+            arc.v1_km_s,
+            arc.r2_km,
+            arc.tof_days * SECONDS_PER_DAY,
+            arc.mu_km3_s2,
+            arc.revolutions,
+        )
+        family = int(c.family) or arc.family
+        label = family_label(family, arc.revolutions, arc.branch) if family else "unclassified"
+        point = FamilyPoint(float(c.tau), float(c.epsilon), label, arc.revolutions)
+        points.append(point)
+        if arc is selected:
+            chosen = point
+    max_revs = case.max_revolutions
+    taus = [p.tau for p in points if math.isfinite(p.tau)]
+    default_max = 1.6 * minimum_energy_tau(lam, max_revs) + 2.0
+    tau_max = max([default_max, *(1.15 * t for t in taus)])
+    eps_max = max([1.5, *(1.15 * p.epsilon for p in points if math.isfinite(p.epsilon))])
+    curves = family_curves(lam, max_revs, epsilon_max=eps_max, tau_max=tau_max)
+    minimum = [
+        FamilyPoint(minimum_energy_tau(lam, n), -1.0, f"minimum-energy ellipse, N = {n}", n)
+        for n in range(max_revs + 1)
+    ]
+    way = "long way" if lam < 0 else "short way"
+    return FamilyData(
+        lam=lam,
+        transfer_angle_deg=float(np.degrees(geo.transfer_angle_rad)),
+        curves=curves,
+        parabolic_tau=parabolic_tau(lam),
+        minimum_energy=minimum,
+        cell_arcs=points,
+        selected=chosen,
+        max_revolutions=max_revs,
+        title=f"λ = {lam:+.3f} ({way}, transfer angle {np.degrees(geo.transfer_angle_rad):.1f}°)",
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# Details panel
+
+
+@dataclass(frozen=True)
+class DetailRow:
+    label: str
+    value: str
+    unit: str = ""
+
+
+def _fmt(value: float, digits: int = 3) -> str:
+    if value is None or not math.isfinite(value):
+        return "—"
+    if abs(value) >= 1e6:
+        return f"{value:,.0f}"
+    return f"{value:,.{digits}f}"
+
+
+def limit_breaches(case: Case, arc: Arc) -> list[str]:
+    """Plain-language list of the limits an arc breaks (empty when within limits)."""
+    lim = case.limits
+    m = arc.metrics
+    out = []
+    checks = (
+        (lim.c3_max_km2_s2, m["c3_km2_s2"], "C3", "km²/s²", False),
+        (lim.vinf_arrival_max_km_s, m["vinf_arrival_km_s"], "arrival v∞", "km/s", False),
+        (lim.dla_max_deg, abs(m["dla_deg"]), "|DLA|", "deg", False),
+        (lim.tof_max_days, arc.tof_days, "TOF", "days", False),
+        (lim.tof_min_days, arc.tof_days, "TOF", "days", True),
+    )
+    for bound, value, label, unit, is_min in checks:
+        if bound is None or not math.isfinite(value):
+            continue
+        if (value < bound) if is_min else (value > bound):
+            sign = "<" if is_min else ">"
+            out.append(f"{label} {_fmt(value, 2)} {sign} {bound:g} {unit}")
+    return out
+
+
+def arc_details(
+    case: Case, arc: Arc, provenance: dict, bodies: CaseBodies | None = None
+) -> list[tuple[str, list[DetailRow]]]:
+    """Sections of the details panel: (heading, rows)."""
+    bodies = bodies or CaseBodies.of(case)
+    m = arc.metrics
+    frame, plane_label, _scale, unit = _display_frame(bodies)
+    arc_label = (
+        "single revolution" if arc.revolutions == 0 else f"N = {arc.revolutions}, {arc.branch}"
+    )
+    kind = "Type I" if arc.transfer_angle_deg < 180.0 else "Type II"
+    if arc.revolutions:
+        kind += f" geometry, {arc.revolutions}-revolution"
+    status = "within limits" if arc.within else ("outside limits" if arc.ok else "no arc")
+    breaches = limit_breaches(case, arc) if arc.ok else []
+    tof_unit = "days"
+    tof_text = _fmt(arc.tof_days, 2)
+    if arc.tof_days < 2.0:
+        tof_text += f" ({arc.tof_days * 24.0:.2f} h)"
+    sections: list[tuple[str, list[DetailRow]]] = [
+        (
+            "Arc",
+            [
+                DetailRow("departure", utc_text(arc.departure_jd_tdb), "UTC"),
+                DetailRow("arrival", utc_text(arc.arrival_jd_tdb), "UTC"),
+                DetailRow("TOF", tof_text, tof_unit),
+                DetailRow("transfer angle", _fmt(arc.transfer_angle_deg, 1), "deg"),
+                DetailRow("type", kind),
+                DetailRow("arc", arc_label),
+                DetailRow(
+                    "family",
+                    family_label(arc.family, arc.revolutions, arc.branch)
+                    if arc.family
+                    else describe(arc.reason),
+                ),
+                DetailRow("status", status + (": " + "; ".join(breaches) if breaches else "")),
+            ],
+        )
+    ]
+    if not arc.ok:
+        sections.append(("Why no arc", [DetailRow("reason", describe(arc.reason))]))
+    else:
+        sections.append(
+            (
+                "Departure",
+                [
+                    DetailRow("C3", _fmt(m["c3_km2_s2"], 3), "km²/s²"),
+                    DetailRow("v∞", _fmt(m["vinf_departure_km_s"], 4), "km/s"),
+                    DetailRow("DLA", _fmt(m["dla_deg"], 2), "deg"),
+                    DetailRow("RLA", _fmt(m["rla_deg"], 2), "deg"),
+                    DetailRow("Δv", _fmt(m["dv_departure_km_s"], 4), "km/s"),
+                ],
+            )
+        )
+        arrival_rows = [
+            DetailRow("v∞", _fmt(m["vinf_arrival_km_s"], 4), "km/s"),
+            DetailRow("asymptote declination", _fmt(m["vinf_arrival_dec_deg"], 2), "deg"),
+            DetailRow("asymptote right ascension", _fmt(m["vinf_arrival_ra_deg"], 2), "deg"),
+            DetailRow("Δv", _fmt(m["dv_arrival_km_s"], 4), "km/s"),
+        ]
+        if math.isfinite(m.get("entry_speed_km_s", math.nan)):
+            arrival_rows.append(DetailRow("entry speed", _fmt(m["entry_speed_km_s"], 3), "km/s"))
+        sections.append(("Arrival", arrival_rows))
+        sections.append(("Total", [DetailRow("Δv", _fmt(m["dv_total_km_s"], 4), "km/s")]))
+        r1 = rotate(arc.r1_km, ICRF, frame)
+        v1 = rotate(arc.v1_km_s, ICRF, frame)
+        el = state_to_elements(r1, v1, arc.mu_km3_s2)
+        length_scale, length_unit = (AU_KM, "au") if unit == "au" else (1.0, "km")
+        digits = 5 if length_unit == "au" else 1
+        sections.append(
+            (
+                f"Transfer orbit at departure ({plane_label})",
+                [
+                    DetailRow("a", _fmt(float(el.a_km) / length_scale, digits), length_unit),
+                    DetailRow("e", _fmt(float(el.e), 5)),
+                    DetailRow("i", _fmt(math.degrees(float(el.inclination_rad)), 3), "deg"),
+                    DetailRow("Ω", _fmt(math.degrees(float(el.raan_rad)), 3), "deg"),
+                    DetailRow("ω", _fmt(math.degrees(float(el.arg_periapsis_rad)), 3), "deg"),
+                    DetailRow("ν", _fmt(math.degrees(float(el.true_anomaly_rad)), 3), "deg"),
+                    DetailRow(
+                        "periapsis",
+                        _fmt(float(el.periapsis_km) / length_scale, digits),
+                        length_unit,
+                    ),
+                    DetailRow(
+                        "apoapsis",
+                        _fmt(float(el.apoapsis_km) / length_scale, digits),
+                        length_unit,
+                    ),
+                ],
+            )
+        )
+    sections.append(
+        (
+            "Provenance",
+            [
+                DetailRow("case", str(provenance.get("case_title", case.title))),
+                DetailRow("case hash", str(provenance.get("case_hash", ""))),
+                DetailRow("ephemeris", str(provenance.get("ephemeris", ""))),
+                DetailRow("engine", str(provenance.get("engine", ""))),
+                DetailRow("Lambert method", str(provenance.get("lambert_method", ""))),
+                DetailRow("frames", str(provenance.get("frame", ""))),
+                DetailRow("time scales", str(provenance.get("time_scales", ""))),
+            ],
+        )
+    )
+    return sections
+
+
+__all__ = [
+    "DISPLAY_MAX_POINTS",
+    "HOVER_FIELDS",
+    "PREVIEW_MAX_POINTS",
+    "ArcScene",
+    "BodyTrack",
+    "DetailRow",
+    "FamilyData",
+    "FamilyPoint",
+    "MapData",
+    "MapPoint",
+    "arc_details",
+    "arc_scene",
+    "display_indices",
+    "family_data",
+    "grid_best_point",
+    "jd_tdb_to_unix_ms",
+    "limit_breaches",
+    "map_data",
+    "map_point",
+    "shown_slot",
+    "utc_text",
+]
