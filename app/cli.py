@@ -14,6 +14,11 @@ SUBCOMMANDS: dict[str, str] = {
     "lambert": "app.commands.lambert_cmd",
     "state": "app.commands.state_cmd",
     "bodies": "app.commands.bodies_cmd",
+    "cases": "app.commands.cases_cmd",
+    "grid": "app.commands.grid_cmd",
+    "best": "app.commands.best_cmd",
+    "period": "app.commands.period_cmd",
+    "arc": "app.commands.arc_cmd",
     "serve": "app.commands.serve_cmd",
     "bench": "app.commands.bench_cmd",
 }

@@ -293,6 +293,7 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
             high=3650.0,
             accepted="a step from 1 minute (0.000694 days) to 3650 days",
         )
+    _check_dates_in_range(registry, (central, departure, target), source, dates)
     if dates["departure_end"][1] < dates["departure_start"][1]:
         raise InputError(
             "window.departure_end",
@@ -312,7 +313,6 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
             f"after window.departure_start ({dates['departure_start'][0]}): "
             "every arrival would come before every departure",
         )
-    _check_dates_in_range(registry, (central, departure, target), source, dates)
 
     max_revs = transfer.get("max_revolutions", 0)
     if (

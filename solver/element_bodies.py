@@ -47,7 +47,12 @@ from numpy.typing import ArrayLike, NDArray
 from solver.constants import AU_KM, SECONDS_PER_DAY
 from solver.errors import InputError
 from solver.frames import ECLIPTIC, ICRF, ICRF_TO_ECLIPTIC, equator_frame
-from solver.kepler import elements_to_state, mean_to_true_anomaly, true_to_mean_anomaly
+from solver.kepler import (
+    elements_to_state,
+    mean_to_true_anomaly,
+    perifocal_to_reference,
+    true_to_mean_anomaly,
+)
 
 if TYPE_CHECKING:
     from solver.bodies import BodyRegistry
@@ -277,21 +282,6 @@ def _one_of(prefix: str, **options: object) -> tuple[str, object]:
 # ---------------------------------------------------------------------------------------------
 # Many bodies at once
 # ---------------------------------------------------------------------------------------------
-def _perifocal_rotation(inc, raan, argp) -> NDArray[np.float64]:
-    """Rows of R3(-Ω) R1(-i) R3(-ω): perifocal -> reference frame, shape (n, 3, 3)."""
-    co, so = np.cos(raan), np.sin(raan)
-    ci, si = np.cos(inc), np.sin(inc)
-    cw, sw = np.cos(argp), np.sin(argp)
-    return np.stack(
-        [
-            np.stack([co * cw - so * sw * ci, -co * sw - so * cw * ci, so * si], axis=-1),
-            np.stack([so * cw + co * sw * ci, -so * sw + co * cw * ci, -co * si], axis=-1),
-            np.stack([sw * si, cw * si, ci], axis=-1),
-        ],
-        axis=-2,
-    )
-
-
 class ElementSet:
     """Many element bodies as arrays, for states of all of them at many epochs in one call.
 
@@ -339,7 +329,9 @@ class ElementSet:
                 to_icrf[k] = ICRF_TO_ECLIPTIC.T
             else:
                 to_icrf[k] = equator_frame(body.pole_ra_deg, body.pole_dec_deg).icrf_to_frame.T
-        self._perifocal_to_icrf = to_icrf @ _perifocal_rotation(self._inc, self._raan, self._argp)
+        self._perifocal_to_icrf = to_icrf @ perifocal_to_reference(
+            self._inc, self._raan, self._argp
+        )
 
     def __len__(self) -> int:
         return len(self._bodies)

@@ -386,15 +386,18 @@ def elements_to_state(
     v_pf = np.stack(
         [-speed_factor * sin_nu, speed_factor * (e + cos_nu), np.zeros_like(radius)], axis=-1
     )
-    rotation = _perifocal_to_reference(inc, raan, argp)
+    rotation = perifocal_to_reference(inc, raan, argp)
     return (
         np.einsum("...ij,...j->...i", rotation, r_pf),
         np.einsum("...ij,...j->...i", rotation, v_pf),
     )
 
 
-def _perifocal_to_reference(inc, raan, argp) -> NDArray[np.float64]:
-    """Rotation matrices R3(-Ω) R1(-i) R3(-ω), shape (..., 3, 3)."""
+def perifocal_to_reference(
+    inclination_rad: ArrayLike, raan_rad: ArrayLike, arg_periapsis_rad: ArrayLike
+) -> NDArray[np.float64]:
+    """Rotation matrices R3(-Ω) R1(-i) R3(-ω) from perifocal axes, shape (..., 3, 3)."""
+    inc, raan, argp = inclination_rad, raan_rad, arg_periapsis_rad
     co, so = np.cos(raan), np.sin(raan)
     ci, si = np.cos(inc), np.sin(inc)
     cw, sw = np.cos(argp), np.sin(argp)
@@ -522,6 +525,7 @@ __all__ = [
     "Elements",
     "elements_to_state",
     "mean_to_true_anomaly",
+    "perifocal_to_reference",
     "propagate",
     "sample_arc",
     "state_to_elements",

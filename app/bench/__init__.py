@@ -19,6 +19,7 @@ SECTIONS: dict[str, str] = {
     "lambert": "app.bench.lambert_bench",
     "ephemeris": "app.bench.ephemeris_bench",
     "cache": "app.bench.cache_bench",
+    "grid": "app.bench.grid_bench",
 }
 OPTIONAL_SECTIONS: dict[str, str] = {}
 

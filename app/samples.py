@@ -1,0 +1,34 @@
+"""The built-in sample cases and how a case argument is resolved (a path or a sample's name)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from solver.case import Case, load_case
+from solver.errors import InputError
+
+SAMPLE_DIR = Path(__file__).resolve().parents[1] / "sample_cases"
+DEFAULT_CASE = "tallis_rendezvous"
+
+
+def sample_case_paths() -> list[Path]:
+    """Every ``sample_cases/*.toml``, sorted by name."""
+    return sorted(SAMPLE_DIR.glob("*.toml"))
+
+
+def resolve_case_path(argument: str) -> Path:
+    """A case file path, or the name of a sample case (with or without ``.toml``)."""
+    path = Path(argument)
+    if path.is_file():
+        return path
+    name = path.name.removesuffix(".toml")
+    candidate = SAMPLE_DIR / f"{name}.toml"
+    if candidate.is_file():
+        return candidate
+    names = ", ".join(p.stem for p in sample_case_paths())
+    raise InputError("CASE", argument, f"a TOML case file or a sample case name: {names}")
+
+
+def load(argument: str) -> Case:
+    """Load and validate a case given as a path or a sample name."""
+    return load_case(resolve_case_path(argument))

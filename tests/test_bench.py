@@ -1,0 +1,26 @@
+"""The benchmark sections run in quick mode and report ratios (no timing assertions here:
+speed goals live in `arcwindow bench`)."""
+
+from __future__ import annotations
+
+import json
+
+from app.bench import run_sections
+from app.cli import main
+
+
+def test_quick_lambert_and_grid_sections_report_ratios():
+    lines = run_sections(["lambert", "grid"], size="quick")
+    names = [line.name for line in lines]
+    assert any("single-revolution" in n for n in names)
+    assert any("cache hit" in n for n in names)
+    for line in lines:
+        assert line.value > 0
+        if line.baseline_value is not None:
+            assert line.ratio and line.ratio > 0
+
+
+def test_bench_command_json(capsys):
+    assert main(["bench", "--quick", "--section", "grid", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert {row["section"] for row in data} == {"grid"}
