@@ -15,6 +15,16 @@
       var length = span >= 2 ? Math.round(span) + " d" : (span * 24).toFixed(1) + " h";
       return isoOfDays(range[0]) + " → " + isoOfDays(range[1]) + " (" + length + ")";
     },
+    stepHint: function (dep, arr) {
+      function text(days) {
+        if (typeof days !== "number" || !(days > 0) || days >= 1) { return null; }
+        var minutes = days * 1440;
+        return minutes >= 60 ? (minutes / 60).toFixed(2) + " h" : minutes.toFixed(1) + " min";
+      }
+      var d = text(dep), a = text(arr);
+      if (!d && !a) { return ""; }
+      return "Steps: departure " + (d || dep + " d") + ", arrival " + (a || arr + " d") + ".";
+    },
     downloadPng: function (buttonId) {
       var graphs = {
         "button-png-map": ["graph-window-map", "window_map"],

@@ -20,6 +20,7 @@ SECTIONS: dict[str, str] = {
     "ephemeris": "app.bench.ephemeris_bench",
     "cache": "app.bench.cache_bench",
     "grid": "app.bench.grid_bench",
+    "dashboard": "app.bench.dashboard_bench",
 }
 OPTIONAL_SECTIONS: dict[str, str] = {}
 

@@ -9,10 +9,28 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "serve",
         help="serve the dashboard (localhost only unless --host says otherwise)",
-        description="Serve the dashboard on a production WSGI server.",
+        description=(
+            "Serve the dashboard on a production WSGI server. Everyone who can reach the address "
+            "sees the same shortlist; bind to another interface with --host only on a trusted "
+            "network."
+        ),
     )
     parser.add_argument("--host", default="127.0.0.1", help="interface to bind (default 127.0.0.1)")
     parser.add_argument("--port", type=int, default=8050, help="TCP port (default 8050)")
+    parser.add_argument(
+        "--cache-dir",
+        default=None,
+        help="grid cache folder (default: $ARCWINDOW_CACHE_DIR, else the per-user cache folder)",
+    )
+    parser.add_argument(
+        "--data-dir",
+        default=None,
+        help="shortlist and uploaded cases (default: $ARCWINDOW_DATA_DIR, else the per-user "
+        "data folder)",
+    )
+    parser.add_argument(
+        "--threads", type=int, default=8, help="request threads of the server (default 8)"
+    )
     parser.add_argument("--open", action="store_true", help="open the dashboard in a web browser")
     parser.set_defaults(run=run)
 
@@ -22,12 +40,17 @@ def run(args: argparse.Namespace) -> int:
 
     import waitress
 
+    from app.cli import UserInputError
     from app.dashboard import create_app
 
-    dash_app = create_app()
+    if not 0 < args.port < 65536:
+        raise UserInputError(f"--port {args.port} is not accepted; expected 1 to 65535")
+    if args.threads < 1:
+        raise UserInputError(f"--threads {args.threads} is not accepted; expected at least 1")
+    dash_app = create_app(cache_dir=args.cache_dir, data_dir=args.data_dir)
     url = f"http://{args.host}:{args.port}/"
-    print(f"arcwindow dashboard at {url} (Ctrl+C to stop)")
+    print(f"arcwindow dashboard at {url} (Ctrl+C to stop)", flush=True)
     if args.open:
         webbrowser.open(url)
-    waitress.serve(dash_app.server, host=args.host, port=args.port, threads=8)
+    waitress.serve(dash_app.server, host=args.host, port=args.port, threads=args.threads)
     return 0

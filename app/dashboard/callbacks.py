@@ -38,6 +38,7 @@ from . import layout, theme
 from .exports import arc_json, arc_oem, figure_html, grid_csv, safe_name
 from .layout import CONTROL_IDS, SLIDER_IDS
 from .model import DashboardModel
+from .prepare import display_name
 from .state import (
     ViewState,
     arc_choices,
@@ -51,7 +52,13 @@ from .state import (
 # ---------------------------------------------------------------------------------------------
 # Slider domains
 
-_SLIDER_MARKS = 5
+_SLIDER_MARKS = 4
+MAP_WAIT_S = 0.4
+"""How long the map callback waits for a new grid before showing progress instead."""
+SELECTION_WAIT_S = 2.0
+"""How long the selection callback waits for the grid its best arc needs (it is redrawn when
+the map arrives in any case)."""
+_MONTHS = "Jan Feb Mar Apr May Jun Jul Aug Sep Oct Nov Dec".split()
 
 
 def slider_props(base_days: list[float], view_days: list[float], step_days: float) -> dict:
@@ -88,7 +95,7 @@ def slider_marks(lo: float, hi: float) -> dict:
         days = lo + span * (k + 0.5) / _SLIDER_MARKS
         text = unix_days_to_iso(days)
         if span > 90:
-            label = text[:7]  # year-month
+            label = _MONTHS[int(text[5:7]) - 1] + " " + text[:4]
         elif span > 3:
             label = text[5:10]  # month-day
         else:
@@ -99,6 +106,16 @@ def slider_marks(lo: float, hi: float) -> dict:
 
 # ---------------------------------------------------------------------------------------------
 # Progress panel
+
+
+def _set_progress(out: dict, status: dict | None) -> None:
+    """Fill the progress panel's outputs: bar and Cancel while a job runs, the reason and
+    "Compute again" after it was cancelled or failed, nothing when there is no job."""
+    out["panel"], out["fill"], out["text"] = _progress(status)
+    running = bool(status) and status["state"] == "running"
+    stopped = bool(status) and status["state"] in ("cancelled", "failed")
+    out["cancel_style"] = {} if running else {"display": "none"}
+    out["retry_style"] = {} if stopped else {"display": "none"}
 
 
 def _progress(status: dict | None) -> tuple[dict, dict, str]:
@@ -161,6 +178,12 @@ def register(app, model: DashboardModel) -> None:
         out: dict[str, Any] = dict.fromkeys(view_outputs, no_update)
         trigger = ctx.triggered_id
         view = ViewState.from_dict(current) if current else None
+        if (
+            view is not None
+            and trigger == "location-page-url"
+            and (not search or search == to_query(view))
+        ):
+            return out  # the address bar echoing the page's first or last query: nothing new
         if view is None or trigger in (None, "location-page-url"):
             view, case, notes = model.view_from_url(search)
             _fill_controls(out, model, view, case)
@@ -218,6 +241,8 @@ def register(app, model: DashboardModel) -> None:
         "fill": Output("div-grid-progress-fill", "style"),
         "text": Output("text-grid-progress", "children"),
         "job": Output("store-grid-job", "data"),
+        "cancel_style": Output("button-grid-cancel", "style"),
+        "retry_style": Output("button-grid-retry", "style"),
     }
 
     @app.callback(
@@ -227,12 +252,13 @@ def register(app, model: DashboardModel) -> None:
             "dep_drag": Input(SLIDER_IDS["dep"], "drag_value"),
             "arr_drag": Input(SLIDER_IDS["arr"], "drag_value"),
             "tick": Input("interval-grid-poll", "n_intervals"),
+            "retry": Input("button-grid-retry", "n_clicks"),
             "shown": State("store-map-shown", "data"),
             "job_key": State("store-grid-job", "data"),
         },
         prevent_initial_call=True,
     )
-    def draw_map(view_data, dep_drag, arr_drag, tick, shown, job_key):
+    def draw_map(view_data, dep_drag, arr_drag, tick, retry, shown, job_key):
         out: dict[str, Any] = dict.fromkeys(map_outputs, no_update)
         if not view_data:
             return out
@@ -255,27 +281,29 @@ def register(app, model: DashboardModel) -> None:
         if trigger == "interval-grid-poll":
             job = model.grids.job(job_key) if job_key else None
             if job is None:
-                out["poll_off"] = True
-                out["panel"], out["fill"], out["text"] = _progress(None)
-                return out
+                return _poll_refinement(out, model, view, case, shown)
             if job.state == "running":
-                out["panel"], out["fill"], out["text"] = _progress(job.status())
+                _set_progress(out, job.status())
                 return out
             if job.key != window_cache_key(case) or job.state != "done":
                 out["poll_off"] = True
-                out["panel"], out["fill"], out["text"] = _progress(
-                    job.status() if job.state != "done" else None
-                )
+                _set_progress(out, job.status() if job.state != "done" else None)
+                if job.state != "done" and (not shown or shown.get("kind") == "empty"):
+                    out["figure"] = theme.empty_figure(
+                        "No grid: "
+                        + (job.message or job.state)
+                        + " Change a setting or press “Compute again”."
+                    )
                 return out
         grid, job = model.request_grid(case)
         if grid is None and job is not None:
             if job_key and job_key != job.key:
                 model.grids.cancel(job_key)  # this tab moved on; its old job is not needed
-            grid = model.grids.wait(job, 0.4)
+            grid = model.grids.wait(job, MAP_WAIT_S)
             if grid is None:
                 out["job"] = job.key
                 out["poll_off"] = job.state != "running"
-                out["panel"], out["fill"], out["text"] = _progress(job.status())
+                _set_progress(out, job.status())
                 if not shown or shown.get("kind") == "empty":
                     out["figure"] = theme.empty_figure("Solving the window…")
                     out["shown"] = {"kind": "empty"}
@@ -288,26 +316,29 @@ def register(app, model: DashboardModel) -> None:
             and shown.get("key") == key
             and shown.get("arcs") == view.arcs
         )
+        metric_changed = bool(shown) and shown.get("metric") != view.metric
+        if same_grid and metric_changed and view.arcs == "best" and grid.shape[2] > 1:
+            same_grid = False  # the best arc of a cell depends on the metric: redraw it all
         if same_grid:
-            metric_changed = shown.get("metric") != view.metric
             out["figure"] = model.map_patch(Patch(), view, case, grid, metric_changed)
         else:
             out["figure"] = model.map_figure(view, case, grid)
-        out["shown"] = new_shown
-        out["poll_off"] = True
+        refined = model.best_refined(view, case, grid)
+        out["shown"] = {**new_shown, "refined": refined}
+        out["poll_off"] = refined  # keep polling until the refined best arc can be shown
         out["job"] = None
-        out["panel"], out["fill"], out["text"] = _progress(None)
+        _set_progress(out, None)
         return out
 
     @app.callback(
-        Output("div-message-view", "children", allow_duplicate=True),
+        Output("text-grid-progress", "children", allow_duplicate=True),
         Input("button-grid-cancel", "n_clicks"),
         State("store-grid-job", "data"),
         prevent_initial_call=True,
     )
     def cancel_job(n_clicks, job_key):
         if n_clicks and job_key and model.grids.cancel(job_key):
-            return no_update
+            return "Cancelling…"
         return no_update
 
     # ---- the selected arc ----------------------------------------------------------------
@@ -317,19 +348,35 @@ def register(app, model: DashboardModel) -> None:
         Output("div-details-arc", "children"),
         Output("store-selected-arc", "data"),
         Input("store-view-state", "data"),
-        Input("store-map-shown", "data"),
+        Input("interval-grid-poll", "n_intervals"),
+        State("store-selected-arc", "data"),
         prevent_initial_call=True,
     )
-    def draw_selection(view_data, shown):
+    def draw_selection(view_data, tick, drawn):
+        # The grid poll (not the map's own outputs) wakes this callback up for a best arc whose
+        # grid was still being solved: an input written by the map callback would make the
+        # page hold this callback back until every map update had arrived.
+        nothing = (no_update,) * 4
         if not view_data:
-            return no_update, no_update, no_update, no_update
+            return nothing
         view = ViewState.from_dict(view_data)
-        if ctx.triggered_id == "store-map-shown" and (
-            view.selected or not shown or shown.get("kind") != "full"
-        ):
-            return no_update, no_update, no_update, no_update
+        query = to_query(view)
+        polled = ctx.triggered_id == "interval-grid-poll"
+        same = bool(drawn) and drawn.get("for_view") == query
+        if polled and (view.selected or (same and drawn.get("refined", True))):
+            return nothing
         case = model.case(view)
         grid = model.grids.memory_get(window_cache_key(case))
+        if polled and same and grid is not None and not model.best_refined(view, case, grid):
+            return nothing  # still the grid node shown: wait for the refined best arc
+        if grid is None and not view.selected:
+            if polled:
+                return nothing
+            # The best arc needs the grid: share the map's job and wait a moment for it, so a
+            # small grid's views arrive with the map rather than after it.
+            grid, job = model.request_grid(case)
+            if grid is None and job is not None:
+                grid = model.grids.wait(job, SELECTION_WAIT_S)
         try:
             result = model.selection_figures(view, case, grid)
         except InputError as exc:
@@ -340,30 +387,19 @@ def register(app, model: DashboardModel) -> None:
             waiting = theme.empty_figure(text)
             return waiting, waiting, layout.details_children([], text), None
         arc_fig, family_fig, details, sel = result
-        note = "The best arc of the window." if sel.is_best else "The clicked cell."
-        arc = sel.arc
-        selected = {
-            "departure_utc": details[0][1][0].value,
-            "arrival_utc": details[0][1][1].value,
-            "revolutions": arc.revolutions,
-            "branch": arc.branch,
-            "ok": arc.ok,
-            "metrics": {
-                k: (v if math.isfinite(v) else None)
-                for k, v in arc.metrics.items()
-                if k in ("c3_km2_s2", "vinf_arrival_km_s", "dv_total_km_s", "dla_deg", "tof_days")
-            },
-            "view": to_query(
-                replace(
-                    view,
-                    selected=(details[0][1][0].value, details[0][1][1].value),
-                    arcs=arcs_value(arc.revolutions, arc.branch)
-                    if view.arcs != "best"
-                    else view.arcs,
-                )
-            ),
-        }
-        return arc_fig, family_fig, layout.details_children(details, note), selected
+        note = "The clicked cell."
+        if sel.is_best:
+            note = (
+                "The best arc of the window, refined off the grid."
+                if sel.refined
+                else "The best arc's grid cell; refining it off the grid…"
+            )
+        return (
+            arc_fig,
+            family_fig,
+            layout.details_children(details, note),
+            _selected_store(view, sel, details, query),
+        )
 
     # ---- uploads -------------------------------------------------------------------------
     @app.callback(
@@ -497,10 +533,17 @@ def register(app, model: DashboardModel) -> None:
             Input(sid, "value"),
         )
     app.clientside_callback(
-        "function(n) { return window.location.href; }",
+        "function(d, a) { return window.arcwindow.stepHint(d, a); }",
+        Output("text-step-hint", "children"),
+        Input("input-step-departure", "value"),
+        Input("input-step-arrival", "value"),
+    )
+    # The copy button always holds the link to the current view, ready before any click.
+    app.clientside_callback(
+        "function(search) { return window.location.origin + window.location.pathname"
+        " + (search || ''); }",
         Output("clipboard-view-link", "content"),
-        Input("clipboard-view-link", "n_clicks"),
-        prevent_initial_call=True,
+        Input("location-page-url", "search"),
     )
     app.clientside_callback(
         "function(a, b, c) { return window.arcwindow.downloadPng("
@@ -515,6 +558,28 @@ def register(app, model: DashboardModel) -> None:
 
 # ---------------------------------------------------------------------------------------------
 # Helpers
+
+
+def _poll_refinement(out: dict, model: DashboardModel, view: ViewState, case, shown) -> dict:
+    """A grid-poll tick with no grid job: move the best-arc star once it has been refined."""
+    key = window_cache_key(case)
+    grid = model.grids.memory_get(key)
+    waiting = (
+        shown
+        and shown.get("kind") == "full"
+        and shown.get("key") == key
+        and not shown.get("refined", True)
+        and grid is not None
+    )
+    if not waiting:
+        out["poll_off"] = True
+        _set_progress(out, None)
+        return out
+    if model.best_refined(view, case, grid):
+        out["figure"] = model.map_patch(Patch(), view, case, grid, False)
+        out["shown"] = {**shown, "refined": True}
+        out["poll_off"] = True
+    return out
 
 
 def _close(a, b, tol_days: float = 0.5 / 1440.0) -> bool:
@@ -533,6 +598,28 @@ def html_ok(text: str):
     from dash import html
 
     return html.Div(text, className="aw-message-ok")
+
+
+def _selected_store(view: ViewState, sel, details, query: str) -> dict:
+    """What the shortlist and the downloads need of the arc shown."""
+    arc = sel.arc
+    departure, arrival = details[0][1][0].value, details[0][1][1].value
+    arcs = view.arcs if view.arcs == "best" else arcs_value(arc.revolutions, arc.branch)
+    return {
+        "for_view": query,
+        "refined": sel.refined,
+        "departure_utc": departure,
+        "arrival_utc": arrival,
+        "revolutions": arc.revolutions,
+        "branch": arc.branch,
+        "ok": arc.ok,
+        "metrics": {
+            k: (v if math.isfinite(v) else None)
+            for k, v in arc.metrics.items()
+            if k in ("c3_km2_s2", "vinf_arrival_km_s", "dv_total_km_s", "dla_deg", "tof_days")
+        },
+        "view": to_query(replace(view, selected=(departure, arrival), arcs=arcs)),
+    }
 
 
 def _arc_options(max_revolutions: int) -> list[dict]:
@@ -559,7 +646,7 @@ def _fill_controls(out: dict, model: DashboardModel, view: ViewState, case) -> N
     out["arc_value"] = view.arcs
     out["title"] = case.title
     out["description"] = case.description
-    out["central"] = f"Central body: {case.central_body.capitalize()}"
+    out["central"] = f"Central body: {display_name(case.central_body)}"
     options = _body_options(case)
     out["dep_options"] = options
     out["tgt_options"] = options
@@ -569,7 +656,7 @@ def _body_options(case) -> list[dict]:
     """Bodies that orbit the case's central body (the ones a transfer can join)."""
     central = case.central_body.lower()
     names = [b.name for b in case.registry() if (b.central_body or "").lower() == central]
-    return [{"value": n, "label": n if n[0].isupper() else n.capitalize()} for n in names]
+    return [{"value": n, "label": display_name(n)} for n in names]
 
 
 __all__ = ["register", "slider_marks", "slider_props"]

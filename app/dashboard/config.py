@@ -48,12 +48,13 @@ class Settings:
     ) -> Settings:
         import platformdirs
 
+        from app.samples import SAMPLE_DIR
         from solver.cache import default_directory
 
         return cls(
             cache_dir=_pick(cache_dir, ENV_CACHE_DIR, default_directory()),
             data_dir=_pick(data_dir, ENV_DATA_DIR, Path(platformdirs.user_data_dir("arcwindow"))),
-            cases_dir=_pick(cases_dir, ENV_CASES_DIR, REPO_ROOT / "sample_cases"),
+            cases_dir=_pick(cases_dir, ENV_CASES_DIR, SAMPLE_DIR),
         )
 
     @property

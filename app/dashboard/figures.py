@@ -4,12 +4,14 @@ No Dash, no solver calls, no I/O: each builder is a function of its arguments, s
 call them directly and the benchmark times them alone. Colours, fonts and line styles come from
 ``theme.py``.
 
-The window map's traces keep a fixed order (``MAP_TRACE``) so callbacks can update the markers
-or the metric with a ``dash.Patch`` instead of resending the heat map.
+The window map keeps its traces in a fixed order (``MAP_TRACE``) and draws the best-arc and
+selected-cell markers as layout annotations and shapes, so a click moves them with a
+``dash.Patch`` of the layout alone: the browser then redraws no trace, however large the map.
 """
 
 from __future__ import annotations
 
+import base64
 import math
 
 import numpy as np
@@ -17,7 +19,7 @@ import plotly.graph_objects as go
 from numpy.typing import NDArray
 
 from . import theme
-from .prepare import HOVER_FIELDS, ArcScene, FamilyData, MapData, MapPoint
+from .prepare import HOVER_FIELDS, ArcScene, FamilyData, MapData, MapPoint, display_name
 
 MAP_TRACE = {
     "values": 0,
@@ -26,14 +28,15 @@ MAP_TRACE = {
     "type_boundary": 3,
     "tof_lines": 4,
     "tof_labels": 5,
-    "best": 6,
-    "selected": 7,
+    "best_key": 6,
+    "selected_key": 7,
     "outside_key": 8,
 }
 """Index of each window-map trace (kept stable for partial updates)."""
 
 CONTOUR_LEVELS_TARGET = 8
 TOF_LINES_TARGET = 6
+SELECTED_RADIUS_PX = 10
 # Cells whose transfer angle is this close to 0/360 deg are left out of the Type boundary
 # contour: the angle wraps there, and a contour through the wrap would draw a false line.
 _WRAP_MARGIN_DEG = 30.0
@@ -73,19 +76,6 @@ def colour_range(values: NDArray, limit: float | None, metric: str) -> tuple[flo
     return lo, hi
 
 
-def _hover_template(data: MapData) -> str:
-    lines = [
-        "<b>departure</b> %{x|%Y-%m-%d %H:%M} UTC",
-        "<b>arrival</b> %{y|%Y-%m-%d %H:%M} UTC",
-    ]
-    if data.arc_text is not None:
-        lines.append("<b>arc</b> %{text}")
-    for k, (_, label, unit, fmt) in enumerate(HOVER_FIELDS):
-        lines.append(f"{label} %{{customdata[{k}]:{fmt}}} {unit}")
-    lines.append("<extra></extra>")
-    return "<br>".join(lines)
-
-
 def tof_lines(
     departure_ms: NDArray, arrival_ms: NDArray, tof_min: float, tof_max: float
 ) -> tuple[list[float | None], list[float | None], list[float], list[float], list[str]]:
@@ -104,66 +94,64 @@ def tof_lines(
     hours = hi < 2.0
     step = nice_step((hi - lo) * (24.0 if hours else 1.0), TOF_LINES_TARGET)
     step_days = step / 24.0 if hours else step
-    first = math.ceil(lo / step_days - 1e-9) * step_days
-    tof = first
-    while tof <= hi + 1e-12:
-        if tof > 0:
-            offset = tof * day_ms
-            start = max(x0, y0 - offset)
-            end = min(x1, y1 - offset)
-            if end > start:
-                xs += [start, end, None]
-                ys += [start + offset, end + offset, None]
-                lx.append(end)
-                ly.append(end + offset)
-                value = tof * 24.0 if hours else tof
-                text.append(f"{value:g} h" if hours else f"{value:g} d")
-        tof += step_days
+    k = math.ceil(lo / step_days - 1e-9)
+    while k * step_days <= hi + 1e-12:
+        tof = k * step_days
+        k += 1
+        if tof <= 0:
+            continue
+        offset = tof * day_ms
+        start = max(x0, y0 - offset)
+        end = min(x1, y1 - offset)
+        if end > start:
+            xs += [start, end, None]
+            ys += [start + offset, end + offset, None]
+            lx.append(end)
+            ly.append(end + offset)
+            value = tof * 24.0 if hours else tof
+            text.append(f"{value:g} h" if hours else f"{value:g} d")
     return xs, ys, lx, ly, text
-
-
-def _point_trace(point: MapPoint | None, name: str, marker: dict, unit: str) -> go.Scatter:
-    x = [point.departure_ms] if point else []
-    y = [point.arrival_ms] if point else []
-    text = [f"{point.label}: {point.value:.4g} {unit}"] if point else []
-    return go.Scatter(
-        x=x,
-        y=y,
-        mode="markers",
-        name=name,
-        marker=marker,
-        text=text,
-        hovertemplate="%{text}<br>%{x|%Y-%m-%d %H:%M} → %{y|%Y-%m-%d %H:%M}<extra></extra>",
-        showlegend=True,
-    )
 
 
 # ---------------------------------------------------------------------------------------------
 # Window map
 
 
-def window_map_figure(data: MapData) -> go.Figure:
-    """Heat map of one metric over departure x arrival dates with its reading aids.
+def _label(data: MapData) -> str:
+    return f"{data.metric_label} ({data.unit})" if data.unit else data.metric_label
 
-    Traces, in ``MAP_TRACE`` order: the metric, the grey wash over cells outside the limits,
-    labelled contour lines, the Type I / Type II boundary (transfer angle 180 deg), lines of
-    constant TOF and their labels, the best arc, the selected cell, and a legend key for the
-    wash.
-    """
+
+def _title(data: MapData) -> str:
+    title = data.title or f"{_label(data)} — {data.arcs_label}"
+    return f"{title} (preview while dragging)" if data.preview else title
+
+
+def _hover_template(data: MapData) -> str:
+    lines = [
+        "<b>departure</b> %{x|%Y-%m-%d %H:%M} UTC",
+        "<b>arrival</b> %{y|%Y-%m-%d %H:%M} UTC",
+    ]
+    if data.arc_text is not None:
+        lines.append("<b>arc</b> %{text}")
+    for k, (_, label, unit, fmt) in enumerate(HOVER_FIELDS):
+        lines.append(f"{label} %{{customdata[{k}]:{fmt}}} {unit}")
+    lines.append("<extra></extra>")
+    return "<br>".join(lines)
+
+
+def _metric_traces(data: MapData) -> tuple[go.Heatmap, go.Contour]:
+    """The heat map and its labelled contour lines for the metric of ``data``."""
     lo, hi = colour_range(data.values, data.limit, data.metric)
-    unit = data.unit
-    label = f"{data.metric_label} ({unit})" if unit else data.metric_label
     step = nice_step(hi - lo, CONTOUR_LEVELS_TARGET)
-    start = math.ceil(lo / step) * step
     heat = go.Heatmap(
-        x=data.departure_ms,
-        y=data.arrival_ms,
-        z=data.values,
+        x=data.heat.departure_ms,
+        y=data.heat.arrival_ms,
+        z=data.heat.values,
         zmin=lo,
         zmax=hi,
         colorscale=theme.WINDOW_SCALE,
         colorbar={
-            "title": {"text": label, "side": "right"},
+            "title": {"text": _label(data), "side": "right"},
             "thickness": 14,
             "len": 0.9,
             "outlinewidth": 0,
@@ -180,29 +168,18 @@ def window_map_figure(data: MapData) -> go.Figure:
         heat.update(
             hovertemplate=(
                 "%{x|%Y-%m-%d %H:%M} → %{y|%Y-%m-%d %H:%M}<br>"
-                f"{data.metric_label} %{{z:.4g}} {unit}<extra>preview</extra>"
+                f"{data.metric_label} %{{z:.4g}} {data.unit}<extra>preview</extra>"
             )
         )
-    outside = go.Heatmap(
-        x=data.departure_ms,
-        y=data.arrival_ms,
-        z=np.where(data.outside, np.float32(1.0), np.float32(np.nan)),
-        zmin=0.0,
-        zmax=1.0,
-        colorscale=[[0.0, theme.OUTSIDE_LIMITS_COLOR], [1.0, theme.OUTSIDE_LIMITS_COLOR]],
-        showscale=False,
-        hoverinfo="skip",
-        name="outside limits",
-    )
     contours = go.Contour(
-        x=data.departure_ms,
-        y=data.arrival_ms,
-        z=data.values,
+        x=data.lines.departure_ms,
+        y=data.lines.arrival_ms,
+        z=data.lines.values,
         zmin=lo,
         zmax=hi,
         autocontour=False,
         contours={
-            "start": start,
+            "start": math.ceil(lo / step) * step,
             "end": hi,
             "size": step,
             "coloring": "lines",
@@ -211,23 +188,95 @@ def window_map_figure(data: MapData) -> go.Figure:
             "labelformat": ".3~g",
         },
         colorscale=theme.CONTOUR_LINE_SCALE,
-        line={"width": 1.0},
+        line={"width": 1.0, "smoothing": 0.8},
         showscale=False,
         hoverinfo="skip",
         name=f"{data.metric_label} contours",
         showlegend=False,
     )
-    angle = data.transfer_angle_deg
+    return heat, contours
+
+
+def marker_layout(best: MapPoint | None, selected: MapPoint | None, unit: str) -> dict:
+    """Layout ``annotations`` (the best arc's star) and ``shapes`` (a ring on the selected cell)
+    that mark the map; sizes are in pixels so they read the same at any zoom."""
+    annotations = []
+    shapes = []
+    if best is not None:
+        value = f"{best.value:.4g} {unit}".strip() if math.isfinite(best.value) else ""
+        annotations.append(
+            {
+                "x": best.departure_ms,
+                "y": best.arrival_ms,
+                "xref": "x",
+                "yref": "y",
+                "text": "★",
+                "showarrow": False,
+                "font": {"size": 20, "color": theme.BEST_MARKER["color"]},
+                "hovertext": f"{best.label}: {value}",
+                "name": "best arc",
+            }
+        )
+    if selected is not None:
+        r = SELECTED_RADIUS_PX
+        shapes.append(
+            {
+                "type": "circle",
+                "xref": "x",
+                "yref": "y",
+                "xsizemode": "pixel",
+                "ysizemode": "pixel",
+                "xanchor": selected.departure_ms,
+                "yanchor": selected.arrival_ms,
+                "x0": -r,
+                "x1": r,
+                "y0": -r,
+                "y1": r,
+                "line": {"color": theme.ACCENT, "width": 3},
+                "name": "selected",
+            }
+        )
+    return {"annotations": annotations, "shapes": shapes}
+
+
+def _key_trace(name: str, marker: dict) -> go.Scatter:
+    """A legend entry with no data (the markers themselves live in the layout)."""
+    return go.Scatter(
+        x=[None], y=[None], mode="markers", marker=marker, name=name, hoverinfo="skip"
+    )
+
+
+def window_map_figure(data: MapData) -> go.Figure:
+    """Heat map of one metric over departure x arrival dates with its reading aids.
+
+    Traces, in ``MAP_TRACE`` order: the metric, the pale wash over cells outside the limits,
+    labelled contour lines, the Type I / Type II boundary (transfer angle 180 deg), lines of
+    constant TOF and their labels, and legend keys for the markers and the wash. The best arc
+    (a star) and the selected cell (a ring) are layout annotations and shapes.
+    """
+    heat, contours = _metric_traces(data)
+    outside = go.Heatmap(
+        x=data.heat.departure_ms,
+        y=data.heat.arrival_ms,
+        z=np.where(data.outside, np.float32(1.0), np.float32(np.nan)),
+        zmin=0.0,
+        zmax=1.0,
+        colorscale=[[0.0, theme.OUTSIDE_LIMITS_COLOR], [1.0, theme.OUTSIDE_LIMITS_COLOR]],
+        showscale=False,
+        hoverinfo="skip",
+        name="outside limits",
+    )
+    angle = data.lines.transfer_angle_deg
     with np.errstate(invalid="ignore"):
         near_wrap = (angle < _WRAP_MARGIN_DEG) | (angle > 360.0 - _WRAP_MARGIN_DEG)
     boundary = go.Contour(
-        x=data.departure_ms,
-        y=data.arrival_ms,
+        x=data.lines.departure_ms,
+        y=data.lines.arrival_ms,
         z=np.where(near_wrap, np.float32(np.nan), angle - np.float32(180.0)),
         autocontour=False,
         contours={"start": 0.0, "end": 0.0, "size": 1.0, "coloring": "lines"},
         colorscale=[[0.0, theme.TYPE_BOUNDARY_COLOR], [1.0, theme.TYPE_BOUNDARY_COLOR]],
-        line={"width": 2.2, "dash": "dash"},
+        line={"width": 2.2, "dash": "dash", "smoothing": 1.0},
         showscale=False,
         hoverinfo="skip",
         name="Type I | Type II (180°)",
@@ -255,19 +304,17 @@ def window_map_figure(data: MapData) -> go.Figure:
         showlegend=False,
         name="TOF labels",
     )
-    best = _point_trace(data.best, "best arc", theme.BEST_MARKER, unit)
-    selected = _point_trace(data.selected, "selected", theme.SELECTED_MARKER, unit)
-    outside_key = go.Scatter(
-        x=[None],
-        y=[None],
-        mode="markers",
-        marker={"symbol": "square", "size": 12, "color": theme.OUTSIDE_LIMITS_COLOR},
-        name="outside limits",
-        hoverinfo="skip",
-    )
-    fig = go.Figure(
-        data=[heat, outside, contours, boundary, tof, tof_text, best, selected, outside_key]
-    )
+    keys = [
+        _key_trace("best arc", {"symbol": "star", "size": 14, "color": theme.BEST_MARKER["color"]}),
+        _key_trace(
+            "selected",
+            {"symbol": "circle-open", "size": 13, "color": theme.ACCENT, "line": {"width": 3}},
+        ),
+        _key_trace(
+            "outside limits", {"symbol": "square", "size": 12, "color": theme.OUTSIDE_LIMITS_COLOR}
+        ),
+    ]
+    fig = go.Figure(data=[heat, outside, contours, boundary, tof, tof_text, *keys])
     n_dep, n_arr = data.full_shape
     shown = data.values.shape
     note = (
@@ -275,12 +322,9 @@ def window_map_figure(data: MapData) -> go.Figure:
         if shown == (n_arr, n_dep)
         else f"{n_dep} × {n_arr} cells, drawn at {shown[1]} × {shown[0]}"
     )
-    title = data.title or f"{label} — {data.arcs_label}"
-    if data.preview:
-        title = f"{title} (preview while dragging)"
     fig.update_layout(
         **theme.base_layout(
-            title={"text": title, "x": 0.01, "font": {"size": theme.TITLE_SIZE}},
+            title={"text": _title(data), "x": 0.01, "font": {"size": theme.TITLE_SIZE}},
             margin={"l": 78, "r": 10, "t": 64, "b": 58},
             plot_bgcolor=theme.NO_ARC_COLOR,
             legend={
@@ -306,42 +350,61 @@ def window_map_figure(data: MapData) -> go.Figure:
             ),
             clickmode="event",
             dragmode="zoom",
+            **marker_layout(data.best, data.selected, data.unit),
         )
     )
     return fig
 
 
-def map_metric_patch(patch, data: MapData):
-    """Fill a ``dash.Patch`` of the window map with a new metric over the same grid.
+_TYPED_DTYPES = {
+    np.dtype("float32"): "f4",
+    np.dtype("float64"): "f8",
+    np.dtype("int8"): "i1",
+    np.dtype("uint8"): "u1",
+    np.dtype("int32"): "i4",
+}
 
-    The grid, its hover numbers and the limit wash stay in the browser; only the metric values,
-    colour range, contour levels, markers and titles travel.
+
+def typed_array(values: NDArray) -> dict:
+    """A numpy array as plotly.js's typed-array spec (base64 bytes, dtype, shape).
+
+    Inside a ``dash.Patch`` numpy arrays would travel as JSON lists of numbers, several times
+    larger and slower to encode; plotly.js reads this spec wherever it reads an array.
     """
-    fresh = window_map_figure(data)
-    for name in ("values", "contours"):
+    arr = np.ascontiguousarray(values)
+    spec = {"dtype": _TYPED_DTYPES[arr.dtype], "bdata": base64.b64encode(arr.tobytes()).decode()}
+    if arr.ndim > 1:
+        spec["shape"] = ", ".join(str(n) for n in arr.shape)
+    return spec
+
+
+def map_metric_patch(patch, data: MapData):
+    """Fill a ``dash.Patch`` of the window map with a new metric over the same cells.
+
+    The hover numbers, the limit wash, the Type boundary and the TOF lines stay in the browser;
+    only the metric values, colour range, contour levels, markers and title travel.
+    """
+    heat, contours = _metric_traces(data)
+    for name, trace in (("values", heat), ("contours", contours)):
         k = MAP_TRACE[name]
-        src = fresh.data[k]
-        patch["data"][k]["z"] = data.values
-        patch["data"][k]["zmin"] = src.zmin
-        patch["data"][k]["zmax"] = src.zmax
+        patch["data"][k]["z"] = typed_array(trace.z)
+        patch["data"][k]["zmin"] = trace.zmin
+        patch["data"][k]["zmax"] = trace.zmax
+        patch["data"][k]["name"] = trace.name
     k = MAP_TRACE["values"]
-    patch["data"][k]["colorbar"]["title"]["text"] = fresh.data[k].colorbar.title.text
-    patch["data"][k]["name"] = fresh.data[k].name
-    patch["data"][MAP_TRACE["contours"]]["contours"] = fresh.data[MAP_TRACE["contours"]].contours
-    patch["data"][MAP_TRACE["outside"]]["z"] = fresh.data[MAP_TRACE["outside"]].z
-    for name in ("best", "selected"):
-        set_point(patch, name, getattr(data, name), data.unit)
-    patch["layout"]["title"]["text"] = fresh.layout.title.text
-    return patch
+    patch["data"][k]["colorbar"]["title"]["text"] = heat.colorbar.title.text
+    if data.hover is None:
+        patch["data"][k]["hovertemplate"] = heat.hovertemplate
+    patch["data"][MAP_TRACE["contours"]]["contours"] = contours.contours.to_plotly_json()
+    patch["layout"]["title"]["text"] = _title(data)
+    return set_markers(patch, data.best, data.selected, data.unit)
 
 
-def set_point(patch, name: str, point: MapPoint | None, unit: str):
-    """Move the best-arc or selected-cell marker of a window-map ``Patch``."""
-    trace = _point_trace(point, name, {}, unit)
-    k = MAP_TRACE[name]
-    patch["data"][k]["x"] = list(trace.x)
-    patch["data"][k]["y"] = list(trace.y)
-    patch["data"][k]["text"] = list(trace.text)
+def set_markers(patch, best: MapPoint | None, selected: MapPoint | None, unit: str):
+    """Move the best-arc and selected-cell markers of a window-map ``Patch`` (layout only)."""
+    layout = marker_layout(best, selected, unit)
+    patch["layout"]["annotations"] = layout["annotations"]
+    patch["layout"]["shapes"] = layout["shapes"]
     return patch
 
 
@@ -434,7 +497,7 @@ def arc_view_figure(scene: ArcScene) -> go.Figure:
         (scene.departure, theme.DEPARTURE_BODY_COLOR),
         (scene.target, theme.TARGET_BODY_COLOR),
     ):
-        name = track.name.capitalize()
+        name = display_name(track.name)
         if track.orbit is not None:
             traces.append(
                 _line3d(
@@ -448,16 +511,7 @@ def arc_view_figure(scene: ArcScene) -> go.Figure:
                     showlegend=False,
                 )
             )
-        traces.append(
-            _line3d(
-                track.path,
-                f"{name} during transfer",
-                color,
-                3.0,
-                hovertemplate=hover,
-                legendgroup=name,
-            )
-        )
+        traces.append(_line3d(track.path, name, color, 3.0, hovertemplate=hover, legendgroup=name))
         traces.append(
             _point3d(
                 track.at_departure,
@@ -467,6 +521,7 @@ def arc_view_figure(scene: ArcScene) -> go.Figure:
                 6,
                 hovertemplate=hover,
                 legendgroup=name,
+                showlegend=False,
             )
         )
         traces.append(
@@ -478,12 +533,18 @@ def arc_view_figure(scene: ArcScene) -> go.Figure:
                 6,
                 hovertemplate=hover,
                 legendgroup=name,
+                showlegend=False,
             )
         )
     if len(scene.arc):
         traces.append(
             _line3d(scene.arc, "transfer arc", theme.TRANSFER_ARC_COLOR, 5.0, hovertemplate=hover)
         )
+    pieces = [scene.arc, scene.departure.path, scene.target.path]
+    pieces += [t.orbit for t in (scene.departure, scene.target) if t.orbit is not None]
+    z_values = np.concatenate([np.abs(p[:, 2]) for p in pieces if len(p)] or [np.zeros(1)])
+    z_extent = float(np.nanmax(z_values)) if np.isfinite(z_values).any() else 0.0
+    z_half = max(0.3 * extent, 1.15 * z_extent, scene.central_radius * 1.1)
     axis = {
         "range": [-extent, extent],
         "showbackground": False,
@@ -494,22 +555,31 @@ def arc_view_figure(scene: ArcScene) -> go.Figure:
     fig = go.Figure(data=traces)
     fig.update_layout(
         **theme.base_layout(
-            title={"text": scene.title, "x": 0.01, "font": {"size": theme.TITLE_SIZE}},
-            margin={"l": 0, "r": 0, "t": 36, "b": 0},
+            title={
+                "text": f"{scene.title}<br><span style='font-size:11px;color:{theme.INK_MUTED}'>"
+                "● at departure  ◆ at arrival; dotted: one full orbit</span>",
+                "x": 0.01,
+                "font": {"size": theme.TITLE_SIZE},
+            },
+            margin={"l": 0, "r": 0, "t": 56, "b": 4},
             legend={
+                "orientation": "h",
                 "x": 0.0,
                 "y": 0.0,
                 "yanchor": "bottom",
-                "font": {"size": 10},
-                "bgcolor": "rgba(255,255,255,0.75)",
+                "font": {"size": 11},
+                "bgcolor": "rgba(255,255,255,0)",
             },
             scene={
+                "domain": {"x": [0.0, 1.0], "y": [0.08, 1.0]},
                 "xaxis": {**axis, "title": {"text": f"x ({unit})"}},
                 "yaxis": {**axis, "title": {"text": f"y ({unit})"}},
-                "zaxis": {**axis, "title": {"text": f"z ({unit})"}},
-                "aspectmode": "cube",
+                "zaxis": {**axis, "range": [-z_half, z_half], "title": {"text": f"z ({unit})"}},
+                # Equal scales on all axes: the box's proportions follow its ranges.
+                "aspectmode": "manual",
+                "aspectratio": {"x": 1.0, "y": 1.0, "z": z_half / extent},
                 "camera": {
-                    "eye": {"x": 0.35, "y": -1.45, "z": 0.95},
+                    "eye": {"x": 0.3, "y": -1.2, "z": 0.8},
                     "up": {"x": 0, "y": 0, "z": 1},
                 },
             },
@@ -521,6 +591,11 @@ def arc_view_figure(scene: ArcScene) -> go.Figure:
 
 # ---------------------------------------------------------------------------------------------
 # Family chart
+
+
+def _tau_span(data: FamilyData) -> float:
+    taus = [c.tau for c in data.curves if c.tau.size]
+    return float(np.nanmax(np.concatenate(taus))) if taus else 1.0
 
 
 def family_chart_figure(data: FamilyData) -> go.Figure:
@@ -625,8 +700,9 @@ def family_chart_figure(data: FamilyData) -> go.Figure:
                 "text": p.label,
                 "showarrow": True,
                 "arrowhead": 0,
-                "ax": 30,
+                "ax": -40 if p.tau > 0.55 * _tau_span(data) else 40,
                 "ay": -36,
+                "xanchor": "right" if p.tau > 0.55 * _tau_span(data) else "left",
                 "font": {"size": 10, "color": theme.INK},
                 "bgcolor": "rgba(255,255,255,0.85)",
                 "bordercolor": theme.RULE,
@@ -637,16 +713,29 @@ def family_chart_figure(data: FamilyData) -> go.Figure:
     fig = go.Figure(data=traces)
     fig.update_layout(
         **theme.base_layout(
-            title={"text": data.title, "x": 0.01, "font": {"size": theme.TITLE_SIZE}},
-            margin={"l": 64, "r": 12, "t": 36, "b": 50},
+            title={
+                "text": f"{data.title}<br><span style='font-size:11px;color:{theme.INK_MUTED}'>"
+                "solid: before the minimum-energy time · dashed: after · dash-dot: hyperbolic"
+                "</span>",
+                "x": 0.01,
+                "font": {"size": theme.TITLE_SIZE},
+            },
+            margin={"l": 64, "r": 12, "t": 60, "b": 96},
             xaxis=theme.axis_style(
-                title={"text": "normalized time τ = t·√(μ / a_m³)"}, range=[0.0, tau_hi]
+                title={"text": "normalized time τ = t·√(μ / a<sub>m</sub>³)"}, range=[0.0, tau_hi]
             ),
             yaxis=theme.axis_style(
-                title={"text": "normalized energy ε = −a_m / a"},
+                title={"text": "normalized energy ε = −a<sub>m</sub> / a"},
                 range=[-1.08, max(eps_hi, 0.2) * 1.04],
             ),
-            legend={"x": 0.99, "xanchor": "right", "y": 0.99, "font": {"size": 10}},
+            legend={
+                "orientation": "h",
+                "x": 0.0,
+                "y": -0.2,
+                "yanchor": "top",
+                "font": {"size": 10},
+                "bgcolor": "rgba(255,255,255,0)",
+            },
             annotations=annotations,
             hovermode="closest",
         )
@@ -660,8 +749,10 @@ __all__ = [
     "colour_range",
     "family_chart_figure",
     "map_metric_patch",
+    "marker_layout",
     "nice_step",
-    "set_point",
+    "set_markers",
     "tof_lines",
+    "typed_array",
     "window_map_figure",
 ]

@@ -7,9 +7,9 @@ progress and may cancel it (the job's progress callback then raises
 ``solver.window.Cancelled``). Two viewers who ask for the same grid share one job.
 
 Why a thread and not a task queue: the grid engine spends its time in numpy and compiled
-kernels, a single server process serves a team, and a thread needs no broker, no extra process
-and no extra dependency. Between chunks of departure dates the engine returns to Python, where
-other viewers' requests are served and cancellation is checked.
+kernels that let other threads run, a single server process serves a team, and a thread needs no
+broker, no extra process and no extra dependency. Cancellation is checked between chunks of
+departure dates, when the engine reports progress.
 """
 
 from __future__ import annotations

@@ -8,6 +8,8 @@ take the same path.
 
 from __future__ import annotations
 
+import re
+
 from dash import dcc, html
 
 from solver.timescales import FUTURE_UTC_NOTE
@@ -180,6 +182,7 @@ def date_controls() -> html.Section:
             ],
             className="aw-pair",
         ),
+        html.Div(id="text-step-hint", className="aw-small"),
         html.Div(FUTURE_UTC_NOTE, className="aw-small aw-note"),
     )
 
@@ -294,7 +297,6 @@ def download_controls() -> html.Section:
 def controls() -> html.Aside:
     return html.Aside(
         [
-            html.Div(id="div-message-view", className="aw-message", role="alert"),
             case_controls(),
             body_controls(),
             date_controls(),
@@ -307,12 +309,18 @@ def controls() -> html.Aside:
     )
 
 
-def _graph(graph_id: str, filename: str, class_name: str):
+MAP_HEIGHT_PX = 560
+VIEW_HEIGHT_PX = 430
+
+
+def _graph(graph_id: str, filename: str, height_px: int):
+    # The height goes on the graph itself: plotly sizes its plot to this box when it first
+    # draws, and a box sized later by a style sheet would leave it drawn too small.
     return dcc.Graph(
         id=graph_id,
         figure=theme.empty_figure("Loading…"),
         config=theme.graph_config(filename),
-        className=class_name,
+        style={"height": f"{height_px}px"},
     )
 
 
@@ -327,6 +335,13 @@ def map_card() -> html.Div:
                     ),
                     html.Span(id="text-grid-progress", className="aw-progress-text"),
                     html.Button(
+                        "Compute again",
+                        id="button-grid-retry",
+                        className="aw-button aw-button-small",
+                        n_clicks=0,
+                        style={"display": "none"},
+                    ),
+                    html.Button(
                         "Cancel",
                         id="button-grid-cancel",
                         className="aw-button aw-button-small",
@@ -337,7 +352,7 @@ def map_card() -> html.Div:
                 className="aw-progress",
                 style={"display": "none"},
             ),
-            _graph("graph-window-map", "window_map", "aw-graph-map"),
+            _graph("graph-window-map", "window_map", MAP_HEIGHT_PX),
             html.Div(
                 "Click a cell to inspect its arc. Drag on the map to zoom; double-click to reset.",
                 className="aw-small aw-hint",
@@ -391,11 +406,11 @@ def views() -> html.Section:
             html.Div(
                 [
                     html.Div(
-                        _graph("graph-arc-view", "arc_view", "aw-graph-half"),
+                        _graph("graph-arc-view", "arc_view", VIEW_HEIGHT_PX),
                         className="aw-card",
                     ),
                     html.Div(
-                        _graph("graph-family-chart", "family_chart", "aw-graph-half"),
+                        _graph("graph-family-chart", "family_chart", VIEW_HEIGHT_PX),
                         className="aw-card",
                     ),
                 ],
@@ -439,14 +454,18 @@ def page() -> html.Div:
             stores(),
             header(),
             caution(),
+            html.Div(id="div-message-view", className="aw-message aw-message-bar", role="alert"),
             html.Main([controls(), views()], className="aw-main"),
         ],
         className="aw-page",
     )
 
 
+_NUMBER_RE = re.compile(r"^[-+−]?[\d,]*\.?\d+(\s*\(.*\))?$")
+
+
 def details_children(sections: list[tuple[str, list[DetailRow]]], note: str = "") -> list:
-    """The details panel's content: one compact table per section."""
+    """The details panel's content: one compact table per section (numbers right-aligned)."""
     out: list = []
     if note:
         out.append(html.Div(note, className="aw-small aw-details-note"))
@@ -459,7 +478,12 @@ def details_children(sections: list[tuple[str, list[DetailRow]]], note: str = ""
                         html.Tr(
                             [
                                 html.Th(r.label),
-                                html.Td(r.value, className="aw-num"),
+                                html.Td(
+                                    r.value.replace("T", " ").rstrip("Z")
+                                    if r.unit == "UTC"
+                                    else r.value,
+                                    className="aw-num" if _NUMBER_RE.match(r.value) else "aw-text",
+                                ),
                                 html.Td(r.unit, className="aw-unit"),
                             ]
                         )

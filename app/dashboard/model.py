@@ -11,6 +11,7 @@ from __future__ import annotations
 import math
 import threading
 from collections import OrderedDict
+from concurrent.futures import Future, ThreadPoolExecutor, TimeoutError
 from dataclasses import dataclass, replace
 from typing import Any
 
@@ -21,7 +22,16 @@ from solver.cache import GridCache
 from solver.case import Case
 from solver.errors import InputError
 from solver.timescales import utc_to_jd_tdb
-from solver.window import Arc, CaseBodies, WindowGrid, grid_axes, select_arc, solve_cell
+from solver.window import (
+    METRICS,
+    Arc,
+    CaseBodies,
+    WindowGrid,
+    grid_axes,
+    select_arc,
+    solve_cell,
+    window_cache_key,
+)
 
 from . import figures
 from .cases import CaseCatalogue
@@ -33,11 +43,12 @@ from .prepare import (
     MapPoint,
     arc_details,
     arc_scene,
+    display_name,
     family_data,
-    grid_best_point,
     jd_tdb_to_unix_ms,
     map_data,
     map_point,
+    shown_slot,
     utc_text,
 )
 from .shortlist import Shortlist
@@ -50,11 +61,6 @@ from .state import (
     plot_x_to_unix_ms,
     unix_days_to_iso,
 )
-
-try:  # off-grid refinement of the best arc (solver/refine.py, on main)
-    from solver.refine import refine_best as _refine_best
-except ImportError:  # until it is merged, the best arc is the best grid node
-    _refine_best = None
 
 _MEMO_SIZE = 32
 _MS_PER_DAY = 86_400_000.0
@@ -91,10 +97,110 @@ class Selection:
     arcs: list[Arc]
     arc: Arc
     is_best: bool
+    refined: bool = True  # False: the best arc's grid node, while its refinement runs
 
 
 def _jd(text: str, field: str) -> float:
     return float(utc_to_jd_tdb(text, field=field))
+
+
+_SNAP_DAYS = 1.0 / 86400.0
+
+
+def _snap(jd_tdb: float, axis: np.ndarray) -> float:
+    """The grid node a date names, when it is within a second of one.
+
+    Links carry dates in UTC to the second, while grid nodes are evenly spaced in TDB, so a
+    node's UTC text is a few milliseconds off the node; snapping makes a selected cell's numbers
+    those of the grid cell exactly. Other dates are kept as given.
+    """
+    k = int(np.argmin(np.abs(axis - jd_tdb)))
+    return float(axis[k]) if abs(axis[k] - jd_tdb) < _SNAP_DAYS else jd_tdb
+
+
+def grid_best_arc(
+    case: Case, grid: WindowGrid, metric: str, arcs: str, bodies: CaseBodies
+) -> Arc | None:
+    """The best arc within limits among the arcs shown, at its grid node (None if no arc of
+    the grid is within limits)."""
+    slot = shown_slot(grid, arcs)
+    values = grid.metric(metric)
+    if METRICS[metric].rank_by_magnitude:
+        values = np.abs(values)
+    within = grid.within if slot is None else grid.within[..., slot : slot + 1]
+    values = values if slot is None else values[..., slot : slot + 1]
+    score = np.where(within, values, np.inf)
+    if not np.isfinite(score).any():
+        return None
+    i, j, k = np.unravel_index(int(np.argmin(score)), score.shape)
+    k = k if slot is None else slot
+    revolutions = int(grid.revolutions[k])
+    branch = ("single", "low", "high")[int(grid.branch[k])]
+    cell = solve_cell(case, grid.departure_jd_tdb[i], grid.arrival_jd_tdb[j], bodies)
+    return select_arc(cell, revolutions, branch, metric)
+
+
+class BestArcs:
+    """Best arcs by (grid, metric, arcs shown): the grid node at once, refined in the background.
+
+    Refining the best arc off the grid (``solver.refine``) takes from a tenth of a second to
+    several seconds depending on the metric, too long to hold a click or a metric change; so
+    callers get the grid node's arc while a worker thread refines it, and pick the refined arc
+    up on a later poll.
+    """
+
+    def __init__(self) -> None:
+        self._nodes = _Memo(64)
+        self._refined = _Memo(64)
+        self._pending: dict[tuple, Future] = {}
+        self._lock = threading.Lock()
+        self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="arcwindow-refine")
+
+    def get(self, case, grid, metric, arcs, bodies) -> tuple[Arc | None, bool]:
+        """(best arc, refined?) now; starts the refinement if it has not started."""
+        key = (window_cache_key(grid.case), metric, arcs)
+        refined = self._refined.get(key)
+        if refined is not None:
+            return refined or None, True
+        self._start(key, case, grid, metric, arcs)
+        node = self._nodes.get(key)
+        if node is None:
+            node = self._nodes.put(key, grid_best_arc(case, grid, metric, arcs, bodies) or False)
+        return node or None, False
+
+    def _start(self, key, case, grid, metric, arcs) -> None:
+        with self._lock:
+            if key in self._pending:
+                return
+            self._pending[key] = self._pool.submit(self._refine, key, case, grid, metric, arcs)
+
+    def _refine(self, key, case, grid, metric, arcs) -> None:
+        from solver.refine import refine_best  # scipy.optimize: imported when first needed
+
+        revolutions, branch = parse_arcs(arcs)
+        try:
+            arc = refine_best(case, grid, metric, revolutions=revolutions, branch=branch).arc
+        except InputError:
+            arc = None  # no arc of the grid within limits
+        except Exception:  # keep the grid node rather than lose the page to a failed refinement
+            arc = self._nodes.get(key) or None
+        self._refined.put(key, arc or False)
+        with self._lock:
+            self._pending.pop(key, None)
+
+    def wait(self, case, grid, metric, arcs, timeout_s: float) -> None:
+        """Wait up to ``timeout_s`` for a pending refinement (tests and the benchmark)."""
+        key = (window_cache_key(grid.case), metric, arcs)
+        with self._lock:
+            future = self._pending.get(key)
+        if future is not None:
+            try:
+                future.result(timeout=timeout_s)
+            except TimeoutError:
+                pass
+
+    def shutdown(self) -> None:
+        self._pool.shutdown(wait=False, cancel_futures=True)
 
 
 class DashboardModel:
@@ -105,7 +211,7 @@ class DashboardModel:
         self.catalogue = CaseCatalogue(settings.cases_dir, settings.uploads_dir)
         self.grids = store or GridStore(GridCache(settings.cache_dir))
         self.shortlist = Shortlist(settings.shortlist_path)
-        self._best = _Memo()
+        self.best = BestArcs()
         self._map = _Memo(8)
         self._bodies = _Memo()
 
@@ -184,55 +290,39 @@ class DashboardModel:
         hit = self._bodies.get(key)
         return hit if hit is not None else self._bodies.put(key, CaseBodies.of(case))
 
-    def best_arc(self, case: Case, grid: WindowGrid, metric: str, arcs: str) -> Arc | None:
-        """The best arc within limits among the arcs shown: refined off the grid when the
-        engine offers it, else the best grid node, solved exactly."""
-        key = (grid.provenance.get("case_hash"), id(grid), metric, arcs)
-        hit = self._best.get(key)
-        if hit is not None:
-            return hit or None
-        revolutions, branch = parse_arcs(arcs)
-        arc = None
-        if _refine_best is not None:
-            from .prepare import shown_slot
+    def best_arc(
+        self, case: Case, grid: WindowGrid, metric: str, arcs: str
+    ) -> tuple[Arc | None, bool]:
+        """(best arc within limits among the arcs shown, refined?): the grid node's arc until
+        the background refinement has finished (None if no arc is within limits)."""
+        return self.best.get(case, grid, metric, arcs, self.bodies(case))
 
-            arc = _refine_best(case, grid, metric, slot=shown_slot(grid, arcs))
-        else:
-            point = grid_best_point(grid, metric, arcs)
-            if point is not None:
-                i = int(
-                    np.argmin(np.abs(jd_tdb_to_unix_ms(grid.departure_jd_tdb) - point.departure_ms))
-                )
-                j = int(
-                    np.argmin(np.abs(jd_tdb_to_unix_ms(grid.arrival_jd_tdb) - point.arrival_ms))
-                )
-                cell = solve_cell(
-                    case, grid.departure_jd_tdb[i], grid.arrival_jd_tdb[j], self.bodies(case)
-                )
-                arc = select_arc(cell, revolutions, branch, metric)
-        self._best.put(key, arc or False)
-        return arc
+    def shutdown(self) -> None:
+        """Stop the worker threads (tests and benchmarks that build many models)."""
+        self.grids.shutdown()
+        self.best.shutdown()
 
     def selection(self, view: ViewState, case: Case, grid: WindowGrid | None) -> Selection | None:
         """The selected cell's arcs and the arc shown (None while the best arc awaits its grid)."""
         revolutions, branch = parse_arcs(view.arcs)
         if view.selected:
-            dep = _jd(view.selected[0], "selected departure")
-            arr = _jd(view.selected[1], "selected arrival")
+            dep_axis, arr_axis = grid_axes(case)
+            dep = _snap(_jd(view.selected[0], "selected departure"), dep_axis)
+            arr = _snap(_jd(view.selected[1], "selected arrival"), arr_axis)
             arcs = solve_cell(case, dep, arr, self.bodies(case))
             return Selection(arcs, select_arc(arcs, revolutions, branch, view.metric), False)
         if grid is None:
             return None
-        best = self.best_arc(case, grid, view.metric, view.arcs)
+        best, refined = self.best_arc(case, grid, view.metric, view.arcs)
         if best is None:
             return None
         arcs = solve_cell(case, best.departure_jd_tdb, best.arrival_jd_tdb, self.bodies(case))
-        return Selection(arcs, select_arc(arcs, revolutions, branch, view.metric), True)
+        return Selection(arcs, select_arc(arcs, revolutions, branch, view.metric), True, refined)
 
     # -- figures ---------------------------------------------------------------------------
     def _points(self, view: ViewState, case: Case, grid: WindowGrid):
-        best_arc = self.best_arc(case, grid, view.metric, view.arcs)
-        label = "best arc" + (" (refined)" if _refine_best is not None else " (grid node)")
+        best_arc, refined = self.best_arc(case, grid, view.metric, view.arcs)
+        label = "best arc" if refined else "best arc (grid node; refining)"
         best = map_point(best_arc, view.metric, label) if best_arc is not None else None
         selected = None
         if view.selected:
@@ -244,12 +334,16 @@ class DashboardModel:
             )
         elif best is not None:
             selected = replace(best, label="selected (best arc)")
-        return best, selected
+        return best, selected, refined
+
+    def best_refined(self, view: ViewState, case: Case, grid: WindowGrid) -> bool:
+        """Whether the best arc of a view has been refined (without starting anything new)."""
+        return self.best_arc(case, grid, view.metric, view.arcs)[1]
 
     def map_figure(self, view: ViewState, case: Case, grid: WindowGrid) -> go.Figure:
         """The full window map for a view whose grid is ready."""
-        best, selected = self._points(view, case, grid)
-        key = (id(grid), view.metric, view.arcs)
+        best, selected, _ = self._points(view, case, grid)
+        key = (window_cache_key(grid.case), view.metric, view.arcs)
         data = self._map.get(key)
         if data is None:
             data = self._map.put(
@@ -262,24 +356,21 @@ class DashboardModel:
         from .state import metric_label
 
         return (
-            f"{metric_label(view.metric)} — {case.departure_body.capitalize()} to "
-            f"{case.target_body.capitalize()}"
+            f"{metric_label(view.metric)} — {display_name(case.departure_body)} to "
+            f"{display_name(case.target_body)}"
         )
 
     def map_patch(self, patch, view: ViewState, case: Case, grid: WindowGrid, metric_changed: bool):
         """Fill a ``dash.Patch`` of the shown map: markers only, or a new metric as well."""
-        best, selected = self._points(view, case, grid)
-        if metric_changed:
-            key = (id(grid), view.metric, view.arcs)
+        best, selected, _ = self._points(view, case, grid)
+        if metric_changed:  # the caller checked that the cells keep their arcs
+            key = (window_cache_key(grid.case), view.metric, view.arcs)
             data = self._map.get(key) or self._map.put(
                 key, map_data(grid, view.metric, view.arcs, max_points=DISPLAY_MAX_POINTS)
             )
             data = replace(data, best=best, selected=selected, title=self.map_title(view, case))
             return figures.map_metric_patch(patch, data)
-        unit = ""
-        figures.set_point(patch, "best", best, unit)
-        figures.set_point(patch, "selected", selected, unit)
-        return patch
+        return figures.set_markers(patch, best, selected, METRICS[view.metric].unit)
 
     def preview_figure(self, view: ViewState, case: Case, dep_days, arr_days) -> go.Figure:
         """A coarse window map for slider positions being dragged (InputError if refused)."""

@@ -40,20 +40,24 @@ DISPLAY_MAX_POINTS = 600
 """Largest number of heat-map columns or rows sent to the browser. A map panel is about 900 x
 520 pixels; more points than pixels only cost transfer time. Clicks map back to exact dates."""
 
+CONTOUR_MAX_POINTS = 160
+"""Grid size per axis that contour lines are traced on: the browser traces contours itself and
+its time grows with the cell count; lines drawn from 160 x 160 cells are smooth at map size."""
+
 PREVIEW_MAX_POINTS = 60
 """Grid size per axis of the coarse preview computed while a date slider is dragged."""
 
 _UNIX_EPOCH_JD = 2440587.5
 _MS_PER_DAY = 86_400_000.0
 
-# The numbers every heat-map cell carries for its hover label: (metric column, label, unit, format)
+# The numbers every heat-map cell carries for its hover label: (metric column, label, unit,
+# format). Six float32 numbers a cell: the departure and arrival parts of the total Δv are in the
+# details panel of a clicked cell, which keeps a 600 x 600 map under 12 MB.
 HOVER_FIELDS: tuple[tuple[str, str, str, str], ...] = (
     ("tof_days", "TOF", "days", ".1f"),
     ("c3_km2_s2", "C3", "km²/s²", ".2f"),
     ("dla_deg", "DLA", "deg", ".1f"),
     ("vinf_arrival_km_s", "arrival v∞", "km/s", ".3f"),
-    ("dv_departure_km_s", "departure Δv", "km/s", ".3f"),
-    ("dv_arrival_km_s", "arrival Δv", "km/s", ".3f"),
     ("dv_total_km_s", "total Δv", "km/s", ".3f"),
     ("transfer_angle_deg", "transfer angle", "deg", ".1f"),
 )
@@ -71,10 +75,17 @@ LIMIT_OF_METRIC = {
 
 
 def jd_tdb_to_unix_ms(jd_tdb: NDArray[np.float64] | float) -> NDArray[np.float64]:
-    """JD TDB to milliseconds since 1970-01-01 UTC (the plot's date coordinate)."""
+    """JD TDB to milliseconds since 1970-01-01 UTC (the plot's date coordinate), to the
+    millisecond: a float64 JD carries ~20 microseconds, so a midnight node would otherwise read
+    as 23:59:59.997 on a date axis."""
     day, frac = split_jd(np.asarray(jd_tdb, dtype=float))
     utc1, utc2 = tdb_jd_to_utc_jd(day, frac)
-    return ((utc1 - _UNIX_EPOCH_JD) + utc2) * _MS_PER_DAY
+    return np.round(((utc1 - _UNIX_EPOCH_JD) + utc2) * _MS_PER_DAY)
+
+
+def display_name(name: str) -> str:
+    """A body's name for the screen: built-in names capitalised, element bodies as written."""
+    return name if any(c.isupper() for c in name) else name.capitalize()
 
 
 def utc_text(jd_tdb: float) -> str:
@@ -105,23 +116,38 @@ class MapPoint:
 
 
 @dataclass(frozen=True)
-class MapData:
-    """What the window map draws.
-
-    Shapes: ``nx`` departure dates (columns), ``ny`` arrival dates (rows).
+class MapLayer:
+    """One sampling of the map: the cells drawn at some resolution.
 
     Attributes
     ----------
     departure_ms : (nx,)  arrival_ms : (ny,)
-        Plot coordinates of the display columns and rows.
+        Plot coordinates of the sampled columns and rows.
     values : (ny, nx) float32
         The metric on the arcs shown (|value| for DLA), NaN where a cell has none.
-    outside : (ny, nx) bool
-        Cells whose arc exists but breaks a limit.
     transfer_angle_deg : (ny, nx) float32
         For the Type I / Type II boundary.
-    hover : (ny, nx, len(HOVER_FIELDS)) float32
-        Every number of a cell, for its hover label.
+    """
+
+    departure_ms: NDArray[np.float64]
+    arrival_ms: NDArray[np.float64]
+    values: NDArray[np.float32]
+    transfer_angle_deg: NDArray[np.float32]
+
+
+@dataclass(frozen=True)
+class MapData:
+    """What the window map draws.
+
+    ``heat`` is sampled at up to ``DISPLAY_MAX_POINTS`` per axis; ``lines`` (contours and the
+    Type boundary, which the browser traces itself) at up to ``CONTOUR_MAX_POINTS``.
+
+    Attributes
+    ----------
+    outside : (ny, nx) bool
+        Cells of ``heat`` whose arc exists but breaks a limit.
+    hover : (ny, nx, len(HOVER_FIELDS)) float32 or None
+        Every number of a ``heat`` cell, for its hover label (None for previews).
     arc_text : (ny, nx) str or None
         Which arc a cell shows, when the case has several per cell.
     """
@@ -129,11 +155,9 @@ class MapData:
     metric: str
     metric_label: str
     unit: str
-    departure_ms: NDArray[np.float64]
-    arrival_ms: NDArray[np.float64]
-    values: NDArray[np.float32]
+    heat: MapLayer
+    lines: MapLayer
     outside: NDArray[np.bool_]
-    transfer_angle_deg: NDArray[np.float32]
     hover: NDArray[np.float32] | None
     arc_text: NDArray[np.str_] | None
     limit: float | None
@@ -145,6 +169,19 @@ class MapData:
     arcs_label: str = ""
     preview: bool = False
     title: str = ""
+
+    # The heat layer's axes, used by the markers, TOF lines and ranges.
+    @property
+    def departure_ms(self) -> NDArray[np.float64]:
+        return self.heat.departure_ms
+
+    @property
+    def arrival_ms(self) -> NDArray[np.float64]:
+        return self.heat.arrival_ms
+
+    @property
+    def values(self) -> NDArray[np.float32]:
+        return self.heat.values
 
 
 def shown_slot(grid: WindowGrid, arcs: str) -> int | None:
@@ -159,12 +196,51 @@ def shown_slot(grid: WindowGrid, arcs: str) -> int | None:
     return 0
 
 
+class _Sampler:
+    """Values of the arcs shown in a set of sampled cells (display orientation: rows are
+    arrival dates)."""
+
+    def __init__(self, grid: WindowGrid, slot: int | None, slot_per_cell, max_points: int):
+        self.grid = grid
+        self.slot = slot
+        self.i = display_indices(len(grid.departure_jd_tdb), max_points)
+        self.j = display_indices(len(grid.arrival_jd_tdb), max_points)
+        self.cells = np.ix_(self.i, self.j)
+        self.slot_shown = slot_per_cell[self.cells]
+        self.exists = self.slot_shown >= 0
+
+    def field(self, name: str) -> NDArray[np.float32]:
+        grid, cells = self.grid, self.cells
+        if name in ("tof_days", "transfer_angle_deg"):
+            values = getattr(grid, name)[cells]
+        elif self.slot is None:
+            picked = np.take_along_axis(
+                grid.metric(name)[cells], np.maximum(self.slot_shown, 0)[..., None], -1
+            )
+            values = picked[..., 0]
+        else:
+            values = grid.metric(name)[(*cells, self.slot)]
+        return np.where(self.exists, values, np.nan).T.astype(np.float32)
+
+    def layer(self, metric: str) -> MapLayer:
+        values = self.field(metric)
+        if METRICS[metric].rank_by_magnitude:
+            values = np.abs(values)
+        return MapLayer(
+            departure_ms=jd_tdb_to_unix_ms(self.grid.departure_jd_tdb[self.i]),
+            arrival_ms=jd_tdb_to_unix_ms(self.grid.arrival_jd_tdb[self.j]),
+            values=values,
+            transfer_angle_deg=self.field("transfer_angle_deg"),
+        )
+
+
 def map_data(
     grid: WindowGrid,
     metric: str,
     arcs: str = "best",
     *,
     max_points: int = DISPLAY_MAX_POINTS,
+    contour_points: int = CONTOUR_MAX_POINTS,
     best: MapPoint | None = None,
     selected: MapPoint | None = None,
     preview: bool = False,
@@ -178,32 +254,11 @@ def map_data(
     else:
         slot_per_cell = np.where(grid.converged[..., slot], slot, -1)
         within = grid.within[..., slot]
-    i = display_indices(len(grid.departure_jd_tdb), max_points)
-    j = display_indices(len(grid.arrival_jd_tdb), max_points)
-    cells = np.ix_(i, j)
-    slot_shown = slot_per_cell[cells]
-    exists = slot_shown >= 0
-    rank = METRICS[metric].rank_by_magnitude
-
-    def field(name: str) -> NDArray[np.float32]:
-        """(ny, nx) values of a metric on the arcs shown in the display cells."""
-        if name in ("tof_days", "transfer_angle_deg"):
-            values = getattr(grid, name)[cells]
-        elif slot is None:
-            picked = np.take_along_axis(
-                grid.metric(name)[cells], np.maximum(slot_shown, 0)[..., None], -1
-            )
-            values = picked[..., 0]
-        else:
-            values = grid.metric(name)[(*cells, slot)]
-        return np.where(exists, values, np.nan).T.astype(np.float32)
-
-    values = field(metric)
-    if rank:
-        values = np.abs(values)
+    heat = _Sampler(grid, slot, slot_per_cell, max_points)
+    lines = _Sampler(grid, slot, slot_per_cell, min(contour_points, max_points))
     hover = None
     if not preview:
-        hover = np.stack([field(name) for name, *_ in HOVER_FIELDS], axis=-1)
+        hover = np.stack([heat.field(name) for name, *_ in HOVER_FIELDS], axis=-1)
     arc_text = None
     if len(grid.revolutions) > 1:
         labels = np.array(
@@ -213,22 +268,18 @@ def map_data(
             ]
             + ["no arc"]
         )
-        arc_text = labels[np.where(exists, slot_shown, -1)].T
+        arc_text = labels[np.where(heat.exists, heat.slot_shown, -1)].T
     limit_name = LIMIT_OF_METRIC.get(metric)
     limit = getattr(grid.case.limits, limit_name) if limit_name else None
     m = METRICS[metric]
-    label = f"|{m.label}|" if rank else m.label
+    rank = m.rank_by_magnitude
     return MapData(
         metric=metric,
-        metric_label=label,
+        metric_label=f"|{m.label}|" if rank else m.label,
         unit=m.unit,
-        departure_ms=jd_tdb_to_unix_ms(grid.departure_jd_tdb[i]),
-        arrival_ms=jd_tdb_to_unix_ms(grid.arrival_jd_tdb[j]),
-        values=values,
-        outside=(exists & ~within[cells]).T,
-        transfer_angle_deg=np.where(exists, grid.transfer_angle_deg[cells], np.nan).T.astype(
-            np.float32
-        ),
+        heat=heat.layer(metric),
+        lines=lines.layer(metric),
+        outside=(heat.exists & ~within[heat.cells]).T,
         hover=hover,
         arc_text=arc_text,
         limit=limit,
@@ -271,34 +322,6 @@ def map_point(arc: Arc, metric: str, label: str) -> MapPoint:
     )
 
 
-def grid_best_point(grid: WindowGrid, metric: str, arcs: str) -> MapPoint | None:
-    """The grid node holding the best arc within limits among the arcs shown, or None."""
-    slot = shown_slot(grid, arcs)
-    if slot is None:
-        found = grid.best_cell(metric)
-        if found is None:
-            return None
-        i, j, k = found
-    else:
-        values = grid.metric(metric)[..., slot]
-        if METRICS[metric].rank_by_magnitude:
-            values = np.abs(values)
-        score = np.where(grid.within[..., slot], values, np.inf)
-        if not np.isfinite(score).any():
-            return None
-        i, j = np.unravel_index(int(np.argmin(score)), score.shape)
-        k = slot
-    value = float(grid.metric(metric)[i, j, k])
-    if METRICS[metric].rank_by_magnitude:
-        value = abs(value)
-    return MapPoint(
-        float(jd_tdb_to_unix_ms(grid.departure_jd_tdb[i])),
-        float(jd_tdb_to_unix_ms(grid.arrival_jd_tdb[j])),
-        value,
-        "best arc (grid node)",
-    )
-
-
 # ---------------------------------------------------------------------------------------------
 # Arc view
 
@@ -334,9 +357,13 @@ def _display_frame(bodies: CaseBodies):
     if central.key == "sun":
         return ECLIPTIC, "ecliptic J2000", AU_KM, "au"
     if central.key == "earth" or not math.isfinite(central.pole_ra_deg):
-        return ICRF, f"{central.name.capitalize()} equator (ICRF)", 1000.0, "10³ km"
+        return ICRF, f"{display_name(central.name)} equator (ICRF)", 1000.0, "10³ km"
     frame = equator_frame(central.pole_ra_deg, central.pole_dec_deg, central.key)
-    return frame, f"{central.name.capitalize()} equator", 1000.0, "10³ km"
+    return frame, f"{display_name(central.name)} equator", 1000.0, "10³ km"
+
+
+def _tof_text(tof_days: float) -> str:
+    return f"{tof_days * 24.0:.2f} h" if tof_days < 2.0 else f"{tof_days:.1f} days"
 
 
 def _period_s(r_km: NDArray, v_km_s: NDArray, mu: float) -> float:
@@ -400,14 +427,14 @@ def arc_scene(case: Case, arc: Arc, bodies: CaseBodies | None = None) -> ArcScen
     extent = float(np.nanmax(np.abs(np.concatenate(pieces)))) if pieces else 1.0
     radius = bodies.central.radius_km / scale if math.isfinite(bodies.central.radius_km) else 0.0
     return ArcScene(
-        central_name=bodies.central.name.capitalize(),
+        central_name=display_name(bodies.central.name),
         central_radius=radius if radius > 0.01 * extent else 0.0,
         unit=unit,
         plane_label=plane_label,
         arc=arc_xyz,
         departure=dep,
         target=tgt,
-        title=f"{dep.name.capitalize()} to {tgt.name.capitalize()}, {arc.tof_days:.1f} days",
+        title=f"{display_name(dep.name)} to {display_name(tgt.name)}, {_tof_text(arc.tof_days)}",
         extent=extent if math.isfinite(extent) and extent > 0 else 1.0,
     )
 
@@ -542,17 +569,16 @@ def arc_details(
         kind += f" geometry, {arc.revolutions}-revolution"
     status = "within limits" if arc.within else ("outside limits" if arc.ok else "no arc")
     breaches = limit_breaches(case, arc) if arc.ok else []
-    tof_unit = "days"
-    tof_text = _fmt(arc.tof_days, 2)
+    tof_rows = [DetailRow("TOF", _fmt(arc.tof_days, 2 if arc.tof_days >= 2.0 else 4), "days")]
     if arc.tof_days < 2.0:
-        tof_text += f" ({arc.tof_days * 24.0:.2f} h)"
+        tof_rows.append(DetailRow("TOF", _fmt(arc.tof_days * 24.0, 3), "h"))
     sections: list[tuple[str, list[DetailRow]]] = [
         (
             "Arc",
             [
                 DetailRow("departure", utc_text(arc.departure_jd_tdb), "UTC"),
                 DetailRow("arrival", utc_text(arc.arrival_jd_tdb), "UTC"),
-                DetailRow("TOF", tof_text, tof_unit),
+                *tof_rows,
                 DetailRow("transfer angle", _fmt(arc.transfer_angle_deg, 1), "deg"),
                 DetailRow("type", kind),
                 DetailRow("arc", arc_label),
@@ -637,6 +663,7 @@ def arc_details(
 
 
 __all__ = [
+    "CONTOUR_MAX_POINTS",
     "DISPLAY_MAX_POINTS",
     "HOVER_FIELDS",
     "PREVIEW_MAX_POINTS",
@@ -646,12 +673,13 @@ __all__ = [
     "FamilyData",
     "FamilyPoint",
     "MapData",
+    "MapLayer",
     "MapPoint",
     "arc_details",
     "arc_scene",
     "display_indices",
+    "display_name",
     "family_data",
-    "grid_best_point",
     "jd_tdb_to_unix_ms",
     "limit_breaches",
     "map_data",

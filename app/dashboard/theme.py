@@ -48,8 +48,8 @@ CONTOUR_LINE_SCALE: list[list[float | str]] = [
     [0.60, "#f2f2f2"],
     [1.00, "#ffffff"],
 ]
-OUTSIDE_LIMITS_COLOR = "rgba(120, 128, 138, 0.62)"  # grey wash over cells outside the limits
-NO_ARC_COLOR = "#e6e8eb"  # plot background where a cell has no arc at all
+OUTSIDE_LIMITS_COLOR = "rgba(226, 229, 234, 0.86)"  # pale wash: cells outside the limits recede
+NO_ARC_COLOR = "#ffffff"  # plot background where a cell has no arc at all
 TOF_LINE_COLOR = "rgba(40, 48, 60, 0.55)"
 TYPE_BOUNDARY_COLOR = "#0b6e8a"
 BEST_MARKER = {
@@ -71,7 +71,7 @@ DEPARTURE_BODY_COLOR = "#2f6db5"
 TARGET_BODY_COLOR = "#d9822b"
 TRANSFER_ARC_COLOR = "#1d2430"
 CENTRAL_BODY_COLOR = "#e0b43c"
-PLANET_SURFACE_COLOR = "#7a9cc6"
+PLANET_SURFACE_COLOR = "#aab4c3"
 REFERENCE_PLANE_COLOR = "#8a94a3"
 
 # Family chart: one hue per revolution count (N = 0 darkest), dashes tell the two sides of the
@@ -94,7 +94,7 @@ def base_layout(**overrides) -> dict:
         "plot_bgcolor": PAPER,
         "margin": {"l": 60, "r": 20, "t": 36, "b": 50},
         "hoverlabel": {
-            "font": {"family": FONT_FAMILY, "size": FONT_SIZE},
+            "font": {"family": FONT_FAMILY, "size": FONT_SIZE, "color": INK},
             "bgcolor": "#ffffff",
             "bordercolor": RULE,
         },
