@@ -344,6 +344,10 @@ def test_bw05_shortlist_entry_appears_in_another_context(server, tabs):
     row.wait_for()
     assert CELL[0] in row.inner_text() and "RM" in row.inner_text()
     viewer.shot("seen")
+    # The entry's link opens its arc in the viewer's page.
+    row.get_by_role("link", name="open").click()
+    wait_details(viewer.page, f"{CELL[0]} 00:00:00", f"{CELL[1]} 00:00:00")
+    viewer.shot("opened")
 
 
 def test_bw06_bad_upload_and_bad_limit_show_messages_and_page_keeps_working(server, tabs, tmp_path):

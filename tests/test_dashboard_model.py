@@ -336,3 +336,48 @@ def test_callbacks_over_http_open_click_and_change_metric(tmp_path):
     figure = reply["response"]["graph-window-map"]["figure"]
     assert status == 200 and "__dash_patch_update" in figure  # a patch, not the whole map
     model.shutdown()
+
+
+DOWNLOADS = [  # button, file-name ending, how the file starts
+    ("button-download-grid-csv", "_grid.csv", "departure_utc"),
+    ("button-download-arc-oem", "_arc.oem", "CCSDS_OEM_VERS"),
+    ("button-download-arc-json", "_arc.json", "{"),
+    ("button-download-family-html", "_family.html", "<!doctype html>"),
+]
+
+
+def test_downloads_of_grid_arc_and_figure(tmp_path):
+    from app.bench.dashboard_bench import DashClient, _test_client_transport
+
+    model = DashboardModel(Settings.resolve(tmp_path / "c", tmp_path / "d", SAMPLES))
+    app = create_app(model=model)
+    deps = app.server.test_client().get("/_dash-dependencies").get_json()
+    client = DashClient(_test_client_transport(app), deps)
+    client.open_page("?case=vesper_venus_orbiter&sel=2031-06-01T00:00:00Z~2031-11-01T00:00:00Z")
+    for button, ending, start in DOWNLOADS:
+        client.values[f"{button}.n_clicks"] = 1
+        status, reply = client.call("download-file.data", [f"{button}.n_clicks"])
+        data = reply["response"]["download-file"]["data"]
+        assert status == 200, button
+        assert data["filename"].startswith("Vesper_Venus_orbiter") and data["filename"].endswith(
+            ending
+        )
+        assert data["content"].lstrip().startswith(start), button
+        if ending.endswith(".html"):
+            assert "high-fidelity tools" in data["content"]  # the caution travels with it
+        client.values[f"{button}.n_clicks"] = 0
+    model.shutdown()
+
+
+def test_shortlist_entry_is_recomputed_from_the_view_and_its_link_reopens_it(model):
+    view, _, _ = model.view_from_url(
+        "?case=vesper_venus_orbiter&sel=2031-06-01T00:00:00Z~2031-11-01T00:00:00Z"
+    )
+    entry = model.keep(view, " check the DLA ", "RM")
+    assert (entry.departure_utc, entry.arrival_utc) == view.selected
+    assert entry.metrics["tof_days"] == pytest.approx(153.0)
+    assert entry.note == "check the DLA" and entry.author == "RM"
+    again, _, notes = model.view_from_url(entry.view)
+    assert again.selected == view.selected and not notes
+    with pytest.raises(InputError):
+        model.keep(ViewState(case="no_such_case"), "", "")

@@ -32,7 +32,7 @@ from dash import (
 )
 
 from solver.errors import InputError
-from solver.window import case_hash, window_cache_key
+from solver.window import window_cache_key
 
 from . import layout, theme
 from .exports import arc_json, arc_oem, figure_html, grid_csv, safe_name
@@ -42,7 +42,6 @@ from .prepare import display_name
 from .state import (
     ViewState,
     arc_choices,
-    arcs_value,
     control_values,
     iso_to_unix_days,
     to_query,
@@ -398,7 +397,7 @@ def register(app, model: DashboardModel) -> None:
             arc_fig,
             family_fig,
             layout.details_children(details, note),
-            _selected_store(view, sel, details, query),
+            _selected_store(query, sel),
         )
 
     # ---- uploads -------------------------------------------------------------------------
@@ -432,37 +431,22 @@ def register(app, model: DashboardModel) -> None:
         State("input-shortlist-note", "value"),
         State("input-shortlist-author", "value"),
         State("store-view-state", "data"),
-        State("store-selected-arc", "data"),
         State("store-shortlist-version", "data"),
     )
-    def keep_shortlist(add, removes, tick, note, author, view_data, selected, version):
+    def keep_shortlist(add, removes, tick, note, author, view_data, version):
         trigger = ctx.triggered_id
         note_out, message = no_update, no_update
         shortlist = model.shortlist
         view = ViewState.from_dict(view_data) if view_data else None
         if trigger == "button-shortlist-add" and add:
-            if not selected or view is None or not selected.get("ok"):
-                message = _notes(["Select a cell with an arc first."])
+            try:
+                if view is None:
+                    raise InputError("selected arc", "none", "a selected cell with an arc")
+                model.keep(view, note, author)
+            except InputError as exc:
+                message = _notes([f"Not kept: {exc}"])
             else:
-                case = model.case(view)
-                try:
-                    shortlist.add(
-                        case_id=view.case,
-                        case_title=case.title,
-                        case_hash=case_hash(case),
-                        departure_utc=selected["departure_utc"],
-                        arrival_utc=selected["arrival_utc"],
-                        revolutions=int(selected["revolutions"]),
-                        branch=str(selected["branch"]),
-                        metrics=selected["metrics"],
-                        note=note,
-                        author=author,
-                        view=selected["view"],
-                    )
-                except InputError as exc:
-                    message = _notes([f"Not kept: {exc}"])
-                else:
-                    note_out, message = "", html_ok("Kept in the shortlist.")
+                note_out, message = "", html_ok("Kept in the shortlist.")
         elif isinstance(trigger, dict) and trigger.get("type") == "button-shortlist-remove":
             if ctx.triggered and ctx.triggered[0].get("value"):
                 shortlist.remove(str(trigger["index"]))
@@ -600,26 +584,10 @@ def html_ok(text: str):
     return html.Div(text, className="aw-message-ok")
 
 
-def _selected_store(view: ViewState, sel, details, query: str) -> dict:
-    """What the shortlist and the downloads need of the arc shown."""
-    arc = sel.arc
-    departure, arrival = details[0][1][0].value, details[0][1][1].value
-    arcs = view.arcs if view.arcs == "best" else arcs_value(arc.revolutions, arc.branch)
-    return {
-        "for_view": query,
-        "refined": sel.refined,
-        "departure_utc": departure,
-        "arrival_utc": arrival,
-        "revolutions": arc.revolutions,
-        "branch": arc.branch,
-        "ok": arc.ok,
-        "metrics": {
-            k: (v if math.isfinite(v) else None)
-            for k, v in arc.metrics.items()
-            if k in ("c3_km2_s2", "vinf_arrival_km_s", "dv_total_km_s", "dla_deg", "tof_days")
-        },
-        "view": to_query(replace(view, selected=(departure, arrival), arcs=arcs)),
-    }
+def _selected_store(query: str, sel) -> dict:
+    """What the page remembers of the arc shown: the view it was drawn for, and whether a best
+    arc shown was already the refined one (the grid poll redraws it once refined)."""
+    return {"for_view": query, "refined": sel.refined}
 
 
 def _arc_options(max_revolutions: int) -> list[dict]:

@@ -16,6 +16,7 @@ from solver.timescales import FUTURE_UTC_NOTE
 from solver.window import CAUTION, METRICS
 
 from . import theme
+from .cases import MAX_UPLOAD_BYTES
 from .prepare import DetailRow
 from .state import MAP_METRICS
 
@@ -114,7 +115,9 @@ def case_controls() -> html.Section:
             id="upload-case-file",
             children=html.Div(["Upload a case file (TOML)"]),
             accept=".toml,text/plain,application/toml",
-            max_size=256 * 1024,
+            # Well above the server's own limit (cases.MAX_UPLOAD_BYTES), so an oversized file
+            # reaches the server and gets a message instead of being dropped in the browser.
+            max_size=4 * MAX_UPLOAD_BYTES,
             className="aw-upload",
         ),
         html.Div(id="div-message-upload", className="aw-message", role="alert"),
@@ -352,6 +355,7 @@ def map_card() -> html.Div:
                 className="aw-progress",
                 style={"display": "none"},
             ),
+            html.H2("Window map", className="aw-card-title"),
             _graph("graph-window-map", "window_map", MAP_HEIGHT_PX),
             html.Div(
                 "Click a cell to inspect its arc. Drag on the map to zoom; double-click to reset.",
@@ -406,11 +410,17 @@ def views() -> html.Section:
             html.Div(
                 [
                     html.Div(
-                        _graph("graph-arc-view", "arc_view", VIEW_HEIGHT_PX),
+                        [
+                            html.H2("Arc view", className="aw-card-title"),
+                            _graph("graph-arc-view", "arc_view", VIEW_HEIGHT_PX),
+                        ],
                         className="aw-card",
                     ),
                     html.Div(
-                        _graph("graph-family-chart", "family_chart", VIEW_HEIGHT_PX),
+                        [
+                            html.H2("Family chart", className="aw-card-title"),
+                            _graph("graph-family-chart", "family_chart", VIEW_HEIGHT_PX),
+                        ],
                         className="aw-card",
                     ),
                 ],

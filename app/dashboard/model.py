@@ -27,6 +27,7 @@ from solver.window import (
     Arc,
     CaseBodies,
     WindowGrid,
+    case_hash,
     grid_axes,
     select_arc,
     solve_cell,
@@ -59,6 +60,7 @@ from .state import (
     from_query,
     parse_arcs,
     plot_x_to_unix_ms,
+    to_query,
     unix_days_to_iso,
 )
 
@@ -318,6 +320,37 @@ class DashboardModel:
             return None
         arcs = solve_cell(case, best.departure_jd_tdb, best.arrival_jd_tdb, self.bodies(case))
         return Selection(arcs, select_arc(arcs, revolutions, branch, view.metric), True, refined)
+
+    # -- shortlist -------------------------------------------------------------------------
+    SHORTLIST_METRICS = ("c3_km2_s2", "vinf_arrival_km_s", "dv_total_km_s", "dla_deg", "tof_days")
+
+    def keep(self, view: ViewState, note: str | None, author: str | None):
+        """Add the view's selected arc to the shortlist, recomputed here from the view (nothing
+        the page sends is written as is), with a link that opens it."""
+        case = self.case(view)
+        grid = self.grids.memory_get(window_cache_key(case))
+        sel = self.selection(view, case, grid)
+        if sel is None or not sel.arc.ok:
+            raise InputError("selected arc", "none", "a selected cell with an arc")
+        arc = sel.arc
+        dates = (utc_text(arc.departure_jd_tdb), utc_text(arc.arrival_jd_tdb))
+        metrics = {
+            name: (float(arc.metrics[name]) if math.isfinite(arc.metrics[name]) else None)
+            for name in self.SHORTLIST_METRICS
+        }
+        return self.shortlist.add(
+            case_id=view.case,
+            case_title=case.title,
+            case_hash=case_hash(case),
+            departure_utc=dates[0],
+            arrival_utc=dates[1],
+            revolutions=arc.revolutions,
+            branch=arc.branch,
+            metrics=metrics,
+            note=note,
+            author=author,
+            view=to_query(replace(view, selected=dates)),
+        )
 
     # -- figures ---------------------------------------------------------------------------
     def _points(self, view: ViewState, case: Case, grid: WindowGrid):

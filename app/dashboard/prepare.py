@@ -146,8 +146,10 @@ class MapData:
     ----------
     outside : (ny, nx) bool
         Cells of ``heat`` whose arc exists but breaks a limit.
-    hover : (ny, nx, len(HOVER_FIELDS)) float32 or None
+    hover : (ny, nx, len(hover_fields)) float32 or None
         Every number of a ``heat`` cell, for its hover label (None for previews).
+    hover_fields : tuple of (column, label, unit, format)
+        What ``hover`` holds: ``HOVER_FIELDS``, with TOF in hours for windows of hours.
     arc_text : (ny, nx) str or None
         Which arc a cell shows, when the case has several per cell.
     """
@@ -169,6 +171,7 @@ class MapData:
     arcs_label: str = ""
     preview: bool = False
     title: str = ""
+    hover_fields: tuple[tuple[str, str, str, str], ...] = HOVER_FIELDS
 
     # The heat layer's axes, used by the markers, TOF lines and ranges.
     @property
@@ -257,8 +260,16 @@ def map_data(
     heat = _Sampler(grid, slot, slot_per_cell, max_points)
     lines = _Sampler(grid, slot, slot_per_cell, min(contour_points, max_points))
     hover = None
+    fields = HOVER_FIELDS
+    tof_days_max = float(np.nanmax(grid.tof_days))
     if not preview:
         hover = np.stack([heat.field(name) for name, *_ in HOVER_FIELDS], axis=-1)
+        if tof_days_max < 2.0:  # a window of hours: TOF in hours reads better than 0.2 days
+            k = [f[0] for f in HOVER_FIELDS].index("tof_days")
+            hover[..., k] *= np.float32(24.0)
+            fields = tuple(
+                ("tof_hours", "TOF", "h", ".2f") if f[0] == "tof_days" else f for f in fields
+            )
     arc_text = None
     if len(grid.revolutions) > 1:
         labels = np.array(
@@ -284,13 +295,14 @@ def map_data(
         arc_text=arc_text,
         limit=limit,
         tof_days_min=float(np.nanmin(grid.tof_days)),
-        tof_days_max=float(np.nanmax(grid.tof_days)),
+        tof_days_max=tof_days_max,
         best=best,
         selected=selected,
         full_shape=(len(grid.departure_jd_tdb), len(grid.arrival_jd_tdb)),
         arcs_label=_arcs_label(arcs),
         preview=preview,
         title=title,
+        hover_fields=fields,
     )
 
 

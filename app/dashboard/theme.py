@@ -139,24 +139,21 @@ def graph_config(filename: str) -> dict:
 
 def empty_figure(message: str, height: int | None = None) -> go.Figure:
     """A blank figure carrying a short centred message (waiting, nothing selected, error)."""
-    fig = go.Figure()
-    fig.update_layout(
-        **base_layout(
-            xaxis={"visible": False},
-            yaxis={"visible": False},
-            annotations=[
-                {
-                    "text": message,
-                    "showarrow": False,
-                    "x": 0.5,
-                    "y": 0.5,
-                    "xref": "paper",
-                    "yref": "paper",
-                    "font": {"size": 14, "color": INK_MUTED},
-                }
-            ],
-        )
+    layout = base_layout(
+        xaxis={"visible": False},
+        yaxis={"visible": False},
+        annotations=[
+            {
+                "text": message,
+                "showarrow": False,
+                "x": 0.5,
+                "y": 0.5,
+                "xref": "paper",
+                "yref": "paper",
+                "font": {"size": 14, "color": INK_MUTED},
+            }
+        ],
     )
     if height:
-        fig.update_layout(height=height)
-    return fig
+        layout["height"] = height
+    return go.Figure(layout=layout)
