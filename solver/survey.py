@@ -25,39 +25,47 @@ same numbers in this process and on any worker of a Dask cluster. Running chunks
 their files is :mod:`solver.survey_store` and :mod:`solver.survey_dask`; this module is numbers
 only.
 
-Cases of one target and one year (:func:`target_case`)::
-
-    departure dates   [t0, t1)            (t1 minus one minute is the last date)
-    arrival dates     [t0 + tof_min, t1 + tof_max]
-    steps             the base case's, or the survey's coarse step
-
-where tof_min/tof_max are the base case's ``limits.tof_min_days`` (0 when absent) and
-``limits.tof_max_days`` (or the survey's ``tof_max_days``, required one way or the other).
+Modules: :mod:`solver.survey_targets` (a target's cases), :mod:`solver.survey_results` (row
+schema, ranking, reading results), this one (settings, scanning, planning),
+:mod:`solver.survey_store` (chunk files) and :mod:`solver.survey_dask` (running a plan).
 
 For the dashboard's survey page: :func:`load_results` reads a results file (ranked, one row per
 target) and :func:`case_for_target` builds a window case around a target's best arc, ready for
-``solver.window.compute_window``.
+``solver.window.compute_window``; both are importable from here.
 """
 
 from __future__ import annotations
 
 import copy
-import datetime as _dt
-import json
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import asdict, dataclass, field
-from pathlib import Path
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from solver import ENGINE_VERSION
 from solver.bodies import default_registry
-from solver.case import Case, case_from_dict, element_body_dict, parse_case, to_toml_dict
+from solver.case import Case, to_toml_dict
 from solver.element_bodies import ElementBody
 from solver.errors import InputError
+from solver.survey_results import (
+    ARC_SCHEMA,
+    RESULT_COLUMNS,
+    RESULT_SCHEMA,
+    SPAN_COLUMNS,
+    SPAN_SCHEMA,
+    STATUS_ERROR,
+    STATUS_NO_ARC,
+    STATUS_OUTSIDE,
+    STATUS_WITHIN,
+    load_results,
+    rank_results,
+    read_survey_metadata,
+    results_base_case,
+    span_frame,
+)
+from solver.survey_targets import case_dict, case_for_target, target_body, target_case, tof_bounds
 from solver.window import (
     METRICS,
     RANKING_METRICS,
@@ -87,78 +95,8 @@ ZOOM_SUBSTEPS = 4
 ZOOM_FINEST_DAYS = 1.0 / 1440.0
 """Zooming stops once a step is below a minute."""
 
-PROVENANCE_KEY = b"arcwindow.provenance"
-SURVEY_KEY = b"arcwindow.survey"
-
-STATUS_WITHIN = "within_limits"
-STATUS_OUTSIDE = "outside_limits"
-STATUS_NO_ARC = "no_arc"
-STATUS_ERROR = "error"
-STATUS_ORDER = {STATUS_WITHIN: 0, STATUS_OUTSIDE: 1, STATUS_NO_ARC: 2, STATUS_ERROR: 3}
-
-# Per target-year row: (column, dtype). Units in the names; dates UTC (ISO 8601), JD in TDB.
-_ARC_SCHEMA: tuple[tuple[str, str], ...] = (
-    ("departure_utc", "str"),
-    ("arrival_utc", "str"),
-    ("departure_jd_tdb", "float64"),
-    ("arrival_jd_tdb", "float64"),
-    ("tof_days", "float64"),
-    ("revolutions", "int64"),
-    ("branch", "str"),
-    ("transfer_type", "str"),
-    ("c3_km2_s2", "float64"),
-    ("dla_deg", "float64"),
-    ("rla_deg", "float64"),
-    ("vinf_departure_km_s", "float64"),
-    ("vinf_arrival_km_s", "float64"),
-    ("dv_departure_km_s", "float64"),
-    ("dv_arrival_km_s", "float64"),
-    ("dv_total_km_s", "float64"),
-)
-_TARGET_SCHEMA: tuple[tuple[str, str], ...] = (
-    ("target_central_body", "str"),
-    ("target_frame", "str"),
-    ("target_epoch_jd_tdb", "float64"),
-    ("target_semi_major_axis_km", "float64"),
-    ("target_eccentricity", "float64"),
-    ("target_inclination_deg", "float64"),
-    ("target_raan_deg", "float64"),
-    ("target_arg_periapsis_deg", "float64"),
-    ("target_mean_anomaly_deg", "float64"),
-    ("target_gm_km3_s2", "float64"),
-    ("target_radius_km", "float64"),
-)
-SPAN_SCHEMA: tuple[tuple[str, str], ...] = (
-    ("target", "str"),
-    ("status", "str"),
-    ("within_limits", "bool"),
-    ("reason", "str"),
-    ("metric", "str"),
-    ("metric_value", "float64"),
-    *_ARC_SCHEMA,
-    ("grid_metric_value", "float64"),
-    ("refined", "bool"),
-    ("cells_within", "int64"),
-    ("span_start_utc", "str"),
-    ("span_end_utc", "str"),
-    ("case_hash", "str"),
-    ("engine_version", "str"),
-    *_TARGET_SCHEMA,
-)
-"""Columns of one target-year row (chunk files hold these)."""
-RESULT_SCHEMA: tuple[tuple[str, str], ...] = (
-    ("rank", "int64"),
-    *SPAN_SCHEMA,
-    ("spans_within", "int64"),
-    ("spans_scanned", "int64"),
-)
-"""Columns of the final results: a target's best row plus its rank and year counts."""
-SPAN_COLUMNS = tuple(name for name, _ in SPAN_SCHEMA)
-RESULT_COLUMNS = tuple(name for name, _ in RESULT_SCHEMA)
-
-
 # ---------------------------------------------------------------------------------------------
-# Settings, spans, targets
+# Settings and spans
 
 
 @dataclass(frozen=True)
@@ -226,8 +164,8 @@ def parse_years(text: str | tuple[int, int]) -> tuple[int, int]:
         except ValueError:
             raise InputError("--years", text, accepted) from None
     if not (YEAR_MIN <= first <= last <= YEAR_MAX):
-        raise InputError("--years", text if not isinstance(text, tuple) else f"{first}-{last}",
-                         accepted)  # fmt: skip
+        shown = f"{first}-{last}" if isinstance(text, tuple) else text
+        raise InputError("--years", shown, accepted)
     return int(first), int(last)
 
 
@@ -236,266 +174,13 @@ def year_spans(first: int, last: int) -> tuple[Span, ...]:
     return tuple((f"{y:04d}-01-01", f"{y + 1:04d}-01-01") for y in range(first, last + 1))
 
 
-def target_body(target: Any, registry=None) -> ElementBody:
-    """An :class:`ElementBody` from what a caller holds for a target.
-
-    Parameters
-    ----------
-    target : ElementBody, mapping or pandas Series
-        An element body; a row of a survey's results (``target`` plus ``target_*`` element
-        columns); a row of an element CSV (its column names, values as text or numbers); or a
-        ``[[bodies]]`` table.
-    registry : BodyRegistry, optional
-        Where the central body is looked up (default: the built-in registry).
-    """
-    if isinstance(target, ElementBody):
-        return target
-    if hasattr(target, "to_dict") and not isinstance(target, Mapping):
-        target = target.to_dict()
-    if not isinstance(target, Mapping):
-        raise InputError("target", type(target).__name__, "an ElementBody or a row of elements")
-    if "target_semi_major_axis_km" in target:
-        values = {
-            "epoch_jd_tdb": target["target_epoch_jd_tdb"],
-            "central_body": target["target_central_body"],
-            "frame": target["target_frame"],
-            "semi_major_axis_km": target["target_semi_major_axis_km"],
-            "eccentricity": target["target_eccentricity"],
-            "inclination_deg": target["target_inclination_deg"],
-            "raan_deg": target["target_raan_deg"],
-            "arg_periapsis_deg": target["target_arg_periapsis_deg"],
-            "mean_anomaly_deg": target["target_mean_anomaly_deg"],
-            "gm_km3_s2": target.get("target_gm_km3_s2"),
-            "radius_km": target.get("target_radius_km"),
-        }
-        name = target["target"]
-    else:
-        values = {str(k).strip().lower(): v for k, v in target.items()}
-        name = values.pop("name", None)
-        unknown = sorted(set(values) - _ELEMENT_ARGUMENTS)
-        if unknown:
-            raise InputError(
-                f"target {unknown[0]}",
-                values[unknown[0]],
-                "a known element key: " + ", ".join(sorted(_ELEMENT_ARGUMENTS)),
-            )
-    kwargs = {k: v for k, v in values.items() if not _missing(v)}
-    return ElementBody.from_elements(name, registry=registry, field_prefix="target ", **kwargs)
-
-
-_ELEMENT_ARGUMENTS = {
-    "central_body",
-    "epoch_utc",
-    "epoch_jd_tdb",
-    "semi_major_axis_km",
-    "semi_major_axis_au",
-    "eccentricity",
-    "inclination_deg",
-    "raan_deg",
-    "arg_periapsis_deg",
-    "mean_anomaly_deg",
-    "true_anomaly_deg",
-    "gm_km3_s2",
-    "radius_km",
-    "frame",
-}
-
-
-def _missing(value: Any) -> bool:
-    if value is None:
-        return True
-    if isinstance(value, str):
-        return not value.strip()
-    return isinstance(value, float) and math.isnan(value)
-
-
-# ---------------------------------------------------------------------------------------------
-# Cases of one target
-
-
-def _utc_plus_days(utc: str, days: float) -> str:
-    """An ISO UTC date plus a number of days, as ISO text (UTC calendar arithmetic)."""
-    start = _dt.datetime.fromisoformat(utc.removesuffix("Z"))
-    return (start + _dt.timedelta(days=float(days))).isoformat()
-
-
-def _base_raw(base: Case | Mapping[str, Any]) -> dict[str, Any]:
-    return to_toml_dict(base) if isinstance(base, Case) else copy.deepcopy(dict(base))
-
-
-def _case_with_target(
-    base_raw: dict[str, Any],
-    body: ElementBody,
-    window: dict[str, Any],
-    title: str,
-    tof_max_days: float | None = None,
-) -> Case:
-    """The base case with ``body`` as its target and this window (validated)."""
-    raw = copy.deepcopy(base_raw)
-    case = raw["case"]
-    old_target = str(case["target_body"]).strip().lower()
-    needed = {str(case["departure_body"]).strip().lower(), str(case["central_body"]).lower()}
-    needed |= {str(b.get("central_body", "sun")).strip().lower() for b in raw.get("bodies", [])}
-    bodies = []
-    for entry in raw.get("bodies", []):
-        name = str(entry.get("name", "")).strip().lower()
-        if name == body.name.lower() or (name == old_target and name not in needed):
-            continue  # the catalogue's body replaces a namesake and the base's own target
-        bodies.append(entry)
-    bodies.append(element_body_dict(body))
-    raw["bodies"] = bodies
-    case["target_body"] = body.name
-    case["title"] = title
-    case.pop("description", None)
-    raw["window"] = window
-    if tof_max_days is not None:
-        raw.setdefault("limits", {})["tof_max_days"] = float(tof_max_days)
-    return case_from_dict(raw)
-
-
-def _tof_bounds(base_raw: dict[str, Any], tof_max_days: float | None) -> tuple[float, float]:
-    limits = base_raw.get("limits", {})
-    tof_min = float(limits.get("tof_min_days", 0.0) or 0.0)
-    tof_max = tof_max_days if tof_max_days is not None else limits.get("tof_max_days")
-    if tof_max is None:
-        raise InputError(
-            "limits.tof_max_days",
-            "(missing)",
-            "a tof_max_days in the base case's [limits] or --tof-max-days: it bounds the "
-            "arrival dates of every target",
-        )
-    return tof_min, float(tof_max)
-
-
-def target_case(
-    base: Case | Mapping[str, Any],
-    target: Any,
-    span_start_utc: str,
-    span_end_utc: str,
-    *,
-    coarse_step_days: float | None = None,
-    tof_max_days: float | None = None,
-) -> Case:
-    """The case of one target over departures in [span_start, span_end).
-
-    Parameters
-    ----------
-    base : Case or TOML-shaped dict
-        The survey's base case (``solver.case.to_toml_dict`` form for a dict).
-    target : ElementBody or row of elements (see :func:`target_body`)
-        Replaces the base case's target.
-    span_start_utc, span_end_utc : str
-        ISO UTC dates; departures from the start to one minute before the end.
-    coarse_step_days : float, optional
-        Departure and arrival step, days (default: the base case's steps).
-    tof_max_days : float, optional
-        Overrides the base case's ``limits.tof_max_days`` (required if the base has none).
-
-    Returns
-    -------
-    Case
-        Arrivals from span_start + tof_min to span_end + tof_max; everything else from the base.
-    """
-    raw = _base_raw(base)
-    body = target_body(target)
-    tof_min, tof_max = _tof_bounds(raw, tof_max_days)
-    base_window = raw.get("window", {})
-    dep_step = coarse_step_days or base_window.get("departure_step_days", 1.0)
-    arr_step = coarse_step_days or base_window.get("arrival_step_days", 1.0)
-    last_departure = _utc_plus_days(span_end_utc, -1.0 / 1440.0)
-    window = {
-        "departure_start": span_start_utc,
-        "departure_end": last_departure,
-        "departure_step_days": float(dep_step),
-        "arrival_start": _utc_plus_days(span_start_utc, tof_min),
-        "arrival_end": _utc_plus_days(span_end_utc, tof_max),
-        "arrival_step_days": float(arr_step),
-    }
-    title = f"{body.name}, departures {span_start_utc} to {span_end_utc}"
-    return _case_with_target(raw, body, window, title, tof_max_days)
-
-
-def case_for_target(
-    base_case: Case | Mapping[str, Any],
-    target: Any,
-    best_departure_jd: float,
-    best_arrival_jd: float,
-    *,
-    departure_half_width_days: float = 60.0,
-    arrival_half_width_days: float = 90.0,
-    step_days: float = 1.0,
-    tof_max_days: float | None = None,
-) -> Case:
-    """A window case centred on a target's best arc (for the dashboard's survey page).
-
-    Parameters
-    ----------
-    base_case : Case or TOML-shaped dict
-        The survey's base case (:func:`results_base_case` reads it from a results file).
-    target : ElementBody, results row, CSV row or ``[[bodies]]`` table
-        The target (see :func:`target_body`); a row of :func:`load_results` works as is.
-    best_departure_jd, best_arrival_jd : float
-        JD TDB of the best arc (the results' ``departure_jd_tdb`` / ``arrival_jd_tdb``).
-    departure_half_width_days, arrival_half_width_days : float
-        The window spans the best dates plus and minus these, days (default 60 and 90: a
-        121 x 181 map at the default step, a few hundredths of a second to solve).
-    step_days : float
-        Departure and arrival step, days.
-    tof_max_days : float, optional
-        The survey's TOF bound if it overrode the base case's (results metadata ``settings``).
-
-    Returns
-    -------
-    Case
-        The base case's bodies, orbits, limits and transfer settings with the target replaced.
-
-    Examples
-    --------
-    >>> frame = load_results("survey.parquet")                     # doctest: +SKIP
-    >>> row = frame.iloc[0]                                         # doctest: +SKIP
-    >>> case = case_for_target(results_base_case("survey.parquet"), row,
-    ...                        row.departure_jd_tdb, row.arrival_jd_tdb)  # doctest: +SKIP
-    >>> grid = compute_window(case)                                 # doctest: +SKIP
-    """
-    from solver.timescales import jd_tdb_to_utc
-
-    dep, arr = float(best_departure_jd), float(best_arrival_jd)
-    for name, value in (("best_departure_jd", dep), ("best_arrival_jd", arr)):
-        if not math.isfinite(value):
-            raise InputError(name, value, "a finite JD TDB (the target has no best arc)")
-    if not arr > dep:
-        raise InputError("best_arrival_jd", arr, f"after best_departure_jd ({dep})")
-    for name, value in (
-        ("departure_half_width_days", departure_half_width_days),
-        ("arrival_half_width_days", arrival_half_width_days),
-    ):
-        if not (math.isfinite(value) and value >= 0):
-            raise InputError(name, value, ">= 0 days")
-    raw = _base_raw(base_case)
-    body = target_body(target)
-
-    def utc(jd: float) -> str:
-        return str(jd_tdb_to_utc(jd, digits=0, suffix=""))
-
-    window = {
-        "departure_start": utc(dep - departure_half_width_days),
-        "departure_end": utc(dep + departure_half_width_days),
-        "departure_step_days": float(step_days),
-        "arrival_start": utc(max(arr - arrival_half_width_days, dep - departure_half_width_days)),
-        "arrival_end": utc(arr + arrival_half_width_days),
-        "arrival_step_days": float(step_days),
-    }
-    title = f"{body.name}: window around the survey's best arc"
-    return _case_with_target(raw, body, window, title, tof_max_days)
-
-
 # ---------------------------------------------------------------------------------------------
 # Scanning
 
 
 def _empty_arc_columns() -> dict[str, Any]:
     out: dict[str, Any] = {}
-    for name, dtype in _ARC_SCHEMA:
+    for name, dtype in ARC_SCHEMA:
         out[name] = "" if dtype == "str" else (-1 if dtype == "int64" else math.nan)
     return out
 
@@ -513,7 +198,7 @@ def _arc_columns(arc: Arc) -> dict[str, Any]:
         "revolutions": int(arc.revolutions),
         "branch": arc.branch,
         "transfer_type": "I" if arc.transfer_angle_deg < 180.0 else "II",
-        **{name: float(m[name]) for name, _ in _ARC_SCHEMA[8:]},
+        **{name: float(m[name]) for name, _ in ARC_SCHEMA[8:]},
     }
 
 
@@ -707,7 +392,7 @@ def scan_target(
     values = grid.metric(metric)
     if METRICS[metric].rank_by_magnitude:
         values = np.abs(values)
-    tof_min, tof_max = _tof_bounds(_base_raw(base), settings.tof_max_days)
+    tof_min, tof_max = tof_bounds(case_dict(base), settings.tof_max_days)
     band = (grid.tof_days >= tof_min) & (grid.tof_days <= tof_max)
     score = np.where(grid.converged & band[..., None], values, np.inf)
     if not np.isfinite(score).any():
@@ -884,7 +569,7 @@ def plan_survey(
     if not bodies:
         raise InputError("targets", "none", "at least one target")
     base_toml = to_toml_dict(base_case)
-    _tof_bounds(base_toml, settings.tof_max_days)
+    tof_bounds(base_toml, settings.tof_max_days)
     # A target may replace a namesake among the base case's element bodies, but not a built-in
     # body, nor the departure or central body, nor a body another one orbits.
     reserved = {label for b in default_registry() for label in (b.key, *b.aliases)}
@@ -944,100 +629,6 @@ def plan_survey(
         targets_label=targets_label,
         targets_per_chunk=targets_per_chunk,
     )
-
-
-# ---------------------------------------------------------------------------------------------
-# Tables and ranking
-
-
-def span_frame(rows: Sequence[Mapping[str, Any]]) -> pd.DataFrame:
-    """Target-year rows as a frame with the fixed :data:`SPAN_SCHEMA` dtypes."""
-    frame = pd.DataFrame(list(rows), columns=list(SPAN_COLUMNS))
-    return frame.astype(dict(SPAN_SCHEMA))
-
-
-def rank_results(span_rows: pd.DataFrame) -> pd.DataFrame:
-    """Each target's best row over its spans, ranked (see :data:`RESULT_SCHEMA`).
-
-    Best = status (within limits, outside limits, no arc, error), then the metric (DLA by its
-    magnitude), then the earliest span. Ranks follow the same order across targets, ties broken
-    by name. A (target, span) pair present twice counts once.
-    """
-    rows = span_rows.drop_duplicates(["target", "span_start_utc"], keep="first")
-    if rows.empty:
-        return pd.DataFrame(columns=list(RESULT_COLUMNS)).astype(dict(RESULT_SCHEMA))
-    metric = str(rows["metric"].iloc[0])
-    magnitude = METRICS[metric].rank_by_magnitude
-    values = rows["metric_value"].to_numpy(dtype=float)
-    score = np.abs(values) if magnitude else values
-    order = pd.DataFrame(
-        {
-            "status": rows["status"].map(STATUS_ORDER).fillna(len(STATUS_ORDER)).to_numpy(),
-            "score": np.where(np.isfinite(score), score, np.inf),
-            "target": rows["target"].to_numpy(),
-            "span": rows["span_start_utc"].to_numpy(),
-        },
-        index=rows.index,
-    ).sort_values(["status", "score", "target", "span"], kind="mergesort")
-    ordered = rows.loc[order.index]
-    counts = rows.groupby("target", sort=False).agg(
-        spans_within=("within_limits", "sum"), spans_scanned=("span_start_utc", "size")
-    )
-    best = ordered.drop_duplicates("target", keep="first").reset_index(drop=True)
-    best["spans_within"] = best["target"].map(counts["spans_within"]).to_numpy()
-    best["spans_scanned"] = best["target"].map(counts["spans_scanned"]).to_numpy()
-    best.insert(0, "rank", np.arange(1, len(best) + 1))
-    return best[list(RESULT_COLUMNS)].astype(dict(RESULT_SCHEMA))
-
-
-# ---------------------------------------------------------------------------------------------
-# Reading results (for the dashboard's survey page)
-
-
-def load_results(path: str | Path) -> pd.DataFrame:
-    """A survey's results: one row per target, ranked (``rank`` 1 is the best).
-
-    Columns :data:`RESULT_COLUMNS`: the target, its status (``within_limits``,
-    ``outside_limits``, ``no_arc``, ``error``) and reason, the best arc (departure/arrival UTC
-    and JD TDB, TOF, revolutions, branch, Type, C3, DLA, RLA, departure and arrival v∞,
-    departure, arrival and total Δv), the ranking metric and its value, the span that holds it,
-    how many spans had an arc within limits, the case hash and engine version, and the target's
-    elements (``target_*``, canonical units) for :func:`case_for_target`.
-
-    Raises
-    ------
-    InputError
-        The file is missing or is not a survey results file.
-    """
-    path = Path(path)
-    if not path.is_file():
-        raise InputError("results", str(path), "an existing survey results file (.parquet)")
-    try:
-        frame = pd.read_parquet(path)
-    except Exception as exc:  # any unreadable file is the same user error
-        raise InputError(
-            "results", str(path), f"a Parquet file written by arcwindow survey ({exc})"
-        ) from None
-    missing = [c for c in RESULT_COLUMNS if c not in frame.columns]
-    if missing:
-        raise InputError("results", str(path), f"a survey results file (no column '{missing[0]}')")
-    return frame.sort_values("rank", kind="mergesort").reset_index(drop=True)
-
-
-def read_survey_metadata(path: str | Path) -> dict[str, Any]:
-    """The survey's own record in a results file: base case TOML, years, settings, counts."""
-    import pyarrow.parquet as pq
-
-    meta = pq.read_schema(Path(path)).metadata or {}
-    if SURVEY_KEY not in meta:
-        raise InputError("results", str(path), "a survey results file (no survey metadata)")
-    return json.loads(meta[SURVEY_KEY])
-
-
-def results_base_case(path: str | Path) -> Case:
-    """The base case a results file was computed with (for :func:`case_for_target`)."""
-    meta = read_survey_metadata(path)
-    return parse_case(meta["base_case_toml"], source_path=str(path))
 
 
 __all__ = [

@@ -14,6 +14,7 @@ parallelism comes from processes, and compiled kernels must not oversubscribe th
 
 from __future__ import annotations
 
+import asyncio
 import logging
 import os
 from collections.abc import Callable, Iterator
@@ -53,6 +54,24 @@ def machine_cores() -> int:
         return max(1, len(os.sched_getaffinity(0)))
     except AttributeError:  # not on Linux
         return max(1, os.cpu_count() or 1)
+
+
+@contextmanager
+def one_numba_thread() -> Iterator[None]:
+    """Run compiled kernels on one thread in this block, as the survey's workers do.
+
+    A target-year solves small arrays (a grid of ~10,000 cells, then single cells), for which a
+    parallel kernel's thread hand-offs cost more than they save: measured 3-4x slower on this
+    2-core machine while other work ran. It also keeps the serial run's numbers the workers'.
+    """
+    import numba
+
+    previous = numba.get_num_threads()
+    numba.set_num_threads(1)
+    try:
+        yield
+    finally:
+        numba.set_num_threads(previous)
 
 
 @dataclass
@@ -103,7 +122,7 @@ def start_local_cluster(n_workers: int | None = None, *, quiet: bool = True):
         n_workers=n,
         threads_per_worker=1,
         processes=True,
-        dashboard_address=None,
+        dashboard_address=":0",  # any free port: several clusters may share a machine
         silence_logs=logging.ERROR if quiet else logging.WARNING,
         env=dict(WORKER_ENV),
     )
@@ -114,6 +133,18 @@ def _worker_engine() -> dict[str, str]:
     import solver
 
     return {"engine": solver.ENGINE_VERSION, "path": os.path.dirname(solver.__file__)}
+
+
+async def _identity(address: str, timeout_s: float) -> object:
+    """The ``identity`` reply of the server at ``address`` (a Dask scheduler says "Scheduler")."""
+    from distributed.comm import connect as comm_connect
+
+    comm = await comm_connect(address, timeout=timeout_s)
+    try:
+        await comm.write({"op": "identity", "reply": True})
+        return await asyncio.wait_for(comm.read(), timeout_s)
+    finally:
+        comm.abort()
 
 
 def connect(address: str, timeout_s: float = DEFAULT_CONNECT_TIMEOUT_S):
@@ -135,6 +166,38 @@ def connect(address: str, timeout_s: float = DEFAULT_CONNECT_TIMEOUT_S):
         "`dask scheduler` and workers with `dask worker tcp://HOST:PORT` on machines where "
         "arcwindow is installed)"
     )
+    # A malformed address is refused before a Client exists: a Client that failed half-way
+    # through its construction hangs at interpreter exit trying to close itself.
+    try:
+        from distributed.comm import parse_address
+        from distributed.comm.addressing import parse_host_port
+        from distributed.comm.registry import backends
+
+        scheme, location = parse_address(address, strict=False)
+        if scheme not in backends:
+            raise ValueError(f"unknown scheme '{scheme}' (known: {', '.join(sorted(backends))})")
+        parse_host_port(location)
+    except (ValueError, TypeError) as exc:
+        raise InputError("--scheduler", address, f"{expected}; {exc}") from None
+    # Ask whoever listens there who they are before building a Client, for the same reason.
+    try:
+        identity = asyncio.run(_identity(address, timeout_s))
+    except (OSError, TimeoutError) as exc:
+        raise InputError(
+            "--scheduler",
+            address,
+            f"{expected}; no scheduler answered within {timeout_s:g} s ({exc})",
+        ) from None
+    except Exception as exc:  # something answered, but not in Dask's protocol
+        raise InputError(
+            "--scheduler",
+            address,
+            f"{expected}; the server there does not speak Dask's protocol "
+            f"({type(exc).__name__}: {str(exc)[:80]})",
+        ) from None
+    if not isinstance(identity, dict) or identity.get("type") != "Scheduler":
+        kind = identity.get("type") if isinstance(identity, dict) else type(identity).__name__
+        raise InputError("--scheduler", address, f"{expected}; the server there is a {kind}")
     try:
         client = Client(address, timeout=f"{timeout_s}s", set_as_default=False)
     except (OSError, TimeoutError) as exc:
@@ -142,10 +205,6 @@ def connect(address: str, timeout_s: float = DEFAULT_CONNECT_TIMEOUT_S):
             "--scheduler",
             address,
             f"{expected}; no scheduler answered within {timeout_s:g} s ({exc})",
-        ) from None
-    except Exception as exc:  # malformed addresses, or a server that is not a Dask scheduler
-        raise InputError(
-            "--scheduler", address, f"{expected}; connecting failed: {type(exc).__name__}: {exc}"
         ) from None
     try:
         try:
@@ -231,6 +290,12 @@ def describe_client(client) -> str:
 # Running
 
 
+def pending_chunks(plan: SurveyPlan, out_path: str | Path) -> list:
+    """The chunks of ``plan`` that have no valid file beside ``out_path`` yet."""
+    folder = chunk_folder(out_path)
+    return [chunk for chunk in plan.chunks if read_chunk(folder, chunk) is None]
+
+
 def run_survey(
     plan: SurveyPlan,
     out_path: str | Path,
@@ -283,8 +348,9 @@ def run_survey(
             progress(len(run.skipped) + len(run.computed), total)
 
     if client is None:
-        for chunk in todo:
-            finished(chunk, scan_chunk(plan.base_toml, chunk.targets, chunk.span, settings))
+        with one_numba_thread():
+            for chunk in todo:
+                finished(chunk, scan_chunk(plan.base_toml, chunk.targets, chunk.span, settings))
     elif todo:
         _run_on_dask(client, plan, todo, settings, retries, finished, run)
 
@@ -334,6 +400,8 @@ __all__ = [
     "connect",
     "describe_client",
     "machine_cores",
+    "one_numba_thread",
+    "pending_chunks",
     "run_survey",
     "start_local_cluster",
     "survey_client",

@@ -31,15 +31,8 @@ from pathlib import Path
 import pandas as pd
 
 from solver import ENGINE_VERSION
-from solver.survey import (
-    PROVENANCE_KEY,
-    SURVEY_FORMAT,
-    SURVEY_KEY,
-    Chunk,
-    SurveyPlan,
-    rank_results,
-    span_frame,
-)
+from solver.survey import SURVEY_FORMAT, Chunk, SurveyPlan
+from solver.survey_results import PROVENANCE_KEY, SURVEY_KEY, rank_results, span_frame
 
 logger = logging.getLogger(__name__)
 

@@ -136,7 +136,7 @@ def run(args: argparse.Namespace) -> int:
     from solver.element_bodies import read_element_csv
     from solver.errors import InputError
     from solver.survey import DEFAULT_TARGETS_PER_CHUNK, SurveySettings, plan_survey
-    from solver.survey_dask import describe_client, run_survey, survey_client
+    from solver.survey_dask import describe_client, pending_chunks, run_survey, survey_client
     from solver.survey_store import chunk_folder
 
     out = Path(args.out)
@@ -172,9 +172,9 @@ def run(args: argparse.Namespace) -> int:
     )
     first, last = plan.years
     years = f"{first}" if first == last else f"{first}-{last}"
-    with survey_client(
-        args.scheduler, args.workers, connect_timeout_s=args.connect_timeout
-    ) as client:
+    # Nothing left to compute (a finished survey run again): merge without starting a cluster.
+    workers = 0 if not pending_chunks(plan, out) and not args.scheduler else args.workers
+    with survey_client(args.scheduler, workers, connect_timeout_s=args.connect_timeout) as client:
         print(
             f"Survey of {len(plan.target_names):,} targets x {len(plan.spans)} years ({years}) = "
             f"{plan.target_years:,} target-years in {len(plan.chunks):,} chunks, on "
