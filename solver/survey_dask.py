@@ -26,7 +26,7 @@ from typing import Any
 import pandas as pd
 
 from solver.errors import InputError
-from solver.survey import SurveyPlan, scan_chunk
+from solver.survey import SURVEY_FORMAT, SurveyPlan, scan_chunk
 from solver.survey_store import (
     chunk_folder,
     merge_chunks,
@@ -128,11 +128,16 @@ def start_local_cluster(n_workers: int | None = None, *, quiet: bool = True):
     )
 
 
-def _worker_engine() -> dict[str, str]:
-    """Run on each worker: which arcwindow it imports."""
+def _worker_engine() -> dict[str, object]:
+    """Run on each worker: which arcwindow it imports (the survey module included)."""
     import solver
+    from solver.survey import SURVEY_FORMAT
 
-    return {"engine": solver.ENGINE_VERSION, "path": os.path.dirname(solver.__file__)}
+    return {
+        "engine": solver.ENGINE_VERSION,
+        "survey_format": SURVEY_FORMAT,
+        "path": os.path.dirname(solver.__file__),
+    }
 
 
 async def _identity(address: str, timeout_s: float) -> object:
@@ -213,22 +218,38 @@ def connect(address: str, timeout_s: float = DEFAULT_CONNECT_TIMEOUT_S):
             raise InputError(
                 "--scheduler", address, f"a scheduler with workers (none joined in {timeout_s:g} s)"
             ) from None
+        # The scheduler unpickles every task too, so it needs arcwindow as much as the workers.
         try:
-            engines = client.run(_worker_engine)
+            engines = {"scheduler": client.run_on_scheduler(_worker_engine)}
         except Exception as exc:
             raise InputError(
                 "--scheduler",
                 address,
-                f"workers that can import arcwindow (install it on every worker): {exc}",
+                f"a scheduler that can import arcwindow's solver.survey (install the same "
+                f"arcwindow where the scheduler runs): {type(exc).__name__}: {exc}",
             ) from None
-        wrong = {w: e["engine"] for w, e in engines.items() if e["engine"] != solver.ENGINE_VERSION}
-        if wrong:
-            worker, version = next(iter(wrong.items()))
+        try:
+            engines.update(client.run(_worker_engine))
+        except Exception as exc:
             raise InputError(
                 "--scheduler",
                 address,
-                f"workers running arcwindow engine {solver.ENGINE_VERSION} "
-                f"(worker {worker} runs {version})",
+                f"workers that can import arcwindow's solver.survey (install the same arcwindow "
+                f"on every worker): {type(exc).__name__}: {exc}",
+            ) from None
+        mine = (solver.ENGINE_VERSION, SURVEY_FORMAT)
+        wrong = {
+            w: (e["engine"], e["survey_format"])
+            for w, e in engines.items()
+            if (e["engine"], e["survey_format"]) != mine
+        }
+        if wrong:
+            worker, (version, survey_format) = next(iter(wrong.items()))
+            raise InputError(
+                "--scheduler",
+                address,
+                f"workers running arcwindow engine {mine[0]}, survey format {mine[1]} "
+                f"(worker {worker} runs {version}, survey format {survey_format})",
             )
     except BaseException:
         client.close()

@@ -179,9 +179,17 @@ def read_survey_metadata(path: str | Path) -> dict[str, Any]:
 
 
 def results_base_case(path: str | Path) -> Case:
-    """The base case a results file was computed with (for :func:`case_for_target`)."""
+    """The base case a results file was computed with (for :func:`case_for_target`).
+
+    With the survey's ``--tof-max-days`` applied, so windows around best arcs use the survey's
+    limits.
+    """
     meta = read_survey_metadata(path)
-    return parse_case(meta["base_case_toml"], source_path=str(path))
+    case = parse_case(meta["base_case_toml"], source_path=str(path))
+    tof_max = meta.get("settings", {}).get("tof_max_days")
+    if tof_max is not None:  # the survey's own TOF bound replaced the base case's
+        case = case.with_changes(**{"limits.tof_max_days": tof_max})
+    return case
 
 
 __all__ = [

@@ -25,6 +25,10 @@ PROJECT_CORES = 64
 SCHEDULER_S_PER_TASK = 0.001
 """Dask's documented scheduler overhead, "about 1 ms per task" (Dask docs, best practices and
 "Scheduling" pages; common practice), paid serially at the scheduler."""
+PARALLEL_EFFICIENCY = 0.85
+"""Assumed at 64 cores: tasks of about a second that exchange no data and return a few kB lose
+only the tail of the last wave and the per-task overhead; 0.85 is a cautious guess (not measured
+at 64 cores: the 2-worker efficiency measured here is shown beside it)."""
 WORKER_STARTUP_S = 2.0
 """A worker's first chunk pays its imports and loads the compiled kernels (measured ~1.8 s)."""
 
@@ -111,7 +115,7 @@ def run(size: str = "full") -> list[BenchLine]:
     rate1 = n_targets / one_s
     rate2 = n_targets / two_s
     ratio = rate2 / rate1
-    efficiency = min(1.0, ratio / 2.0)
+    efficiency = ratio / 2.0  # above 1 only by noise on a shared machine
     per_target_year_s = one_s / plan.target_years
     per_chunk_s = one_s / n_chunks
 
@@ -122,7 +126,7 @@ def run(size: str = "full") -> list[BenchLine]:
     chunks = -(-target_years // DEFAULT_TARGETS_PER_CHUNK)
     chunk_s = DEFAULT_TARGETS_PER_CHUNK * per_target_year_s
     core_s = target_years * per_target_year_s
-    compute_s = core_s / (PROJECT_CORES * efficiency)
+    compute_s = core_s / (PROJECT_CORES * PARALLEL_EFFICIENCY)
     scheduler_s = chunks * SCHEDULER_S_PER_TASK
     wall_s = compute_s + scheduler_s + WORKER_STARTUP_S
     arithmetic = (
@@ -130,8 +134,9 @@ def run(size: str = "full") -> list[BenchLine]:
         f"{target_years:,} / {DEFAULT_TARGETS_PER_CHUNK} = {chunks:,} of "
         f"{DEFAULT_TARGETS_PER_CHUNK} x {per_target_year_s * 1e3:.1f} ms = {chunk_s:.2f} s; "
         f"core time = {target_years:,} x {per_target_year_s * 1e3:.1f} ms = {core_s:,.0f} s; "
-        f"compute = {core_s:,.0f} s / ({PROJECT_CORES} cores x {efficiency:.2f} efficiency, "
-        f"measured with 2 workers) = {compute_s:,.0f} s; scheduler = {chunks:,} tasks x "
+        f"compute = {core_s:,.0f} s / ({PROJECT_CORES} cores x {PARALLEL_EFFICIENCY:g} assumed "
+        f"efficiency; {efficiency:.2f} measured here with 2 workers) = {compute_s:,.0f} s; "
+        f"scheduler = {chunks:,} tasks x "
         f"{SCHEDULER_S_PER_TASK * 1e3:g} ms = {scheduler_s:,.1f} s; worker start-up "
         f"{WORKER_STARTUP_S:g} s; wall = {wall_s:,.0f} s = {wall_s / 60:.1f} min"
     )
@@ -173,7 +178,8 @@ def run(size: str = "full") -> list[BenchLine]:
                 "target_years": target_years,
                 "chunks": chunks,
                 "per_target_year_s": per_target_year_s,
-                "efficiency": efficiency,
+                "assumed_efficiency": PARALLEL_EFFICIENCY,
+                "measured_two_worker_efficiency": efficiency,
             },
         ),
     ]

@@ -176,7 +176,8 @@ def run(args: argparse.Namespace) -> int:
     workers = 0 if not pending_chunks(plan, out) and not args.scheduler else args.workers
     with survey_client(args.scheduler, workers, connect_timeout_s=args.connect_timeout) as client:
         print(
-            f"Survey of {len(plan.target_names):,} targets x {len(plan.spans)} years ({years}) = "
+            f"Survey of {len(plan.target_names):,} targets x {len(plan.spans)} "
+            f"year{'' if len(plan.spans) == 1 else 's'} ({years}) = "
             f"{plan.target_years:,} target-years in {len(plan.chunks):,} chunks, on "
             f"{describe_client(client)}",
             file=sys.stderr,
@@ -201,6 +202,11 @@ def run(args: argparse.Namespace) -> int:
     folder = chunk_folder(out)
     if not result.complete:
         key, message = result.failed[0]
+        if not result.computed:
+            message += (
+                " - every chunk failed: check that the scheduler and the workers run the same "
+                "arcwindow and packages as this client"
+            )
         print(
             f"arcwindow survey: {len(result.failed)} of {len(plan.chunks)} chunks failed after "
             f"{args.retries} retries (first: chunk {key[:12]}: {message}). The "
