@@ -324,6 +324,7 @@ def run_survey(
     client: Any = None,
     retries: int = DEFAULT_RETRIES,
     progress: Callable[[int, int], None] | None = None,
+    submit_options: dict[str, Any] | None = None,
 ) -> SurveyRun:
     """Run the chunks of ``plan`` that have no valid file yet, then merge all into the results.
 
@@ -340,6 +341,9 @@ def run_survey(
         scheduler anyway, up to its ``allowed-failures``).
     progress : callable(done, total), optional
         Called once with the chunks already done, then after each chunk finishes.
+    submit_options : dict, optional
+        Extra keywords for ``Client.submit`` (e.g. ``workers=[address]`` to pin the chunks to
+        some workers, as the benchmark does).
 
     Returns
     -------
@@ -373,7 +377,7 @@ def run_survey(
             for chunk in todo:
                 finished(chunk, scan_chunk(plan.base_toml, chunk.targets, chunk.span, settings))
     elif todo:
-        _run_on_dask(client, plan, todo, settings, retries, finished, run)
+        _run_on_dask(client, plan, todo, settings, retries, finished, run, submit_options or {})
 
     if run.failed:
         return run
@@ -381,7 +385,7 @@ def run_survey(
     return run
 
 
-def _run_on_dask(client, plan, todo, settings, retries, finished, run) -> None:
+def _run_on_dask(client, plan, todo, settings, retries, finished, run, options) -> None:
     from distributed import as_completed
 
     # The base case goes inside every task (a few kB): scattering it once would save little and
@@ -396,6 +400,7 @@ def _run_on_dask(client, plan, todo, settings, retries, finished, run) -> None:
             settings,
             retries=retries,
             pure=False,
+            **options,
         )
         futures[future] = chunk
     try:

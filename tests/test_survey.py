@@ -362,6 +362,20 @@ def test_killed_worker_loses_and_duplicates_no_target(serial, cluster, tmp_path)
     pd.testing.assert_frame_equal(results, serial.results, check_exact=True)
 
 
+def test_chunks_that_fail_on_workers_are_reported_and_nothing_is_merged(cluster, tmp_path):
+    """A chunk whose task raises (here: settings no worker accepts) fails after its retries; the
+    run reports it, writes no results file, and keeps no file for it."""
+    plan = _plan(targets_per_chunk=4, settings=SurveySettings(coarse_step_days=10.0))
+    object.__setattr__(plan.settings, "refine", "bogus")  # bypass validation: fail on workers
+    assert SETTINGS.refine == "zoom"  # (a fresh settings object: the shared one is untouched)
+    out = tmp_path / "failed.parquet"
+    run = run_survey(plan, out, client=cluster, retries=1)
+    assert not run.complete and run.results is None and not run.computed
+    assert sorted(key for key, _ in run.failed) == sorted(c.key for c in plan.chunks)
+    assert all("--refine" in message for _, message in run.failed)
+    assert not out.exists() and not list(chunk_folder(out).glob("*.parquet"))
+
+
 def test_cli_on_an_existing_cluster_via_scheduler(cluster, tmp_path, capsys):
     """`--scheduler` points the survey at a running cluster (here the fixture's LocalCluster,
     reached by its address like any remote one); results equal the serial run of that plan."""

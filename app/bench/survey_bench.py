@@ -3,11 +3,11 @@ projected wall time of a large survey from the measured cost per chunk.
 
 The same survey (the first targets of the demo catalogue, one year of departures, the
 ``survey_base`` case and its 5-day grid, zoom refinement) runs on a local cluster of two worker
-processes, then on the same cluster scaled down to one; workers are warmed up first (imports,
-compiled kernels, ephemeris file), so the figures are steady-state, and each figure is the best
-of three runs (this machine is shared: the least noisy estimate). The baseline of the 2-worker
-rate is the 1-worker rate; the baseline of the 1-worker rate is the same chunks run in this
-process without Dask (what the cluster's per-task overhead costs).
+processes, and on one of them alone (its chunks pinned to it); workers are warmed up first
+(imports, compiled kernels, ephemeris file), so the figures are steady-state, and each figure is
+the best of three alternating runs (this machine is shared: the least noisy estimate). The
+baseline of the 2-worker rate is the 1-worker rate; the baseline of the 1-worker rate is the same
+chunks run in this process without Dask (what the cluster's per-task overhead costs).
 """
 
 from __future__ import annotations
@@ -65,12 +65,14 @@ def _plan(size: str):
     )
 
 
-def _timed_run(plan, client) -> float:
+def _timed_run(plan, client, submit_options=None) -> float:
     from solver.survey_dask import run_survey
 
     with tempfile.TemporaryDirectory() as folder:
         start = time.perf_counter()
-        run = run_survey(plan, Path(folder) / "bench.parquet", client=client)
+        run = run_survey(
+            plan, Path(folder) / "bench.parquet", client=client, submit_options=submit_options
+        )
         elapsed = time.perf_counter() - start
     if not run.complete:
         raise RuntimeError(f"benchmark survey failed: {run.failed[:1]}")
@@ -87,29 +89,28 @@ def run(size: str = "full") -> list[BenchLine]:
     n_chunks = len(plan.chunks)
 
     repeats = SIZES[size]["repeats"]
-
-    def best_of(client) -> float:
-        return min(_timed_run(plan, client) for _ in range(repeats))
-
     _warm_up()
-    serial_s = best_of(None)
 
-    # Two warm workers first; then retire one (fast) rather than start and warm a second.
+    # One cluster of two warm workers; the 1-worker runs pin every chunk to one of them. Runs
+    # alternate (in-process, 2 workers, 1 worker, ...) so the machine's other load, which drifts,
+    # weighs on all three alike; each figure is the best of its runs.
     cluster = start_local_cluster(2)
     try:
         client = Client(cluster, set_as_default=False)
         try:
             client.run(_warm_up)
-            two_s = best_of(client)
-            cluster.scale(1)
-            deadline = time.monotonic() + 60.0
-            while len(client.scheduler_info()["workers"]) > 1 and time.monotonic() < deadline:
-                time.sleep(0.05)
-            one_s = best_of(client)
+            first = sorted(client.scheduler_info()["workers"])[0]
+            pinned = {"workers": [first], "allow_other_workers": False}
+            serial, two, one = [], [], []
+            for _ in range(repeats):
+                serial.append(_timed_run(plan, None))
+                two.append(_timed_run(plan, client))
+                one.append(_timed_run(plan, client, pinned))
         finally:
             client.close()
     finally:
         cluster.close()
+    serial_s, two_s, one_s = min(serial), min(two), min(one)
 
     rate_serial = n_targets / serial_s
     rate1 = n_targets / one_s
