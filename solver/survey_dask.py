@@ -28,9 +28,9 @@ import pandas as pd
 from solver.errors import InputError
 from solver.survey import SURVEY_FORMAT, SurveyPlan, scan_chunk
 from solver.survey_store import (
+    chunk_done,
     chunk_folder,
     merge_chunks,
-    read_chunk,
     sweep_temporaries,
     write_chunk,
     write_results,
@@ -152,6 +152,18 @@ async def _identity(address: str, timeout_s: float) -> object:
         comm.abort()
 
 
+def _run_coroutine(coroutine):
+    """Run a coroutine to completion, also from a thread whose event loop is running."""
+    try:
+        asyncio.get_running_loop()
+    except RuntimeError:
+        return asyncio.run(coroutine)
+    from concurrent.futures import ThreadPoolExecutor
+
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        return pool.submit(asyncio.run, coroutine).result()
+
+
 def connect(address: str, timeout_s: float = DEFAULT_CONNECT_TIMEOUT_S):
     """A client of the Dask scheduler at ``address``, checked for usable workers.
 
@@ -186,7 +198,7 @@ def connect(address: str, timeout_s: float = DEFAULT_CONNECT_TIMEOUT_S):
         raise InputError("--scheduler", address, f"{expected}; {exc}") from None
     # Ask whoever listens there who they are before building a Client, for the same reason.
     try:
-        identity = asyncio.run(_identity(address, timeout_s))
+        identity = _run_coroutine(_identity(address, timeout_s))
     except (OSError, TimeoutError) as exc:
         raise InputError(
             "--scheduler",
@@ -314,7 +326,7 @@ def describe_client(client) -> str:
 def pending_chunks(plan: SurveyPlan, out_path: str | Path) -> list:
     """The chunks of ``plan`` that have no valid file beside ``out_path`` yet."""
     folder = chunk_folder(out_path)
-    return [chunk for chunk in plan.chunks if read_chunk(folder, chunk) is None]
+    return [chunk for chunk in plan.chunks if not chunk_done(folder, chunk)]
 
 
 def run_survey(
@@ -357,7 +369,7 @@ def run_survey(
     run = SurveyRun(results=None, out_path=out)
     todo = []
     for chunk in plan.chunks:
-        if read_chunk(folder, chunk) is not None:
+        if chunk_done(folder, chunk):
             run.skipped.append(chunk.key)
         else:
             todo.append(chunk)

@@ -87,15 +87,22 @@ def write_chunk(folder: str | Path, chunk: Chunk, rows: list[dict]) -> Path:
     return path
 
 
-def read_chunk(folder: str | Path, chunk: Chunk) -> pd.DataFrame | None:
-    """The chunk's rows if its file exists and is complete and its own; else None."""
+def read_chunk(
+    folder: str | Path, chunk: Chunk, columns: list[str] | None = None
+) -> pd.DataFrame | None:
+    """The chunk's rows if its file exists and is complete and its own; else None.
+
+    ``columns`` reads only those (``target`` is always read: it is checked).
+    """
     import pyarrow.parquet as pq
 
     path = chunk_path(folder, chunk)
     if not path.is_file():
         return None
+    if columns is not None and "target" not in columns:
+        columns = ["target", *columns]
     try:
-        table = pq.read_table(path)
+        table = pq.read_table(path, columns=columns)
         record = json.loads((table.schema.metadata or {}).get(CHUNK_KEY, b"{}"))
         frame = table.to_pandas()
     except Exception as exc:  # a damaged or foreign file is recomputed, never trusted
@@ -122,6 +129,11 @@ def sweep_temporaries(folder: str | Path, max_age_s: float = STALE_TEMPORARY_AGE
         except FileNotFoundError:
             pass
     return removed
+
+
+def chunk_done(folder: str | Path, chunk: Chunk) -> bool:
+    """Whether the chunk has a valid file (reads its metadata and target column only)."""
+    return read_chunk(folder, chunk, columns=["target"]) is not None
 
 
 def merge_chunks(plan: SurveyPlan, folder: str | Path) -> pd.DataFrame:
@@ -163,6 +175,7 @@ def write_results(plan: SurveyPlan, span_rows: pd.DataFrame, out_path: str | Pat
 
 __all__ = [
     "CHUNK_KEY",
+    "chunk_done",
     "chunk_folder",
     "chunk_path",
     "merge_chunks",
