@@ -541,7 +541,7 @@ def to_toml_dict(case: Case) -> dict[str, Any]:
     if limits:
         raw["limits"] = limits
     if case.bodies:
-        raw["bodies"] = [_element_body_dict(b) for b in case.bodies]
+        raw["bodies"] = [element_body_dict(b) for b in case.bodies]
     return raw
 
 
@@ -638,7 +638,11 @@ def _element_bodies(entries: list) -> list[ElementBody]:
     return bodies
 
 
-def _element_body_dict(body: ElementBody) -> dict[str, Any]:
+def element_body_dict(body: ElementBody) -> dict[str, Any]:
+    """An element body as a ``[[bodies]]`` table (canonical units; round-trips exactly).
+
+    Used to put an :class:`ElementBody` into a case dict for :func:`case_from_dict`.
+    """
     out: dict[str, Any] = {
         "name": body.name,
         "central_body": body.central_body,
@@ -690,6 +694,7 @@ __all__ = [
     "Limits",
     "case_from_dict",
     "dumps_toml",
+    "element_body_dict",
     "load_case",
     "parse_case",
     "to_toml_dict",

@@ -169,6 +169,22 @@ def _propagate_kernel(r0, v0, dt, mu, r_out, v_out, ok_out):
         ok_out[i] = ok
 
 
+@numba.njit(cache=True, error_model="numpy")
+def _propagate_kernel_serial(r0, v0, dt, mu, r_out, v_out, ok_out):
+    for i in range(r0.shape[0]):
+        buf = np.empty(6)
+        ok = _propagate_via_periapsis(
+            r0[i, 0], r0[i, 1], r0[i, 2], v0[i, 0], v0[i, 1], v0[i, 2], dt[i], mu[i], buf
+        )
+        r_out[i, 0], r_out[i, 1], r_out[i, 2] = buf[0], buf[1], buf[2]
+        v_out[i, 0], v_out[i, 1], v_out[i, 2] = buf[3], buf[4], buf[5]
+        ok_out[i] = ok
+
+
+# Below this many states the serial kernel (no thread-pool start) is the faster one.
+_PARALLEL_MIN_STATES = 512
+
+
 def propagate(
     r0_km: ArrayLike,
     v0_km_s: ArrayLike,
@@ -223,7 +239,8 @@ def propagate(
     r_out = np.empty_like(r0f)
     v_out = np.empty_like(v0f)
     ok = np.empty(r0f.shape[0], dtype=np.bool_)
-    _propagate_kernel(r0f, v0f, dtf, muf, r_out, v_out, ok)
+    kernel = _propagate_kernel if len(dtf) >= _PARALLEL_MIN_STATES else _propagate_kernel_serial
+    kernel(r0f, v0f, dtf, muf, r_out, v_out, ok)
     r_out[~ok] = np.nan
     v_out[~ok] = np.nan
     r_out = r_out.reshape(*shape, 3)

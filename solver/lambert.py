@@ -433,6 +433,34 @@ def _solve_kernel(r1, r2, tof, mu, pole, retrograde, max_revs, angle_tol, v1, v2
         )
 
 
+@numba.njit(cache=True, error_model="numpy")
+def _solve_kernel_serial(
+    r1, r2, tof, mu, pole, retrograde, max_revs, angle_tol, v1, v2, x, iters, reason
+):
+    # A handful of cases (a cell click, a refinement step) is faster on the calling thread
+    # than through the thread pool, whose start costs more than the solves.
+    for i in range(r1.shape[0]):
+        _solve_one(
+            r1[i],
+            r2[i],
+            tof[i],
+            mu[i],
+            pole,
+            retrograde,
+            max_revs,
+            angle_tol,
+            v1[i],
+            v2[i],
+            x[i],
+            iters[i],
+            reason[i],
+        )
+
+
+# Below this many cases the serial kernel is the faster one.
+_PARALLEL_MIN_CASES = 512
+
+
 @dataclass(frozen=True)
 class LambertSolutions:
     """Every arc of every case, in solution slots along the second-to-last axis.
@@ -559,7 +587,8 @@ def solve_lambert(
     x = np.empty((n, n_slots))
     iterations = np.empty((n, n_slots), dtype=np.int16)
     reason = np.empty((n, n_slots), dtype=np.int8)
-    _solve_kernel(
+    kernel = _solve_kernel if n >= _PARALLEL_MIN_CASES else _solve_kernel_serial
+    kernel(
         r1f,
         r2f,
         tof_f,

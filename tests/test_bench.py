@@ -24,3 +24,18 @@ def test_bench_command_json(capsys):
     assert main(["bench", "--quick", "--section", "grid", "--json"]) == 0
     data = json.loads(capsys.readouterr().out)
     assert {row["section"] for row in data} == {"grid"}
+
+
+def test_lambert_baseline_solves_the_same_problem():
+    """The benchmark's scalar baseline must compute the same arcs, or its ratio means nothing."""
+    import numpy as np
+
+    from app.bench.lambert_bench import baseline_lambert, random_cases
+    from solver.lambert import solve_lambert
+
+    r1, r2, tof, mu = random_cases(100)
+    sol = solve_lambert(r1, r2, tof, mu)
+    for i in range(100):
+        v1, v2 = baseline_lambert(r1[i], r2[i], tof[i], mu[i])
+        assert np.linalg.norm(v1 - sol.v1_km_s[i, 0]) <= 1e-9 * np.linalg.norm(v1)
+        assert np.linalg.norm(v2 - sol.v2_km_s[i, 0]) <= 1e-9 * np.linalg.norm(v2)

@@ -22,7 +22,8 @@ SECTIONS: dict[str, str] = {
     "grid": "app.bench.grid_bench",
     "dashboard": "app.bench.dashboard_bench",
 }
-OPTIONAL_SECTIONS: dict[str, str] = {}
+# Sections run only when asked for (``--section NAME`` or their own flag, e.g. ``--survey``).
+OPTIONAL_SECTIONS: dict[str, str] = {"survey": "app.bench.survey_bench"}
 
 
 @dataclass

@@ -49,7 +49,7 @@ def random_cases(n: int, seed: int = SEED) -> tuple[np.ndarray, ...]:
 
 def _stumpff_c(z: float) -> float:
     if z > 1e-3:
-        return (1.0 - math.cos(math.sqrt(z))) / z
+        return 2.0 * math.sin(0.5 * math.sqrt(z)) ** 2 / z  # 1 - cos loses every digit near 4π²
     if z < -1e-3:
         return (math.cosh(math.sqrt(-z)) - 1.0) / -z
     return 0.5 - z / 24.0 + z * z / 720.0
@@ -90,7 +90,7 @@ def baseline_lambert(r1, r2, tof, mu):
             return -sqrt_mu_t
         return (y / _stumpff_c(z)) ** 1.5 * _stumpff_s(z) + a_coef * math.sqrt(y) - sqrt_mu_t
 
-    z_hi = 4.0 * math.pi**2 * (1.0 - 1e-12)
+    z_hi = 4.0 * math.pi**2 * (1.0 - 1e-9)
     z_lo = -4.0
     while f_of(z_lo) > 0.0 and z_lo > -1e6:
         z_lo *= 2.0
