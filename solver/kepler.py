@@ -239,8 +239,13 @@ def propagate(
     r_out = np.empty_like(r0f)
     v_out = np.empty_like(v0f)
     ok = np.empty(r0f.shape[0], dtype=np.bool_)
-    kernel = _propagate_kernel if len(dtf) >= _PARALLEL_MIN_STATES else _propagate_kernel_serial
-    kernel(r0f, v0f, dtf, muf, r_out, v_out, ok)
+    if len(dtf) >= _PARALLEL_MIN_STATES:
+        from solver.lambert import PARALLEL_LOCK  # one parallel launch at a time (see there)
+
+        with PARALLEL_LOCK:
+            _propagate_kernel(r0f, v0f, dtf, muf, r_out, v_out, ok)
+    else:
+        _propagate_kernel_serial(r0f, v0f, dtf, muf, r_out, v_out, ok)
     r_out[~ok] = np.nan
     v_out[~ok] = np.nan
     r_out = r_out.reshape(*shape, 3)

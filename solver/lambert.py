@@ -20,7 +20,9 @@ low-branch and high-branch arcs. Slots with no arc are NaN with a ``Reason`` cod
 
 from __future__ import annotations
 
+import contextlib
 import math
+import threading
 from dataclasses import dataclass
 
 import numba
@@ -459,6 +461,10 @@ def _solve_kernel_serial(
 
 # Below this many cases the serial kernel is the faster one.
 _PARALLEL_MIN_CASES = 512
+# One parallel launch at a time: numba's fallback threading layer (workqueue, used where neither
+# OpenMP nor TBB is present) must not be entered from two threads at once, and the dashboard
+# serves viewers from several threads. Each launch uses every core anyway.
+PARALLEL_LOCK = threading.Lock()
 
 
 @dataclass(frozen=True)
@@ -587,22 +593,24 @@ def solve_lambert(
     x = np.empty((n, n_slots))
     iterations = np.empty((n, n_slots), dtype=np.int16)
     reason = np.empty((n, n_slots), dtype=np.int8)
-    kernel = _solve_kernel if n >= _PARALLEL_MIN_CASES else _solve_kernel_serial
-    kernel(
-        r1f,
-        r2f,
-        tof_f,
-        mu_f,
-        pole_vec,
-        bool(retrograde),
-        max_revs,
-        float(angle_tol_rad),
-        v1,
-        v2,
-        x,
-        iterations,
-        reason,
-    )
+    parallel = n >= _PARALLEL_MIN_CASES
+    kernel = _solve_kernel if parallel else _solve_kernel_serial
+    with PARALLEL_LOCK if parallel else contextlib.nullcontext():
+        kernel(
+            r1f,
+            r2f,
+            tof_f,
+            mu_f,
+            pole_vec,
+            bool(retrograde),
+            max_revs,
+            float(angle_tol_rad),
+            v1,
+            v2,
+            x,
+            iterations,
+            reason,
+        )
     revolutions, branch = slot_layout(max_revs)
     return LambertSolutions(
         v1_km_s=v1.reshape(*shape, n_slots, 3),

@@ -9,13 +9,9 @@ limits first. Targets with no arc within limits are kept with the reason.
 
 Refinement (``SurveySettings.refine``):
 
-* ``"zoom"`` (default): nested grids around the best arc within limits, each a 9 x 9 grid spanning
-  plus and minus the previous step at a quarter of it, solved by the window engine, down to
-  under a minute (seven levels from a 5-day grid, 567 cells). Bounded cost (a few grids' worth),
-  limits honoured cell by cell, never worse than the coarse cell.
-* ``"slsqp"``: :func:`solver.refine.refine_best` (what ``arcwindow best`` does): continuous, to
-  the minute, but its cost varies from tens of evaluations to its 100-iteration cap (~1200
-  evaluations, over a second) when a limit is active at the optimum.
+* ``"zoom"`` (default) and ``"slsqp"``: the two methods of :func:`solver.refine.refine_best`
+  (nested grids down to under a minute, bounded cost, limits checked cell by cell; or SLSQP,
+  continuous but costlier when a limit binds).
 * ``"none"``: the coarse grid's best cell.
 
 Work is split into **chunks**: a block of consecutive targets times one year. A chunk is a plain
@@ -90,10 +86,6 @@ measured cost per target-year): long enough that Dask's ~1 ms per task is noise,
 balance load and to lose little when a worker dies."""
 
 REFINE_MODES = ("zoom", "slsqp", "none")
-ZOOM_SUBSTEPS = 4
-"""Zoom grids step a quarter of the previous step, over plus and minus the previous step."""
-ZOOM_FINEST_DAYS = 1.0 / 1440.0
-"""Zooming stops after the level whose step is first below a minute."""
 
 # ---------------------------------------------------------------------------------------------
 # Settings and spans
@@ -256,70 +248,6 @@ def _arc_at(case: Case, bodies: CaseBodies, dep_jd: float, arr_jd: float, grid, 
 _BRANCHES = {0: "single", 1: "low", 2: "high"}
 
 
-def zoom_best(
-    case: Case, grid, metric: str = "c3_km2_s2", *, bodies: CaseBodies | None = None
-) -> Arc:
-    """Refine a grid's best arc within limits by nested grids (see the module docstring).
-
-    Each level solves a 9 x 9 grid over plus and minus the current step around the best arc so
-    far, at a quarter of the step, clipped to the case's date windows, and moves to its best arc
-    within limits if that scores better. The last level steps under a minute (26 s from a 5-day
-    grid, after seven levels).
-
-    Raises
-    ------
-    InputError
-        No arc of the grid is within limits.
-    """
-    from dataclasses import replace
-
-    from solver.timescales import jd_tdb_to_utc
-
-    best = grid.best_cell(metric)
-    if best is None:
-        raise InputError("limits", "no arc of the grid within limits", "a window with one")
-    bodies = bodies or CaseBodies.of(case)
-    i, j, k = best
-    dep, arr = float(grid.departure_jd_tdb[i]), float(grid.arrival_jd_tdb[j])
-    arc = _arc_at(case, bodies, dep, arr, grid, k)
-    score = _score(arc.metrics[metric], metric)
-    half_dep, half_arr = case.departure_step_days, case.arrival_step_days
-    while min(half_dep, half_arr) >= ZOOM_FINEST_DAYS:
-        d0 = max(dep - half_dep, case.departure_start_jd_tdb)
-        d1 = min(dep + half_dep, case.departure_end_jd_tdb)
-        a0 = max(arr - half_arr, case.arrival_start_jd_tdb)
-        a1 = min(arr + half_arr, case.arrival_end_jd_tdb)
-        half_dep, half_arr = half_dep / ZOOM_SUBSTEPS, half_arr / ZOOM_SUBSTEPS
-        # The zoom window differs from the case only in its dates, which lie inside the case's
-        # validated windows: replace them directly instead of parsing a new case.
-        sub = replace(
-            case,
-            departure_start=str(jd_tdb_to_utc(d0)),
-            departure_end=str(jd_tdb_to_utc(d1)),
-            arrival_start=str(jd_tdb_to_utc(a0)),
-            arrival_end=str(jd_tdb_to_utc(a1)),
-            departure_start_jd_tdb=d0,
-            departure_end_jd_tdb=d1,
-            arrival_start_jd_tdb=a0,
-            arrival_end_jd_tdb=a1,
-            departure_step_days=half_dep,
-            arrival_step_days=half_arr,
-        )
-        zoom = compute_window(sub)
-        cell = zoom.best_cell(metric)
-        if cell is None:
-            continue
-        zi, zj, zk = cell
-        candidate = _arc_at(
-            case, bodies, zoom.departure_jd_tdb[zi], zoom.arrival_jd_tdb[zj], zoom, zk
-        )
-        candidate_score = _score(candidate.metrics[metric], metric)
-        if candidate.within and candidate_score < score:
-            arc, score = candidate, candidate_score
-            dep, arr = candidate.departure_jd_tdb, candidate.arrival_jd_tdb
-    return arc
-
-
 def scan_target(
     base: Case | Mapping[str, Any],
     body: ElementBody,
@@ -376,10 +304,8 @@ def scan_target(
         i, j, k = best
         grid_arc = _arc_at(case, bodies, grid.departure_jd_tdb[i], grid.arrival_jd_tdb[j], grid, k)
         arc = grid_arc
-        if settings.refine == "slsqp":
-            arc = refine_best(case, grid, metric).arc
-        elif settings.refine == "zoom":
-            arc = zoom_best(case, grid, metric, bodies=bodies)
+        if settings.refine != "none":
+            arc = refine_best(case, grid, metric, method=settings.refine).arc
         row.update(_arc_columns(arc))
         row["status"], row["within_limits"] = STATUS_WITHIN, True
         row["metric_value"] = float(arc.metrics[metric])
@@ -656,5 +582,4 @@ __all__ = [
     "target_body",
     "target_case",
     "year_spans",
-    "zoom_best",
 ]

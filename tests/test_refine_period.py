@@ -90,3 +90,13 @@ def test_launch_period_rejects_bad_lengths(vesper):
         launch_period(case, 10_000)
     with pytest.raises(InputError, match="strategy"):
         launch_period(case, 5, "sometimes")
+
+
+@pytest.mark.parametrize("method", ["zoom", "slsqp"])
+def test_refine_single_revolution_by_name_and_both_methods(vesper, method):
+    case, grid = vesper
+    refined = refine_best(case, grid, "c3_km2_s2", revolutions=0, branch="single", method=method)
+    assert refined.arc.revolutions == 0 and refined.arc.within
+    assert refined.arc.metrics["c3_km2_s2"] <= refined.grid_arc.metrics["c3_km2_s2"]
+    with pytest.raises(InputError, match="method"):
+        refine_best(case, grid, "c3_km2_s2", method="guess")

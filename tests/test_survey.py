@@ -21,6 +21,7 @@ from app.samples import SAMPLE_DIR, load
 from solver.element_bodies import ElementBody, read_element_csv
 from solver.ephem_mean import TABLE_1
 from solver.errors import InputError
+from solver.refine import refine_best
 from solver.survey import (
     RESULT_COLUMNS,
     SurveySettings,
@@ -31,7 +32,6 @@ from solver.survey import (
     results_base_case,
     scan_target,
     target_case,
-    zoom_best,
 )
 from solver.survey_dask import run_survey, start_local_cluster
 from solver.survey_store import chunk_folder, chunk_path
@@ -183,7 +183,7 @@ def test_zoom_respects_limits_and_never_loses_to_the_grid():
         if grid.best_cell("c3_km2_s2") is None:
             continue
         i, j, k = grid.best_cell("c3_km2_s2")
-        arc = zoom_best(case, grid)
+        arc = refine_best(case, grid, method="zoom").arc
         assert arc.within, body.name
         assert arc.metrics["vinf_arrival_km_s"] <= base.limits.vinf_arrival_max_km_s
         assert arc.metrics["c3_km2_s2"] <= grid.arcs["c3_km2_s2"][i, j, k], body.name

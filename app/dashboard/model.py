@@ -8,6 +8,7 @@ method here and pack the result.
 
 from __future__ import annotations
 
+import logging
 import math
 import threading
 from collections import OrderedDict
@@ -67,6 +68,8 @@ from .state import (
 _MEMO_SIZE = 32
 _MS_PER_DAY = 86_400_000.0
 
+
+_LOG = logging.getLogger(__name__)
 
 class _Memo:
     """A small thread-safe LRU for derived results keyed by hashable tuples."""
@@ -185,6 +188,7 @@ class BestArcs:
         except InputError:
             arc = None  # no arc of the grid within limits
         except Exception:  # keep the grid node rather than lose the page to a failed refinement
+            _LOG.exception("refining the best arc failed; keeping the grid node")
             arc = self._nodes.get(key) or None
         self._refined.put(key, arc or False)
         with self._lock:
