@@ -55,9 +55,15 @@ def _free_port() -> int:
 
 
 @pytest.fixture(scope="module")
-def server(tmp_path_factory):
+def server_folder(tmp_path_factory):
+    """The server's own cache, data and survey folders live here."""
+    return tmp_path_factory.mktemp("dashboard")
+
+
+@pytest.fixture(scope="module")
+def server(server_folder):
     """`arcwindow serve` in a subprocess with its own cache and data folders."""
-    folder = tmp_path_factory.mktemp("dashboard")
+    folder = server_folder
     port = _free_port()
     env = dict(os.environ, PYTHONUNBUFFERED="1")
     log = open(folder / "server.log", "w")
@@ -73,6 +79,8 @@ def server(tmp_path_factory):
             str(folder / "cache"),
             "--data-dir",
             str(folder / "data"),
+            "--survey-dir",
+            str(folder / "surveys"),
         ],
         cwd=ROOT,
         env=env,
@@ -395,3 +403,44 @@ def test_bw07_valid_upload_becomes_the_shown_case(server, tabs, tmp_path):
         + ".layout.title.text.startsWith('Earth to Venus')"
     )
     tab.shot("uploaded")
+
+
+def test_bw08_survey_page_lists_targets_and_opens_one(server, server_folder, tabs):
+    """A survey's ranked targets are listed; "open" shows that target's window map with its
+    best arc selected."""
+    from app.cli import main
+
+    surveys = server_folder / "surveys"
+    surveys.mkdir(exist_ok=True)
+    assert main(["survey", "demo_catalogue", "--case", "survey_base", "--years", "2031-2031",
+                 "--out", str(surveys / "bw08.parquet"), "--first", "4", "--workers", "0",
+                 "--coarse-step-days", "10", "--quiet"]) == 0
+    from solver.survey import load_results
+
+    best = load_results(surveys / "bw08.parquet").iloc[0]
+    tab = tabs()
+    page = tab.page
+    page.goto(server + "survey/?results=bw08")
+    page.wait_for_selector(f"tr[data-target='{best['target']}'] a:text('open')")
+    assert page.locator(".aw-survey-table tbody tr").count() == 4
+    tab.shot("listed")
+    page.locator(f"tr[data-target='{best['target']}'] a:text('open')").click()
+    page.wait_for_function(
+        "(t) => (document.querySelector('#text-case-title') || {}).innerText?.includes(t)",
+        arg=str(best["target"]),
+    )
+    wait_views_drawn(page)
+    departure = str(best["departure_utc"])[:10]
+    page.wait_for_function(
+        "(d) => { const t = document.querySelector('#div-details-arc');"
+        " return t && t.innerText.includes(d); }",
+        arg=departure,
+    )
+    tab.shot("opened")
+    # an unknown target comes back to the survey page with a clear message
+    page.goto(server + "survey-open?results=bw08&target=nobody")
+    page.wait_for_function(
+        "() => (document.querySelector('#div-survey-message') || {}).innerText?.includes("
+        "'target')"
+    )
+    tab.shot("unknown_target")

@@ -29,6 +29,12 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         "data folder)",
     )
     parser.add_argument(
+        "--survey-dir",
+        default=None,
+        help="folder of survey results (*.parquet) for the survey page (default: "
+        "$ARCWINDOW_SURVEY_DIR, else <data folder>/surveys)",
+    )
+    parser.add_argument(
         "--threads", type=int, default=8, help="request threads of the server (default 8)"
     )
     parser.add_argument("--open", action="store_true", help="open the dashboard in a web browser")
@@ -47,7 +53,9 @@ def run(args: argparse.Namespace) -> int:
         raise UserInputError(f"--port {args.port} is not accepted; expected 1 to 65535")
     if args.threads < 1:
         raise UserInputError(f"--threads {args.threads} is not accepted; expected at least 1")
-    dash_app = create_app(cache_dir=args.cache_dir, data_dir=args.data_dir)
+    dash_app = create_app(
+        cache_dir=args.cache_dir, data_dir=args.data_dir, surveys_dir=args.survey_dir
+    )
     url = f"http://{args.host}:{args.port}/"
     print(f"arcwindow dashboard at {url} (Ctrl+C to stop)", flush=True)
     if args.open:

@@ -7,7 +7,8 @@
   ``shortlist``: the shared shortlist file; ``exports``: downloads;
 * ``prepare``: solver results to display arrays; ``figures``: pure figure builders;
   ``theme``: colours and fonts;
-* ``model``: the above put together for the callbacks; ``layout``; ``callbacks``.
+* ``model``: the above put together for the callbacks; ``layout``; ``callbacks``;
+* ``surveys`` and ``survey_page``: the survey page at ``/survey/``.
 """
 
 from __future__ import annotations
@@ -27,15 +28,17 @@ def create_app(
     cache_dir: str | os.PathLike | None = None,
     data_dir: str | os.PathLike | None = None,
     cases_dir: str | os.PathLike | None = None,
+    surveys_dir: str | os.PathLike | None = None,
     model: DashboardModel | None = None,
 ) -> Dash:
     """Build the dashboard app.
 
     Parameters
     ----------
-    cache_dir, data_dir, cases_dir : path, optional
-        Grid cache folder, data folder (shortlist and uploaded cases) and sample-case folder;
-        each falls back to its environment variable, then its default (see ``config``).
+    cache_dir, data_dir, cases_dir, surveys_dir : path, optional
+        Grid cache folder, data folder (shortlist and uploaded cases), sample-case folder and
+        survey results folder; each falls back to its environment variable, then its default
+        (see ``config``).
     model : DashboardModel, optional
         A ready model (tests pass one with a stand-in grid engine).
 
@@ -45,9 +48,11 @@ def create_app(
         Serve ``app.server`` (a Flask WSGI app) with a production WSGI server.
     """
     from . import callbacks, layout
+    from .survey_page import create_survey_app
+    from .surveys import SurveyShelf
 
     if model is None:
-        model = DashboardModel(Settings.resolve(cache_dir, data_dir, cases_dir))
+        model = DashboardModel(Settings.resolve(cache_dir, data_dir, cases_dir, surveys_dir))
     app = Dash(
         __name__,
         title="arcwindow",
@@ -58,4 +63,6 @@ def create_app(
     app.layout = layout.page()
     callbacks.register(app, model)
     app.server.config["ARCWINDOW_MODEL"] = model
+    # The survey page: a second Dash app at /survey/ on the same server.
+    create_survey_app(app.server, SurveyShelf(model.settings.surveys_dir, model.catalogue))
     return app

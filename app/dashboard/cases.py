@@ -16,7 +16,7 @@ import threading
 from collections import OrderedDict
 from pathlib import Path
 
-from solver.case import Case, load_case, parse_case
+from solver.case import Case, dumps_toml, load_case, parse_case
 from solver.errors import InputError
 from solver.window import check_grid_size
 
@@ -129,6 +129,15 @@ class CaseCatalogue:
             raise InputError("upload", name, "a UTF-8 text TOML case file") from None
         case = parse_case(text, source_path=name)
         check_grid_size(case)
+        return self._store(raw)
+
+    def add_case(self, case: Case) -> str:
+        """Store a case built by the server (a survey target's window); returns its case id."""
+        check_grid_size(case)
+        return self._store(dumps_toml(case).encode("utf-8"))
+
+    def _store(self, raw: bytes) -> str:
+        """Keep validated case text under its content hash (atomic; the same text, the same id)."""
         case_id = UPLOAD_PREFIX + hashlib.sha256(raw).hexdigest()[:12]
         target = self.uploads_dir / f"{case_id}.toml"
         if not target.exists():

@@ -82,6 +82,7 @@ def header() -> html.Header:
             html.Div(id="text-case-title", className="aw-case-title"),
             html.Div(
                 [
+                    html.A("Survey results", href="/survey/", className="aw-nav-link"),
                     dcc.Clipboard(
                         id="clipboard-view-link",
                         title="copy a link to this view",
