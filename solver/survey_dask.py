@@ -402,29 +402,38 @@ def _run_on_dask(client, plan, todo, settings, retries, finished, run, options) 
 
     # The base case goes inside every task (a few kB): scattering it once would save little and
     # would tie every task to the workers holding the copy.
-    futures = {}
-    for chunk in todo:
-        future = client.submit(
-            scan_chunk,
-            plan.base_toml,
-            list(chunk.targets),
-            chunk.span,
-            settings,
-            retries=retries,
-            pure=False,
-            **options,
-        )
-        futures[future] = chunk
+    def submit(chunk):
+        return client.submit(scan_chunk, plan.base_toml, list(chunk.targets), chunk.span,
+                             settings, retries=retries, pure=False, **options)
+
+    futures = {submit(chunk): chunk for chunk in todo}
+    resubmitted: dict[str, int] = {}
+    pending = as_completed(list(futures), loop=client.loop)
     try:
-        for future in as_completed(list(futures), loop=client.loop):
+        for future in pending:
             chunk = futures.pop(future)
-            if future.status == "finished":
-                finished(chunk, future.result())
-            elif future.status == "error":
+            outcome = future.status
+            if outcome == "finished":
+                try:
+                    result = future.result()
+                except Exception:  # the worker holding the result died before we fetched it
+                    outcome = "lost"
+                else:
+                    finished(chunk, result)
+            if outcome == "error":
                 exc = future.exception()
                 run.failed.append((chunk.key, f"{type(exc).__name__}: {exc}"))
-            else:
-                run.failed.append((chunk.key, f"task {future.status}"))
+            elif outcome != "finished":
+                # Lost with its worker (or cancelled by the cluster): submit the chunk again, as
+                # Dask's own retries only cover tasks that raise.
+                tries = resubmitted.get(chunk.key, 0)
+                if tries <= retries:
+                    resubmitted[chunk.key] = tries + 1
+                    again = submit(chunk)
+                    futures[again] = chunk
+                    pending.add(again)
+                else:
+                    run.failed.append((chunk.key, f"task {outcome} {tries + 1} times"))
             future.release()
     finally:
         for future in futures:  # interrupted: leave nothing running on a shared cluster
