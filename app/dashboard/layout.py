@@ -184,7 +184,8 @@ def date_controls() -> html.Section:
                 _number("input-step-departure", "departure step", "days", ""),
                 _number("input-step-arrival", "arrival step", "days", ""),
             ],
-            className="aw-pair",
+            # one per row: steps of minutes need the width (0.00347 days = 5 min)
+            className="aw-stack",
         ),
         html.Div(id="text-step-hint", className="aw-small"),
         html.Div(FUTURE_UTC_NOTE, className="aw-small aw-note"),
