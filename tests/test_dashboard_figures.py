@@ -109,7 +109,8 @@ def test_map_data_is_the_grid_transposed_with_its_hover_numbers(tallis):
     case, grid = tallis
     data = map_data(grid, "c3_km2_s2", "0")
     n_dep, n_arr, _ = grid.shape
-    assert data.values.shape == (n_arr, n_dep) and data.hover.shape == (n_arr, n_dep, 6)
+    assert data.values.shape == (n_arr, n_dep)
+    assert data.hover.shape == (n_arr, n_dep, len(HOVER_FIELDS))
     i, j = 140, 210
     assert data.values[j, i] == pytest.approx(grid.arcs["c3_km2_s2"][i, j, 0], rel=1e-6)
     for k, (name, *_rest) in enumerate(HOVER_FIELDS):
@@ -297,3 +298,27 @@ def test_details_carry_every_metric_with_units(tallis):
     point = map_point(arc, "dla_deg", "best arc")
     assert point.value == pytest.approx(abs(arc.metrics["dla_deg"]))
     assert CaseBodies.of(case).central.name == "sun"
+
+
+def test_hover_carries_the_entry_speed_when_the_case_asks_for_it():
+    from app.samples import load
+    from solver.window import compute_window
+
+    case = load("vesper_venus_orbiter")  # entry_altitude_km = 125
+    grid = compute_window(case)
+    data = map_data(grid, "c3_km2_s2", "0")
+    names = [name for name, *_ in data.hover_fields]
+    assert names[-1] == "entry_speed_km_s" and data.hover.shape[-1] == len(HOVER_FIELDS) + 1
+    i, j = 60, 120
+    assert data.hover[j, i, -1] == pytest.approx(grid.arcs["entry_speed_km_s"][i, j, 0], rel=1e-6)
+
+
+def test_large_responses_are_compressed(tmp_path):
+    """The server gzips what it sends to browsers that accept it (maps run to megabytes)."""
+    from app.dashboard import create_app
+
+    client = create_app(cache_dir=tmp_path, data_dir=tmp_path).server.test_client()
+    plain = client.get("/_dash-layout")
+    packed = client.get("/_dash-layout", headers={"Accept-Encoding": "gzip"})
+    assert packed.headers.get("Content-Encoding") == "gzip"
+    assert len(packed.data) < len(plain.data) / 3

@@ -59,6 +59,10 @@ def create_app(
         update_title=None,
         assets_folder=str(ASSETS_DIR),
         serve_locally=True,
+        # Maps carry every number of every cell for the hover (several MB as base64 floats);
+        # compressed they cross a team's network a few times faster. Applies to the whole
+        # server, the survey page included.
+        compress=True,
     )
     app.layout = layout.page()
     callbacks.register(app, model)

@@ -51,16 +51,22 @@ _UNIX_EPOCH_JD = 2440587.5
 _MS_PER_DAY = 86_400_000.0
 
 # The numbers every heat-map cell carries for its hover label: (metric column, label, unit,
-# format). Six float32 numbers a cell: the departure and arrival parts of the total Δv are in the
-# details panel of a clicked cell, which keeps a 600 x 600 map under 12 MB.
+# format), float32 each. Every number of the cell's arc; large responses go out gzip-compressed
+# (see ``app.dashboard.compression``), which keeps a 600 x 600 map to a few MB on the wire.
 HOVER_FIELDS: tuple[tuple[str, str, str, str], ...] = (
     ("tof_days", "TOF", "days", ".1f"),
+    ("transfer_angle_deg", "transfer angle", "deg", ".1f"),
     ("c3_km2_s2", "C3", "km²/s²", ".2f"),
     ("dla_deg", "DLA", "deg", ".1f"),
+    ("rla_deg", "RLA", "deg", ".1f"),
+    ("dv_departure_km_s", "departure Δv", "km/s", ".3f"),
     ("vinf_arrival_km_s", "arrival v∞", "km/s", ".3f"),
+    ("vinf_arrival_dec_deg", "arrival v∞ declination", "deg", ".1f"),
+    ("dv_arrival_km_s", "arrival Δv", "km/s", ".3f"),
     ("dv_total_km_s", "total Δv", "km/s", ".3f"),
-    ("transfer_angle_deg", "transfer angle", "deg", ".1f"),
 )
+ENTRY_HOVER_FIELD = ("entry_speed_km_s", "entry speed", "km/s", ".3f")
+"""Added when the case asks for an entry speed (an entry altitude)."""
 
 LIMIT_OF_METRIC = {
     "c3_km2_s2": "c3_max_km2_s2",
@@ -261,11 +267,13 @@ def map_data(
     lines = _Sampler(grid, slot, slot_per_cell, min(contour_points, max_points))
     hover = None
     fields = HOVER_FIELDS
+    if grid.case.entry_altitude_km is not None:
+        fields = (*fields, ENTRY_HOVER_FIELD)
     tof_days_max = float(np.nanmax(grid.tof_days))
     if not preview:
-        hover = np.stack([heat.field(name) for name, *_ in HOVER_FIELDS], axis=-1)
+        hover = np.stack([heat.field(name) for name, *_ in fields], axis=-1)
         if tof_days_max < 2.0:  # a window of hours: TOF in hours reads better than 0.2 days
-            k = [f[0] for f in HOVER_FIELDS].index("tof_days")
+            k = [f[0] for f in fields].index("tof_days")
             hover[..., k] *= np.float32(24.0)
             fields = tuple(
                 ("tof_hours", "TOF", "h", ".2f") if f[0] == "tof_days" else f for f in fields
@@ -677,6 +685,7 @@ def arc_details(
 __all__ = [
     "CONTOUR_MAX_POINTS",
     "DISPLAY_MAX_POINTS",
+    "ENTRY_HOVER_FIELD",
     "HOVER_FIELDS",
     "PREVIEW_MAX_POINTS",
     "ArcScene",
