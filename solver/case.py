@@ -62,7 +62,7 @@ from pathlib import Path
 from typing import Any
 
 from solver.bodies import Body, BodyRegistry, default_registry
-from solver.element_bodies import ElementBody
+from solver.element_bodies import ELEMENT_FIELDS, ElementBody
 from solver.errors import InputError
 from solver.timescales import jd_tdb_to_utc, utc_to_jd_tdb
 
@@ -92,23 +92,6 @@ _SECTIONS = {
         "tof_max_days",
     },
     "ephemeris": {"source"},
-}
-_ELEMENT_KEYS = {
-    "name",
-    "central_body",
-    "epoch_utc",
-    "epoch_jd_tdb",
-    "semi_major_axis_km",
-    "semi_major_axis_au",
-    "eccentricity",
-    "inclination_deg",
-    "raan_deg",
-    "arg_periapsis_deg",
-    "mean_anomaly_deg",
-    "true_anomaly_deg",
-    "gm_km3_s2",
-    "radius_km",
-    "frame",
 }
 
 
@@ -615,11 +598,13 @@ def _element_bodies(entries: list) -> list[ElementBody]:
         prefix = f"bodies[{index}]."
         if not isinstance(entry, dict):
             raise InputError(f"bodies[{index}]", entry, "a [[bodies]] table")
-        unknown = set(entry) - _ELEMENT_KEYS
+        unknown = set(entry) - ELEMENT_FIELDS
         if unknown:
             key = sorted(unknown)[0]
             raise InputError(
-                prefix + key, entry[key], "a known element key: " + ", ".join(sorted(_ELEMENT_KEYS))
+                prefix + key,
+                entry[key],
+                "a known element key: " + ", ".join(sorted(ELEMENT_FIELDS)),
             )
         if "name" not in entry:
             raise InputError(prefix + "name", "(missing)", "a body name")

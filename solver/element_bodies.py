@@ -406,6 +406,9 @@ CSV_ONE_OF = (
 )
 CSV_OPTIONAL = ("central_body", "gm_km3_s2", "radius_km", "frame")
 _CSV_KNOWN = set(CSV_REQUIRED) | {c for pair in CSV_ONE_OF for c in pair} | set(CSV_OPTIONAL)
+ELEMENT_FIELDS: frozenset[str] = frozenset(_CSV_KNOWN)
+"""Every field name of an element body: CSV columns, case ``[[bodies]]`` keys and the keyword
+arguments of :meth:`ElementBody.from_elements` (plus ``name``)."""
 
 
 def read_element_csv(

@@ -25,7 +25,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from solver.case import Case, case_from_dict, element_body_dict, to_toml_dict
-from solver.element_bodies import ElementBody
+from solver.element_bodies import ELEMENT_FIELDS, ElementBody
 from solver.errors import InputError
 
 
@@ -76,22 +76,7 @@ def target_body(target: Any, registry=None) -> ElementBody:
     return ElementBody.from_elements(name, registry=registry, field_prefix="target ", **kwargs)
 
 
-_ELEMENT_ARGUMENTS = {
-    "central_body",
-    "epoch_utc",
-    "epoch_jd_tdb",
-    "semi_major_axis_km",
-    "semi_major_axis_au",
-    "eccentricity",
-    "inclination_deg",
-    "raan_deg",
-    "arg_periapsis_deg",
-    "mean_anomaly_deg",
-    "true_anomaly_deg",
-    "gm_km3_s2",
-    "radius_km",
-    "frame",
-}
+_ELEMENT_ARGUMENTS = ELEMENT_FIELDS - {"name"}
 
 
 def _missing(value: Any) -> bool:
