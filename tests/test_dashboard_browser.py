@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import os
 import shutil
+import signal
 import socket
 import subprocess
 import sys
@@ -101,6 +102,10 @@ def server(server_folder):
             pytest.fail("server did not start:\n" + (folder / "server.log").read_text()[-3000:])
         time.sleep(0.1)  # polling a socket for readiness, not waiting on the page
     yield url
+    if os.environ.get("ARCWINDOW_KEEP_SERVER_LOG"):  # debugging aid: stacks of every thread
+        proc.send_signal(signal.SIGUSR1)
+        time.sleep(1.0)
+        shutil.copy(folder / "server.log", os.environ["ARCWINDOW_KEEP_SERVER_LOG"])
     proc.terminate()
     try:
         proc.wait(timeout=10)

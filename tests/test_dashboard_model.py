@@ -381,3 +381,34 @@ def test_shortlist_entry_is_recomputed_from_the_view_and_its_link_reopens_it(mod
     assert again.selected == view.selected and not notes
     with pytest.raises(InputError):
         model.keep(ViewState(case="no_such_case"), "", "")
+
+
+def test_inputs_that_change_together_are_all_heard(tmp_path):
+    """Regression: when a new view and a slider's drag echo (or a poll tick and a click) arrive in
+    the same round, Dash names only the first as triggered; the map must still be drawn and the
+    click still kept (a freshly loaded page once stayed on "Loading..." this way)."""
+    from app.bench.dashboard_bench import DashClient, _test_client_transport
+
+    model = DashboardModel(Settings.resolve(tmp_path / "c", tmp_path / "d", SAMPLES))
+    app = create_app(model=model)
+    deps = app.server.test_client().get("/_dash-dependencies").get_json()
+    client = DashClient(_test_client_transport(app), deps)
+    client.values["location-page-url.search"] = "?case=vesper_venus_orbiter"
+    assert client.sync("location-page-url.search") == 200
+    status, reply = client.call(
+        "graph-window-map.figure",
+        ["slider-departure-range.drag_value", "store-view-state.data"],
+    )
+    assert status == 200
+    figure = reply["response"]["graph-window-map"]["figure"]
+    assert figure["data"][0]["type"] == "heatmap"
+
+    client.draw_selection()
+    client.values["button-shortlist-add.n_clicks"] = 1
+    client.values["input-shortlist-author.value"] = "RM"
+    status, reply = client.call(
+        "div-shortlist-table.children",
+        ["interval-shortlist-poll.n_intervals", "button-shortlist-add.n_clicks"],
+    )
+    assert status == 200 and len(model.shortlist.entries()) == 1
+    model.shutdown()

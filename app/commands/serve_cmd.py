@@ -42,6 +42,9 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    import faulthandler
+    import signal
+    import sys
     import webbrowser
 
     import waitress
@@ -53,6 +56,10 @@ def run(args: argparse.Namespace) -> int:
         raise UserInputError(f"--port {args.port} is not accepted; expected 1 to 65535")
     if args.threads < 1:
         raise UserInputError(f"--threads {args.threads} is not accepted; expected at least 1")
+    # `kill -USR1 <pid>` prints every thread's stack to stderr: how to see what a stuck
+    # request is waiting on, without stopping the session.
+    if hasattr(signal, "SIGUSR1"):
+        faulthandler.register(signal.SIGUSR1, file=sys.stderr, all_threads=True)
     dash_app = create_app(
         cache_dir=args.cache_dir, data_dir=args.data_dir, surveys_dir=args.survey_dir
     )

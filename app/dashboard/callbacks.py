@@ -264,6 +264,11 @@ def register(app, model: DashboardModel) -> None:
         view = ViewState.from_dict(view_data)
         case = model.case(view)
         trigger = ctx.triggered_id
+        # Inputs that changed in the same round arrive together and ctx.triggered_id names only
+        # the first: a new view (or a retry) must win over a slider's drag echo or a poll tick,
+        # or the map of a freshly loaded page is never drawn.
+        if _fired() & {"store-view-state", "button-grid-retry"}:
+            trigger = "store-view-state"
         if trigger in SLIDER_IDS.values():
             dep_now = [iso_to_unix_days(case.departure_start), iso_to_unix_days(case.departure_end)]
             arr_now = [iso_to_unix_days(case.arrival_start), iso_to_unix_days(case.arrival_end)]
@@ -360,7 +365,7 @@ def register(app, model: DashboardModel) -> None:
             return nothing
         view = ViewState.from_dict(view_data)
         query = to_query(view)
-        polled = ctx.triggered_id == "interval-grid-poll"
+        polled = _fired() == {"interval-grid-poll"}  # a tick alone, not with a new view
         same = bool(drawn) and drawn.get("for_view") == query
         if polled and (view.selected or (same and drawn.get("refined", True))):
             return nothing
@@ -435,6 +440,8 @@ def register(app, model: DashboardModel) -> None:
     )
     def keep_shortlist(add, removes, tick, note, author, view_data, version):
         trigger = ctx.triggered_id
+        if "button-shortlist-add" in _fired():
+            trigger = "button-shortlist-add"  # a click that lands with a poll tick still counts
         note_out, message = no_update, no_update
         shortlist = model.shortlist
         view = ViewState.from_dict(view_data) if view_data else None
@@ -542,6 +549,11 @@ def register(app, model: DashboardModel) -> None:
 
 # ---------------------------------------------------------------------------------------------
 # Helpers
+
+
+def _fired() -> set[str]:
+    """Ids of every input that changed in this round (``ctx.triggered_id`` names only one)."""
+    return {t["prop_id"].rsplit(".", 1)[0] for t in ctx.triggered or [] if t.get("prop_id")}
 
 
 def _poll_refinement(out: dict, model: DashboardModel, view: ViewState, case, shown) -> dict:
