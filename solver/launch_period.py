@@ -25,6 +25,7 @@ from scipy.optimize import minimize_scalar
 
 from solver.case import Case
 from solver.errors import InputError
+from solver.timescales import MINUTE_DAYS, round_to_minute_from
 from solver.window import Arc, CaseBodies, compute_window, solve_cell
 
 STRATEGIES = ("fixed-arrival", "free-arrival")
@@ -78,10 +79,19 @@ def _best_arc(arcs: list[Arc]) -> Arc | None:
     return min(feasible, key=lambda a: a.metrics["c3_km2_s2"]) if feasible else None
 
 
-def _to_minute(grid_jd: float, jd: float) -> float:
-    """``jd`` moved to a whole number of minutes from the grid date (whole UTC minutes)."""
-    minute = 1.0 / 1440.0
-    return grid_jd + round((jd - grid_jd) / minute) * minute
+def _best_arrival(c3_of_arrival, grid_arrival_jd: float, step_days: float) -> float:
+    """The arrival date, to the minute, within a grid step of ``grid_arrival_jd`` that minimizes
+    ``c3_of_arrival``; the grid date itself if the continuous search does not beat it."""
+    result = minimize_scalar(
+        c3_of_arrival,
+        bounds=(grid_arrival_jd - step_days, grid_arrival_jd + step_days),
+        method="bounded",
+        options={"xatol": MINUTE_DAYS},
+    )
+    arrival = round_to_minute_from(grid_arrival_jd, float(result.x))
+    return (
+        arrival if c3_of_arrival(arrival) <= c3_of_arrival(grid_arrival_jd) else (grid_arrival_jd)
+    )
 
 
 def _day(arc: Arc) -> PeriodDay:
@@ -153,16 +163,7 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
             arcs = [_best_arc(solve_cell(feasible_case, d, arrival, bodies)) for d in dep]
             return max((a.metrics["c3_km2_s2"] if a else math.inf) for a in arcs)
 
-        step = feasible_case.arrival_step_days
-        result = minimize_scalar(
-            period_max,
-            bounds=(arr0 - step, arr0 + step),
-            method="bounded",
-            options={"xatol": 1.0 / 1440.0},
-        )
-        arrival = _to_minute(arr0, float(result.x))
-        if period_max(arrival) > period_max(arr0):
-            arrival = arr0
+        arrival = _best_arrival(period_max, arr0, feasible_case.arrival_step_days)
         arcs = [_best_arc(solve_cell(feasible_case, d, arrival, bodies)) for d in dep]
         fixed_arrival: float | None = arrival
     else:
@@ -186,15 +187,7 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
                 arc = _best_arc(solve_cell(feasible_case, d, arrival, bodies))
                 return arc.metrics["c3_km2_s2"] if arc else math.inf
 
-            result = minimize_scalar(
-                day_c3,
-                bounds=(arr0 - step, arr0 + step),
-                method="bounded",
-                options={"xatol": 1.0 / 1440.0},
-            )
-            arrival = _to_minute(arr0, float(result.x))
-            if day_c3(arrival) > day_c3(arr0):
-                arrival = arr0
+            arrival = _best_arrival(day_c3, arr0, step)
             arcs.append(_best_arc(solve_cell(feasible_case, d, arrival, bodies)))
         fixed_arrival = None
 

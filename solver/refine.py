@@ -25,7 +25,7 @@ from scipy.optimize import minimize
 from solver.case import Case
 from solver.errors import InputError
 from solver.lambert import BRANCH_NAMES
-from solver.timescales import jd_tdb_to_utc
+from solver.timescales import MINUTE_DAYS, jd_tdb_to_utc, round_to_minute_from
 from solver.window import (
     METRICS,
     Arc,
@@ -36,7 +36,6 @@ from solver.window import (
     solve_cell,
 )
 
-MINUTE_DAYS = 1.0 / 1440.0
 METHODS = ("zoom", "slsqp")
 ZOOM_SUBSTEPS = 4
 """Zoom grids step a quarter of the previous step, over plus and minus the previous step."""
@@ -67,11 +66,15 @@ def _value(arc: Arc, metric: str) -> float:
     return abs(value) if METRICS[metric].rank_by_magnitude else value
 
 
-def _slot_arc(case: Case, bodies: CaseBodies, dep: float, arr: float, grid: WindowGrid,
-              slot: int) -> Arc:
+def _slot_arc(
+    case: Case, bodies: CaseBodies, dep: float, arr: float, grid: WindowGrid, slot: int
+) -> Arc:
     """The arc of a grid slot (its revolutions and branch) between two epochs."""
-    return select_arc(solve_cell(case, float(dep), float(arr), bodies),
-                      int(grid.revolutions[slot]), BRANCH_NAMES[int(grid.branch[slot])])
+    return select_arc(
+        solve_cell(case, float(dep), float(arr), bodies),
+        int(grid.revolutions[slot]),
+        BRANCH_NAMES[int(grid.branch[slot])],
+    )
 
 
 def refine_best(
@@ -110,19 +113,28 @@ def refine_best(
         wanted = 0 if revolutions == 0 else {"low": 1, "high": 2}.get(branch or "low")
         if wanted is None:
             raise InputError("branch", branch, "'low' or 'high'")
-        slots = [k for k in range(len(grid.revolutions))
-                 if grid.revolutions[k] == revolutions and grid.branch[k] == wanted]
+        slots = [
+            k
+            for k in range(len(grid.revolutions))
+            if grid.revolutions[k] == revolutions and grid.branch[k] == wanted
+        ]
         if not slots:
-            raise InputError("revolutions", revolutions,
-                             f"0 to {case.max_revolutions} (the case's max_revolutions)")
+            raise InputError(
+                "revolutions",
+                revolutions,
+                f"0 to {case.max_revolutions} (the case's max_revolutions)",
+            )
     within = _only_slots(grid.within, slots)
     values = grid.metric(metric)
     if METRICS[metric].rank_by_magnitude:
         values = np.abs(values)
     score = np.where(within, values, np.inf)
     if not np.isfinite(score).any():
-        raise InputError("limits", "no arc of the grid within limits",
-                         "a window or limits that leave at least one arc")
+        raise InputError(
+            "limits",
+            "no arc of the grid within limits",
+            "a window or limits that leave at least one arc",
+        )
     i, j, k = np.unravel_index(int(np.argmin(score)), score.shape)
     bodies = CaseBodies.of(case)
     grid_arc = _slot_arc(case, bodies, grid.departure_jd_tdb[i], grid.arrival_jd_tdb[j], grid, k)
@@ -130,9 +142,14 @@ def refine_best(
         arc, evaluations, message = _zoom(case, bodies, grid_arc, metric, slots)
     else:
         arc, evaluations, message = _slsqp(case, bodies, grid_arc, metric)
-    return RefinedArc(arc=arc, metric=metric, grid_arc=grid_arc,
-                      improvement=_value(grid_arc, metric) - _value(arc, metric),
-                      evaluations=evaluations, message=message)
+    return RefinedArc(
+        arc=arc,
+        metric=metric,
+        grid_arc=grid_arc,
+        improvement=_value(grid_arc, metric) - _value(arc, metric),
+        evaluations=evaluations,
+        message=message,
+    )
 
 
 def _only_slots(within: np.ndarray, slots: list[int] | None) -> np.ndarray:
@@ -143,8 +160,9 @@ def _only_slots(within: np.ndarray, slots: list[int] | None) -> np.ndarray:
     return within & keep
 
 
-def _zoom(case: Case, bodies: CaseBodies, start: Arc, metric: str,
-          slots: list[int] | None) -> tuple[Arc, int, str]:
+def _zoom(
+    case: Case, bodies: CaseBodies, start: Arc, metric: str, slots: list[int] | None
+) -> tuple[Arc, int, str]:
     """Nested grids around ``start``; returns (arc, cells solved, message)."""
     arc, score = start, _value(start, metric)
     dep, arr = start.departure_jd_tdb, start.arrival_jd_tdb
@@ -157,11 +175,19 @@ def _zoom(case: Case, bodies: CaseBodies, start: Arc, metric: str,
         a1 = min(arr + half_arr, case.arrival_end_jd_tdb)
         half_dep, half_arr = half_dep / ZOOM_SUBSTEPS, half_arr / ZOOM_SUBSTEPS
         # Only the dates differ from the validated case, and they lie inside its windows.
-        sub = replace(case, departure_start=str(jd_tdb_to_utc(d0)),
-                      departure_end=str(jd_tdb_to_utc(d1)), arrival_start=str(jd_tdb_to_utc(a0)),
-                      arrival_end=str(jd_tdb_to_utc(a1)), departure_start_jd_tdb=d0,
-                      departure_end_jd_tdb=d1, arrival_start_jd_tdb=a0, arrival_end_jd_tdb=a1,
-                      departure_step_days=half_dep, arrival_step_days=half_arr)
+        sub = replace(
+            case,
+            departure_start=str(jd_tdb_to_utc(d0)),
+            departure_end=str(jd_tdb_to_utc(d1)),
+            arrival_start=str(jd_tdb_to_utc(a0)),
+            arrival_end=str(jd_tdb_to_utc(a1)),
+            departure_start_jd_tdb=d0,
+            departure_end_jd_tdb=d1,
+            arrival_start_jd_tdb=a0,
+            arrival_end_jd_tdb=a1,
+            departure_step_days=half_dep,
+            arrival_step_days=half_arr,
+        )
         zoom = compute_window(sub)
         cells += zoom.reason.size
         zoom.within = _only_slots(zoom.within, slots)
@@ -169,19 +195,24 @@ def _zoom(case: Case, bodies: CaseBodies, start: Arc, metric: str,
         if cell is None:
             continue
         zi, zj, zk = cell
-        candidate = _slot_arc(case, bodies, zoom.departure_jd_tdb[zi], zoom.arrival_jd_tdb[zj],
-                              zoom, zk)
+        candidate = _slot_arc(
+            case, bodies, zoom.departure_jd_tdb[zi], zoom.arrival_jd_tdb[zj], zoom, zk
+        )
         if candidate.within and _value(candidate, metric) < score:
             arc, score = candidate, _value(candidate, metric)
             dep, arr = arc.departure_jd_tdb, arc.arrival_jd_tdb
     # Report whole minutes from the grid's dates when that keeps the arc within limits and
     # no worse than the grid cell (the last level stepped ~20 s).
-    rounded = [start.departure_jd_tdb + round((jd - origin) / MINUTE_DAYS) * MINUTE_DAYS
-               for jd, origin in ((arc.departure_jd_tdb, start.departure_jd_tdb),
-                                  (arc.arrival_jd_tdb, start.arrival_jd_tdb))]
-    rounded[1] += start.arrival_jd_tdb - start.departure_jd_tdb
-    candidate = select_arc(solve_cell(case, rounded[0], rounded[1], bodies), arc.revolutions,
-                           arc.branch)
+    candidate = select_arc(
+        solve_cell(
+            case,
+            round_to_minute_from(start.departure_jd_tdb, arc.departure_jd_tdb),
+            round_to_minute_from(start.arrival_jd_tdb, arc.arrival_jd_tdb),
+            bodies,
+        ),
+        arc.revolutions,
+        arc.branch,
+    )
     if candidate.within and _value(candidate, metric) <= _value(start, metric):
         arc = candidate
     return arc, cells, f"nested grids down to the minute ({cells} cells)"
@@ -216,8 +247,11 @@ def _slsqp(case: Case, bodies: CaseBodies, start: Arc, metric: str) -> tuple[Arc
         key = (float(x[0]), float(x[1]))
         if key not in memo:
             dep, arr = dep0 + key[0], arr0 + key[1]
-            arc = (select_arc(solve_cell(case, dep, arr, bodies), start.revolutions,
-                              start.branch) if arr > dep else None)
+            arc = (
+                select_arc(solve_cell(case, dep, arr, bodies), start.revolutions, start.branch)
+                if arr > dep
+                else None
+            )
             memo[key] = arc if arc is not None and arc.ok else None
         return memo[key]
 
@@ -231,24 +265,37 @@ def _slsqp(case: Case, bodies: CaseBodies, start: Arc, metric: str) -> tuple[Arc
         arc = arc_at(x)
         return np.array(_limit_margins(case, bodies, arc) if arc is not None else [-1e6])
 
-    bounds = [(case.departure_start_jd_tdb - dep0, case.departure_end_jd_tdb - dep0),
-              (case.arrival_start_jd_tdb - arr0, case.arrival_end_jd_tdb - arr0)]
+    bounds = [
+        (case.departure_start_jd_tdb - dep0, case.departure_end_jd_tdb - dep0),
+        (case.arrival_start_jd_tdb - arr0, case.arrival_end_jd_tdb - arr0),
+    ]
     # Finite-difference step: a hundredth of the grid step (1.4 min for a daily grid).
     step_days = 0.01 * min(case.departure_step_days, case.arrival_step_days)
     try:
-        result = minimize(objective, np.zeros(2), method="SLSQP", bounds=bounds,
-                          constraints=[{"type": "ineq", "fun": constraints}],
-                          options={"ftol": 1e-12, "maxiter": 100, "eps": step_days})
+        result = minimize(
+            objective,
+            np.zeros(2),
+            method="SLSQP",
+            bounds=bounds,
+            constraints=[{"type": "ineq", "fun": constraints}],
+            options={"ftol": 1e-12, "maxiter": 100, "eps": step_days},
+        )
         found, note = np.asarray(result.x), str(result.message)
     except _EnoughEvaluations:
         seen = [(x, a) for x, a in memo.items() if a is not None and a.within]
-        found = (np.asarray(min(seen, key=lambda item: _value(item[1], metric))[0]) if seen
-                 else np.zeros(2))
+        found = (
+            np.asarray(min(seen, key=lambda item: _value(item[1], metric))[0])
+            if seen
+            else np.zeros(2)
+        )
         note = f"stopped after {SLSQP_MAX_EVALUATIONS} evaluations"
     # Round to the minute and check the rounded arc, not the optimizer's claim.
     candidate = arc_at(np.round(found / MINUTE_DAYS) * MINUTE_DAYS)
-    if (candidate is not None and candidate.within
-            and _value(candidate, metric) <= _value(start, metric)):
+    if (
+        candidate is not None
+        and candidate.within
+        and _value(candidate, metric) <= _value(start, metric)
+    ):
         return candidate, len(memo), f"refined to the minute ({note})"
     return start, len(memo), "grid arc kept: " + note
 

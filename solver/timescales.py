@@ -284,3 +284,15 @@ def _format(jd_tdb, jd_tdb2, digits, suffix: str, *, utc: bool):
     if a.ndim == 0:
         return out[0]
     return np.array(out).reshape(a.shape)
+
+
+MINUTE_DAYS = 1.0 / 1440.0
+
+
+def round_to_minute_from(origin_jd_tdb: float, jd_tdb: float) -> float:
+    """``jd_tdb`` moved to a whole number of minutes from ``origin_jd_tdb``.
+
+    Grid dates are whole UTC minutes (or days); a refined date rounded this way is too, so it
+    prints as ``hh:mm:00`` (to within the ~ms TDB-UTC drift over the interval).
+    """
+    return origin_jd_tdb + round((jd_tdb - origin_jd_tdb) / MINUTE_DAYS) * MINUTE_DAYS
