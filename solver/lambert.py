@@ -40,6 +40,10 @@ BRANCH_NAMES = {BRANCH_SINGLE: "single", BRANCH_LOW: "low", BRANCH_HIGH: "high"}
 
 # Below this sine of the transfer angle the plane through r1 and r2 is not defined by them.
 DEFAULT_ANGLE_TOL_RAD = 1e-7
+# A half-turn is put in the reference plane only when both positions lie in it to rounding: the
+# arc drawn in that plane misses each end by its out-of-plane offset, so the offset allowed here
+# is the miss allowed (1e-12 of the radius, 0.15 m at 1 AU).
+_IN_PLANE_TOL = 1e-12
 
 _OK = np.int8(Reason.OK)
 _NONFINITE = np.int8(Reason.NONFINITE_INPUT)
@@ -281,8 +285,8 @@ def _solve_one(
         # r1 and r2 are (anti)parallel: only a half-turn in the reference plane is defined,
         # by the pole, as for circular coplanar orbits.
         in_plane = (
-            abs(u1x * px + u1y * py + u1z * pz) < angle_tol
-            and abs(u2x * px + u2y * py + u2z * pz) < angle_tol
+            abs(u1x * px + u1y * py + u1z * pz) < _IN_PLANE_TOL
+            and abs(u2x * px + u2y * py + u2z * pz) < _IN_PLANE_TOL
         )
         if cos_angle < 0.0 and in_plane:
             hx, hy, hz = px, py, pz
