@@ -252,6 +252,29 @@ def arc_metrics(
     return out
 
 
+def dv_conventions(case: Case, bodies: CaseBodies) -> dict[str, str]:
+    """How this case's departure and arrival Δv are counted, in words (the module's conventions).
+
+    A Δv of 0 means "no burn by the spacecraft here", which a reader must not take for free.
+    """
+    if case.parking_altitude_km is not None and _massive(bodies.departure):
+        departure = f"burn from a circular {case.parking_altitude_km:g} km parking orbit"
+    elif _massive(bodies.departure):
+        departure = "0: the launch vehicle delivers the C3 (the case has no parking orbit)"
+    else:
+        departure = "|v∞|: one burn to leave the departure body's orbit"
+    if case.arrival_mode == "capture":
+        arrival = (
+            f"burn at periapsis into a {case.capture_periapsis_altitude_km:g} × "
+            f"{case.capture_apoapsis_altitude_km:g} km capture orbit"
+        )
+    elif case.arrival_mode == "rendezvous":
+        arrival = "|v∞|: one burn to match the target's velocity"
+    else:
+        arrival = "0: a flyby, no burn"
+    return {"departure_dv": departure, "arrival_dv": arrival}
+
+
 def within_limits(
     case: Case,
     bodies: CaseBodies,
@@ -749,6 +772,7 @@ def provenance(case: Case) -> dict[str, Any]:
         "lambert_method": "Izzo (2015) with Householder iterations",
         "frame": "ICRF (equatorial J2000); DLA/RLA and arrival asymptote angles in ICRF",
         "time_scales": "dates shown in UTC; computed in TDB",
+        **dv_conventions(case, CaseBodies.of(case)),
         "computed_utc": _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
         "caution": CAUTION,
     }
@@ -766,6 +790,7 @@ __all__ = [
     "arc_metrics",
     "check_grid_size",
     "compute_window",
+    "dv_conventions",
     "grid_axes",
     "provenance",
     "select_arc",

@@ -295,6 +295,8 @@ def test_details_carry_every_metric_with_units(tallis):
     assert rows[("Arc", "TOF")].value == f"{arc.tof_days:.2f}"
     assert rows[("Provenance", "case hash")].value == grid.provenance["case_hash"]
     assert rows[("Arc", "departure")].unit == "UTC"
+    assert "185 km parking orbit" in rows[("Departure", "Δv counted as")].value
+    assert "match the target's velocity" in rows[("Arrival", "Δv counted as")].value
     point = map_point(arc, "dla_deg", "best arc")
     assert point.value == pytest.approx(abs(arc.metrics["dla_deg"]))
     assert CaseBodies.of(case).central.name == "sun"

@@ -350,3 +350,20 @@ def test_metrics_physics_spot_checks(vesper):
         arc.arrival_body_v_km_s,
     )
     assert float(m["dla_deg"]) == pytest.approx(90.0 - math.degrees(OBLIQUITY_J2000_RAD), abs=1e-9)
+
+
+@pytest.mark.parametrize(
+    ("sample", "departure", "arrival"),
+    [
+        ("vesper_venus_orbiter", "200 km parking orbit", "300 × 35000 km capture orbit"),
+        ("orrery_jupiter_flyby", "launch vehicle delivers the C3", "flyby, no burn"),
+        ("kestrel_relay_leo", "|v∞|: one burn to leave", "match the target's velocity"),
+    ],
+)
+def test_every_output_says_how_its_dv_is_counted(sample, departure, arrival):
+    """A Δv of 0 (the launcher's share, a flyby) is stated as such wherever it is shown."""
+    from solver.window import provenance
+
+    prov = provenance(load(sample))
+    assert departure in prov["departure_dv"]
+    assert arrival in prov["arrival_dv"]

@@ -32,7 +32,7 @@ from solver.frames import ECLIPTIC, ICRF, equator_frame, rotate
 from solver.kepler import sample_arc, state_to_elements
 from solver.reasons import describe
 from solver.timescales import jd_tdb_to_utc, split_jd, tdb_jd_to_utc_jd
-from solver.window import METRICS, Arc, CaseBodies, WindowGrid
+from solver.window import METRICS, Arc, CaseBodies, WindowGrid, dv_conventions
 
 from .state import parse_arcs
 
@@ -615,6 +615,7 @@ def arc_details(
     if not arc.ok:
         sections.append(("Why no arc", [DetailRow("reason", describe(arc.reason))]))
     else:
+        counted = dv_conventions(case, bodies)
         sections.append(
             (
                 "Departure",
@@ -624,6 +625,7 @@ def arc_details(
                     DetailRow("DLA", _fmt(m["dla_deg"], 2), "deg"),
                     DetailRow("RLA", _fmt(m["rla_deg"], 2), "deg"),
                     DetailRow("Δv", _fmt(m["dv_departure_km_s"], 4), "km/s"),
+                    DetailRow("Δv counted as", counted["departure_dv"]),
                 ],
             )
         )
@@ -632,6 +634,7 @@ def arc_details(
             DetailRow("asymptote declination", _fmt(m["vinf_arrival_dec_deg"], 2), "deg"),
             DetailRow("asymptote right ascension", _fmt(m["vinf_arrival_ra_deg"], 2), "deg"),
             DetailRow("Δv", _fmt(m["dv_arrival_km_s"], 4), "km/s"),
+            DetailRow("Δv counted as", counted["arrival_dv"]),
         ]
         if math.isfinite(m.get("entry_speed_km_s", math.nan)):
             arrival_rows.append(DetailRow("entry speed", _fmt(m["entry_speed_km_s"], 3), "km/s"))
