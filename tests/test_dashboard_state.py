@@ -124,6 +124,16 @@ def test_unchanged_controls_make_no_changes_and_changed_ones_are_kept():
     assert changed.parking_altitude_km is None
 
 
+def test_minute_steps_show_six_digits_and_read_back_unchanged():
+    case = load_case(ROOT / "sample_cases" / "kestrel_relay_leo.toml")
+    assert case.departure_step_days == pytest.approx(5.0 / 1440.0)
+    values = control_values(case)
+    assert values["window.departure_step_days"] == 0.00347222
+    assert changes_from_controls(case, values) == {}
+    values["window.departure_step_days"] = 0.0034  # a real change is still heard
+    assert changes_from_controls(case, values) == {"window.departure_step_days": 0.0034}
+
+
 def test_slider_days_are_posix_days_and_round_to_the_minute():
     # 2036-01-01T00:00Z is 24106 days after 1970-01-01 (datetime arithmetic, POSIX days).
     expected = (dt.datetime(2036, 1, 1) - dt.datetime(1970, 1, 1)).days

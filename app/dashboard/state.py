@@ -321,7 +321,9 @@ def _same(a: Any, b: Any) -> bool:
     if a is None or b is None:
         return a is None and b is None
     if isinstance(a, (int, float)) and isinstance(b, (int, float)):
-        return math.isclose(float(a), float(b), rel_tol=1e-9, abs_tol=1e-12)
+        # Controls show six significant digits (control_values), so a value read back from a
+        # control is the case's own value when it agrees to that many.
+        return math.isclose(float(a), float(b), rel_tol=1e-6, abs_tol=1e-12)
     return str(a).strip().lower() == str(b).strip().lower()
 
 
@@ -364,6 +366,10 @@ def changes_from_controls(base: Case, controls: dict[str, Any]) -> dict[str, Any
 def control_values(case: Case) -> dict[str, Any]:
     """Control values that show ``case`` (dotted keys; windows in slider days)."""
     values: dict[str, Any] = {f.key: case_setting(case, f.key) for f in FIELDS}
+    for key, value in values.items():
+        # A five-minute step is 0.00347222... days; sixteen digits of it help nobody.
+        if isinstance(value, float):
+            values[key] = float(f"{value:.6g}")
     values["dep"] = [iso_to_unix_days(case.departure_start), iso_to_unix_days(case.departure_end)]
     values["arr"] = [iso_to_unix_days(case.arrival_start), iso_to_unix_days(case.arrival_end)]
     return values
