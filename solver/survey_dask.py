@@ -403,8 +403,16 @@ def _run_on_dask(client, plan, todo, settings, retries, finished, run, options) 
     # The base case goes inside every task (a few kB): scattering it once would save little and
     # would tie every task to the workers holding the copy.
     def submit(chunk):
-        return client.submit(scan_chunk, plan.base_toml, list(chunk.targets), chunk.span,
-                             settings, retries=retries, pure=False, **options)
+        return client.submit(
+            scan_chunk,
+            plan.base_toml,
+            list(chunk.targets),
+            chunk.span,
+            settings,
+            retries=retries,
+            pure=False,
+            **options,
+        )
 
     futures = {submit(chunk): chunk for chunk in todo}
     resubmitted: dict[str, int] = {}

@@ -417,9 +417,28 @@ def test_bw08_survey_page_lists_targets_and_opens_one(server, server_folder, tab
 
     surveys = server_folder / "surveys"
     surveys.mkdir(exist_ok=True)
-    assert main(["survey", "demo_catalogue", "--case", "survey_base", "--years", "2031-2031",
-                 "--out", str(surveys / "bw08.parquet"), "--first", "4", "--workers", "0",
-                 "--coarse-step-days", "10", "--quiet"]) == 0
+    assert (
+        main(
+            [
+                "survey",
+                "demo_catalogue",
+                "--case",
+                "survey_base",
+                "--years",
+                "2031-2031",
+                "--out",
+                str(surveys / "bw08.parquet"),
+                "--first",
+                "4",
+                "--workers",
+                "0",
+                "--coarse-step-days",
+                "10",
+                "--quiet",
+            ]
+        )
+        == 0
+    )
     from solver.survey import load_results
 
     best = load_results(surveys / "bw08.parquet").iloc[0]
@@ -445,7 +464,6 @@ def test_bw08_survey_page_lists_targets_and_opens_one(server, server_folder, tab
     # an unknown target comes back to the survey page with a clear message
     page.goto(server + "survey-open?results=bw08&target=nobody")
     page.wait_for_function(
-        "() => (document.querySelector('#div-survey-message') || {}).innerText?.includes("
-        "'target')"
+        "() => (document.querySelector('#div-survey-message') || {}).innerText?.includes('target')"
     )
     tab.shot("unknown_target")

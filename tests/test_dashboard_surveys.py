@@ -19,9 +19,28 @@ def shelf(tmp_path_factory):
     folder = tmp_path_factory.mktemp("shelf")
     surveys = folder / "surveys"
     surveys.mkdir()
-    assert main(["survey", "demo_catalogue", "--case", "survey_base", "--years", "2031-2031",
-                 "--out", str(surveys / "small.parquet"), "--first", "5", "--workers", "0",
-                 "--coarse-step-days", "10", "--quiet"]) == 0
+    assert (
+        main(
+            [
+                "survey",
+                "demo_catalogue",
+                "--case",
+                "survey_base",
+                "--years",
+                "2031-2031",
+                "--out",
+                str(surveys / "small.parquet"),
+                "--first",
+                "5",
+                "--workers",
+                "0",
+                "--coarse-step-days",
+                "10",
+                "--quiet",
+            ]
+        )
+        == 0
+    )
     return SurveyShelf(surveys, CaseCatalogue(SAMPLE_DIR, folder / "uploads"))
 
 

@@ -30,8 +30,12 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     )
     parser.add_argument("--revs", type=int, metavar="N", help="only arcs of N revolutions")
     parser.add_argument("--branch", choices=["low", "high"], help="branch of an N-revolution arc")
-    parser.add_argument("--refine", default="zoom", choices=["zoom", "slsqp"],
-                        help="nested grids down to the minute (default), or SLSQP")
+    parser.add_argument(
+        "--refine",
+        default="zoom",
+        choices=["zoom", "slsqp"],
+        help="nested grids down to the minute (default), or SLSQP",
+    )
     parser.add_argument("--json", action="store_true", help="print JSON")
     add_cache_options(parser)
     parser.set_defaults(run=run)
@@ -46,8 +50,9 @@ def run(args: argparse.Namespace) -> int:
 
     case = load(args.case)
     grid = compute_grid(args, case)
-    refined = refine_best(case, grid, args.metric, revolutions=args.revs, branch=args.branch,
-                          method=args.refine)
+    refined = refine_best(
+        case, grid, args.metric, revolutions=args.revs, branch=args.branch, method=args.refine
+    )
     report = arc_json(case, refined.arc)
     report["refinement"] = {
         "metric": refined.metric,

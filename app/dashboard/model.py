@@ -71,6 +71,7 @@ _MS_PER_DAY = 86_400_000.0
 
 _LOG = logging.getLogger(__name__)
 
+
 class _Memo:
     """A small thread-safe LRU for derived results keyed by hashable tuples."""
 

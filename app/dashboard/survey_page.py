@@ -35,14 +35,25 @@ _COLUMNS = (
     ("vinf_arrival_km_s", "arrival v∞ (km/s)", 3),
     ("dv_total_km_s", "total Δv (km/s)", 3),
 )
-_STATUS_TEXT = {"within_limits": "within limits", "outside_limits": "outside limits",
-                "no_arc": "no arc", "error": "error"}
+_STATUS_TEXT = {
+    "within_limits": "within limits",
+    "outside_limits": "outside limits",
+    "no_arc": "no arc",
+    "error": "error",
+}
 
 
 def create_survey_app(server, shelf: SurveyShelf) -> Dash:
     """Mount the survey page on ``server`` (the window page's Flask server)."""
-    app = Dash(__name__, server=server, url_base_pathname=BASE_PATH, title="arcwindow survey",
-               update_title=None, assets_folder=str(ASSETS_DIR), serve_locally=True)
+    app = Dash(
+        __name__,
+        server=server,
+        url_base_pathname=BASE_PATH,
+        title="arcwindow survey",
+        update_title=None,
+        assets_folder=str(ASSETS_DIR),
+        serve_locally=True,
+    )
     app.layout = layout()
     register(app, shelf)
 
@@ -64,28 +75,35 @@ def layout() -> html.Div:
             dcc.Location(id="location-survey-url", refresh=False),
             html.Header(
                 [
-                    html.Div([html.Span("arc", className="aw-brand-a"), html.Span("window")],
-                             className="aw-brand"),
+                    html.Div(
+                        [html.Span("arc", className="aw-brand-a"), html.Span("window")],
+                        className="aw-brand",
+                    ),
                     html.Div("Survey results", className="aw-case-title"),
-                    html.Div(html.A("Window map", href="/", className="aw-nav-link"),
-                             className="aw-header-tools"),
+                    html.Div(
+                        html.A("Window map", href="/", className="aw-nav-link"),
+                        className="aw-header-tools",
+                    ),
                 ],
                 className="aw-header",
             ),
             html.Div([html.Strong("Caution: "), CAUTION], className="aw-caution", role="note"),
-            html.Div(id="div-survey-message", className="aw-message aw-message-bar",
-                     role="alert"),
+            html.Div(id="div-survey-message", className="aw-message aw-message-bar", role="alert"),
             html.Main(
                 html.Section(
                     [
                         html.H2("Ranked targets", className="aw-section-title"),
-                        html.Label("results file", htmlFor="dropdown-survey-file",
-                                   className="aw-label"),
-                        dcc.Dropdown(id="dropdown-survey-file", clearable=False,
-                                     className="aw-survey-file"),
+                        html.Label(
+                            "results file", htmlFor="dropdown-survey-file", className="aw-label"
+                        ),
+                        dcc.Dropdown(
+                            id="dropdown-survey-file", clearable=False, className="aw-survey-file"
+                        ),
                         html.P(id="text-survey-summary", className="aw-small"),
-                        html.P("Choose a target to open its window map around its best arc.",
-                               className="aw-small"),
+                        html.P(
+                            "Choose a target to open its window map around its best arc.",
+                            className="aw-small",
+                        ),
                         html.Div(id="div-survey-table", className="aw-survey-table-wrap"),
                     ],
                     className="aw-section aw-survey",
@@ -119,17 +137,25 @@ def register(app: Dash, shelf: SurveyShelf) -> None:
         else:
             name = params.get("results") or (names[0] if names else None)
         if name is None:
-            empty = (f"No survey results yet. Run `arcwindow survey ... --out "
-                     f"{shelf.folder}/NAME.parquet`, or serve with --survey-dir pointing at "
-                     "a folder of results.")
+            empty = (
+                f"No survey results yet. Run `arcwindow survey ... --out "
+                f"{shelf.folder}/NAME.parquet`, or serve with --survey-dir pointing at "
+                "a folder of results."
+            )
             return new_options, None, html.Div(empty, className="aw-small"), "", message, no_update
         try:
             table = shelf.table(name)
         except InputError as exc:
             return new_options, None, "", "", str(exc), no_update
         query = "?" + urlencode({"results": name})
-        return (new_options, name, table_children(table), table.summary, message,
-                query if query != search else no_update)
+        return (
+            new_options,
+            name,
+            table_children(table),
+            table.summary,
+            message,
+            query if query != search else no_update,
+        )
 
 
 def table_children(table: SurveyTable) -> list:
@@ -150,14 +176,25 @@ def table_children(table: SurveyTable) -> list:
                 text, cls = (f"{value:.{digits}f}" if ok else "—"), "aw-num"
             cells.append(html.Td(text, className=cls))
         has_arc = isinstance(record.get("departure_jd_tdb"), float) and math.isfinite(
-            record["departure_jd_tdb"])
-        link = (html.A("open", className="aw-link",
-                       href=f"{OPEN_PATH}?results={quote(table.name)}"
-                            f"&target={quote(str(record['target']))}")
-                if has_arc else html.Span(record.get("reason", ""), className="aw-small"))
-        rows.append(html.Tr([*cells, html.Td(link, className="aw-actions")],
-                            className="" if record.get("within_limits") else "aw-muted",
-                            **{"data-target": str(record["target"])}))
+            record["departure_jd_tdb"]
+        )
+        link = (
+            html.A(
+                "open",
+                className="aw-link",
+                href=f"{OPEN_PATH}?results={quote(table.name)}"
+                f"&target={quote(str(record['target']))}",
+            )
+            if has_arc
+            else html.Span(record.get("reason", ""), className="aw-small")
+        )
+        rows.append(
+            html.Tr(
+                [*cells, html.Td(link, className="aw-actions")],
+                className="" if record.get("within_limits") else "aw-muted",
+                **{"data-target": str(record["target"])},
+            )
+        )
     more = len(table.frame) - len(frame)
     out = [html.Table([head, html.Tbody(rows)], className="aw-shortlist-table aw-survey-table")]
     if more > 0:

@@ -46,8 +46,10 @@ class SurveyTable:
         first, last = self.years
         meta = METRICS.get(self.metric)
         by = f"{meta.label} ({meta.unit})" if meta else self.metric
-        return (f"{self.base_title}: {self.targets} targets, departures {first}-{last}, ranked "
-                f"by {by}; {self.within} with an arc within limits ({self.engine})")
+        return (
+            f"{self.base_title}: {self.targets} targets, departures {first}-{last}, ranked "
+            f"by {by}; {self.within} with an arc within limits ({self.engine})"
+        )
 
 
 class SurveyShelf:
@@ -63,8 +65,7 @@ class SurveyShelf:
         """Results files on the shelf, newest first (by name without ``.parquet``)."""
         if not self.folder.is_dir():
             return []
-        files = sorted(self.folder.glob("*.parquet"), key=lambda p: p.stat().st_mtime,
-                       reverse=True)
+        files = sorted(self.folder.glob("*.parquet"), key=lambda p: p.stat().st_mtime, reverse=True)
         return [p.stem for p in files if _NAME_RE.fullmatch(p.stem)]
 
     def path(self, name: str) -> Path:
@@ -91,10 +92,13 @@ class SurveyShelf:
         years = tuple(meta.get("years") or (0, 0))
         engines = sorted(set(frame["engine_version"].astype(str)))
         table = SurveyTable(
-            name=name, frame=frame, base_title=str(meta.get("base_case_title", "")),
+            name=name,
+            frame=frame,
+            base_title=str(meta.get("base_case_title", "")),
             years=(int(years[0]), int(years[-1])),
             metric=str(meta.get("settings", {}).get("metric", "c3_km2_s2")),
-            targets=len(frame), within=int(frame["within_limits"].sum()),
+            targets=len(frame),
+            within=int(frame["within_limits"].sum()),
             engine="arcwindow " + ", ".join(engines),
         )
         with self._lock:
@@ -116,8 +120,12 @@ class SurveyShelf:
         row = rows.iloc[0]
         if pd.isna(row["departure_jd_tdb"]):
             raise InputError("target", target, f"a target with an arc ({row['reason']})")
-        case = case_for_target(results_base_case(self.path(name)), row,
-                               float(row["departure_jd_tdb"]), float(row["arrival_jd_tdb"]))
+        case = case_for_target(
+            results_base_case(self.path(name)),
+            row,
+            float(row["departure_jd_tdb"]),
+            float(row["arrival_jd_tdb"]),
+        )
         case_id = self.catalogue.add_case(case)
         metric = table.metric if table.metric in MAP_METRICS else "c3_km2_s2"
         selected = f"{_minute(row['departure_utc'])}~{_minute(row['arrival_utc'])}"
