@@ -289,7 +289,10 @@ def _solve_one(
             and abs(u2x * px + u2y * py + u2z * pz) < _IN_PLANE_TOL
         )
         if cos_angle < 0.0 and in_plane:
-            hx, hy, hz = px, py, pz
+            # The pole fixes the plane; the sign of what is left of r1 x r2 along it still
+            # says whether r2 lies just short of the half-turn or just past it.
+            side = 1.0 if hx * px + hy * py + hz * pz >= 0.0 else -1.0
+            hx, hy, hz = side * px, side * py, side * pz
         else:
             reason_out[:] = _PLANE_UNDEFINED
             return

@@ -406,7 +406,7 @@ def test_degenerate_inputs_give_reasons():
     assert np.all(sol.reason[0, 1:] == Reason.BELOW_MINIMUM_TOF)
 
 
-def test_half_turn_out_of_plane_is_undefined():
+def test_half_turns_in_and_out_of_the_reference_plane():
     mu = 398600.4418
     # Half a turn exactly, both positions in the reference plane: the pole fixes the plane.
     assert solve_lambert([7000.0, 0, 0], [-8000.0, 0, 0], 3000.0, mu).reason[0] == Reason.OK
@@ -414,6 +414,12 @@ def test_half_turn_out_of_plane_is_undefined():
     # to rounding: the in-plane arc would miss r2 by that millimetre, so there is no arc.
     sol = solve_lambert([7000.0, 0, 0], [-8000.0, 0, 1e-6], 3000.0, mu)
     assert sol.reason[0] == Reason.PLANE_UNDEFINED
+    # In the plane, 1e-8 rad short of and past the half-turn: both arcs end on r2.
+    for y in (5e-5, -5e-5):
+        r2 = np.array([-5000.0, y, 0.0])
+        sol = solve_lambert([7000.0, 0, 0], r2, 3000.0, mu)
+        r_end, _ = propagate(np.array([7000.0, 0, 0]), sol.v1_km_s[0], 3000.0, mu)
+        assert np.linalg.norm(r_end - r2) < 1e-9 * 5000.0
     # 1 m off at 8000 km (1.25e-7 rad > the 1e-7 tolerance) is a defined plane.
     assert solve_lambert([7000.0, 0, 0], [-8000.0, 0, 1e-3], 3000.0, mu).reason[0] == Reason.OK
     # Half a turn between positions out of the reference plane: no plane, no arc.
@@ -485,6 +491,17 @@ _direction = st.tuples(*[st.floats(-1.0, 1.0)] * 3)
 @example(
     d1=(0.0, 1.0, 0.0),
     d2=(0.0, -1.0, 1e-09),
+    radius_1=100.0,
+    radius_2=100.0,
+    tof=1.0,
+    revs=0,
+    retrograde=False,
+)
+@example(
+    # Found by hypothesis: 6e-8 rad past a half-turn in the plane; the arc once stopped 6e-8
+    # short of it, on the wrong side.
+    d1=(0.0, 0.0, 0.0),
+    d2=(-1.0, -5.960464477539063e-08, 0.0),
     radius_1=100.0,
     radius_2=100.0,
     tof=1.0,
