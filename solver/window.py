@@ -167,6 +167,12 @@ class CaseBodies:
             pole,
         )
 
+    @property
+    def departure_is_launch(self) -> bool:
+        """Whether the arc leaves a body with mass and size, so that C3 and DLA describe what a
+        launch vehicle must deliver (leaving a satellite given by elements is a plain burn)."""
+        return _massive(self.departure)
+
 
 def _massive(body: Body) -> bool:
     return math.isfinite(body.gm_km3_s2) and body.gm_km3_s2 > 0 and math.isfinite(body.radius_km)

@@ -113,6 +113,23 @@ def test_link_with_refused_parts_falls_back_and_says_why(model):
     assert any("limits.c3_max_km2_s2" in n for n in notes)
 
 
+def test_cases_leaving_a_satellite_open_on_total_dv(model):
+    """C3 and DLA describe a launch; between satellites the map opens on total Δv instead,
+    unless the link or the analyst asks for C3."""
+    view, _, _ = model.view_from_url("?case=kestrel_relay_leo")
+    assert view.metric == "dv_total_km_s"
+    view, _, _ = model.view_from_url("?case=kestrel_relay_leo&metric=c3_km2_s2")
+    assert view.metric == "c3_km2_s2"
+    view, _ = model.view_for_case("kestrel_relay_leo", "dla_deg")
+    assert view.metric == "dv_total_km_s"
+    view, _ = model.view_for_case("kestrel_relay_leo", "tof_days")
+    assert view.metric == "tof_days"
+    view, _, _ = model.view_from_url("?case=vesper_venus_orbiter")
+    assert view.metric == "c3_km2_s2"
+    view, _ = model.view_for_case("vesper_venus_orbiter", "c3_km2_s2")
+    assert view.metric == "c3_km2_s2"
+
+
 def test_click_selects_the_nearest_grid_node_exactly(model):
     view, case, _ = model.view_from_url("?case=tallis_rendezvous")
     dep, arr = grid_axes(case)

@@ -15,6 +15,7 @@ from collections import OrderedDict
 from concurrent.futures import Future, ThreadPoolExecutor, TimeoutError
 from dataclasses import dataclass, replace
 from typing import Any
+from urllib.parse import parse_qs
 
 import numpy as np
 import plotly.graph_objects as go
@@ -55,6 +56,7 @@ from .prepare import (
 )
 from .shortlist import Shortlist
 from .state import (
+    LAUNCH_METRICS,
     ViewState,
     changes_from_controls,
     fit_arcs,
@@ -247,12 +249,15 @@ class DashboardModel:
                 notes.append(f"link: {exc}; selecting the best arc")
                 view = replace(view, selected=None)
         view = replace(view, arcs=fit_arcs(view.arcs, case.max_revolutions), notes=())
+        if "metric" not in parse_qs((search or "").lstrip("?")):
+            view = replace(view, metric=self.suited_metric(case, view.metric))
         return view, case, notes
 
     def view_for_case(self, case_id: str, metric: str) -> tuple[ViewState, Case]:
-        """A fresh view of a case file (the case picker)."""
+        """A fresh view of a case file (the case picker), on a metric that suits it."""
         view = ViewState(case=case_id, metric=metric)
         case = self.catalogue.effective(view)
+        view = replace(view, metric=self.suited_metric(case, metric))
         return replace(view, arcs=fit_arcs("best", case.max_revolutions)), case
 
     def view_from_controls(self, current: ViewState, controls: dict[str, Any]) -> tuple:
@@ -291,6 +296,13 @@ class DashboardModel:
 
     def request_grid(self, case: Case) -> tuple[WindowGrid | None, Job | None]:
         return self.grids.request(case)
+
+    def suited_metric(self, case: Case, metric: str) -> str:
+        """``metric``, unless it describes a launch (C3, DLA) and the case has none: a case that
+        leaves a satellite given by elements then shows total Δv."""
+        if metric in LAUNCH_METRICS and not self.bodies(case).departure_is_launch:
+            return "dv_total_km_s"
+        return metric
 
     def bodies(self, case: Case) -> CaseBodies:
         key = case.normalized().__repr__()
