@@ -391,7 +391,7 @@ def register(app, model: DashboardModel) -> None:
             waiting = theme.empty_figure(text)
             return waiting, waiting, layout.details_children([], text), None
         arc_fig, family_fig, details, sel = result
-        note = "The clicked cell."
+        note = "The selected cell (clicked, or named by the link)."
         if sel.is_best:
             note = (
                 "The best arc of the window, refined off the grid."
