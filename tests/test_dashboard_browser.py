@@ -413,32 +413,11 @@ def test_bw07_valid_upload_becomes_the_shown_case(server, tabs, tmp_path):
 def test_bw08_survey_page_lists_targets_and_opens_one(server, server_folder, tabs):
     """A survey's ranked targets are listed; "open" shows that target's window map with its
     best arc selected."""
-    from app.cli import main
+    from small_survey import write_small_survey
 
     surveys = server_folder / "surveys"
     surveys.mkdir(exist_ok=True)
-    assert (
-        main(
-            [
-                "survey",
-                "demo_catalogue",
-                "--case",
-                "survey_base",
-                "--years",
-                "2031-2031",
-                "--out",
-                str(surveys / "bw08.parquet"),
-                "--first",
-                "4",
-                "--workers",
-                "0",
-                "--coarse-step-days",
-                "10",
-                "--quiet",
-            ]
-        )
-        == 0
-    )
+    write_small_survey(surveys / "bw08.parquet", targets=4)
     from solver.survey import load_results
 
     best = load_results(surveys / "bw08.parquet").iloc[0]

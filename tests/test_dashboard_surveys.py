@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 import pytest
+from small_survey import write_small_survey
 
-from app.cli import main
 from app.dashboard.cases import CaseCatalogue
 from app.dashboard.state import from_query
 from app.dashboard.surveys import SurveyShelf
@@ -19,28 +19,7 @@ def shelf(tmp_path_factory):
     folder = tmp_path_factory.mktemp("shelf")
     surveys = folder / "surveys"
     surveys.mkdir()
-    assert (
-        main(
-            [
-                "survey",
-                "demo_catalogue",
-                "--case",
-                "survey_base",
-                "--years",
-                "2031-2031",
-                "--out",
-                str(surveys / "small.parquet"),
-                "--first",
-                "5",
-                "--workers",
-                "0",
-                "--coarse-step-days",
-                "10",
-                "--quiet",
-            ]
-        )
-        == 0
-    )
+    write_small_survey(surveys / "small.parquet", targets=5)
     return SurveyShelf(surveys, CaseCatalogue(SAMPLE_DIR, folder / "uploads"))
 
 
