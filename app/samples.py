@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from solver.case import Case, load_case
 from solver.errors import InputError
+from solver.window.case import Case, load_case
 
 SAMPLE_DIR = Path(__file__).resolve().parents[1] / "sample_cases"
 DEFAULT_CASE = "tallis_rendezvous"

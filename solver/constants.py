@@ -25,12 +25,8 @@ from __future__ import annotations
 import math
 
 # ---------------------------------------------------------------------------------------------
-# Units
+# Lengths
 # ---------------------------------------------------------------------------------------------
-SECONDS_PER_DAY = 86400.0  # SI day, exact by definition
-DAYS_PER_JULIAN_CENTURY = 36525.0  # exact by definition
-JD_J2000_TDB = 2451545.0  # J2000.0 = 2000-01-01T12:00:00 TDB, exact by definition (IAU 1976)
-
 AU_KM = 149_597_870.7
 """Astronomical unit, km. IAU 2012 Resolution B2, exact
 [FOUND: Astronomical Almanac constants 2017, K6, via REFERENCES.md 4.2]."""

@@ -1,6 +1,6 @@
 """An independent single-revolution Lambert solver for checking the engine's grids.
 
-Written separately from solver/lambert.py and from the benchmark's baseline: the classic
+Written separately from solver/mechanics/lambert.py and from the benchmark's baseline: the classic
 universal-variable formulation (Bate, Mueller & White, Fundamentals of Astrodynamics, 1971,
 §5.3; Curtis, Orbital Mechanics for Engineering Students, Algorithm 5.2), solved by plain
 bisection on z, scalar Python, no numba.

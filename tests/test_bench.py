@@ -31,7 +31,7 @@ def test_lambert_baseline_solves_the_same_problem():
     import numpy as np
 
     from app.bench.lambert_bench import baseline_lambert, random_cases
-    from solver.lambert import solve_lambert
+    from solver.mechanics.lambert import solve_lambert
 
     r1, r2, tof, mu = random_cases(100)
     sol = solve_lambert(r1, r2, tof, mu)

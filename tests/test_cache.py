@@ -24,10 +24,11 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from hypothesis.extra import numpy as hnp
 
-import solver.cache as cache_module
-import solver.gridfile as gridfile
-from solver.cache import DEFAULT_MAX_BYTES, GridCache, cache_key, canonical_json
+import solver.files.cache as cache_module
+import solver.files.gridfile as gridfile
+from solver.digest import cache_key, canonical_json
 from solver.errors import InputError
+from solver.files.cache import DEFAULT_MAX_BYTES, GridCache
 
 needs_fork = pytest.mark.skipif(
     "fork" not in multiprocessing.get_all_start_methods() or not hasattr(signal, "SIGKILL"),

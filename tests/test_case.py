@@ -9,8 +9,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from app.samples import SAMPLE_DIR, load, sample_case_paths
-from solver.case import case_from_dict, dumps_toml, parse_case
 from solver.errors import InputError
+from solver.window.case import case_from_dict, dumps_toml, parse_case
 
 BASE = (SAMPLE_DIR / "vesper_venus_orbiter.toml").read_text()
 

@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 
 from app.cli import main
-from solver.ephemeris import states
-from solver.timescales import utc_to_jd_tdb
+from solver.ephemeris.states import states
+from solver.ephemeris.timescales import utc_to_jd_tdb
 
 REPO = Path(__file__).resolve().parents[1]
 

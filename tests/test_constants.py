@@ -5,7 +5,7 @@ from __future__ import annotations
 import pytest
 
 from solver import constants as c
-from solver.ephem_de import JD_TDB_MAX, JD_TDB_MIN, ephemeris
+from solver.ephemeris.de import JD_TDB_MAX, JD_TDB_MIN, ephemeris
 
 GM_FROM_HEADER = [
     ("GMS", c.GM_SUN_KM3_S2),

@@ -5,8 +5,8 @@ steps to test-artifacts/browser/ and ends by asserting the browser console logge
 Test names carry short codes (BW01...) to grep for in CI logs.
 
 The expected numbers come from the engine itself (solver.window.solve_cell and
-solver.families.geometry) at the clicked cell's dates, so a click that landed on another cell
-or a view that drew another arc would fail.
+solver.mechanics.families.geometry) at the clicked cell's dates, so a click that landed on another
+cell or a view that drew another arc would fail.
 """
 
 from __future__ import annotations
@@ -229,10 +229,11 @@ def figure_title(page, graph_id: str) -> str:
 
 def expected_cell(departure: str, arrival: str):
     """The engine's own numbers for the default case's cell at these dates."""
-    from solver.case import load_case
-    from solver.families import geometry
-    from solver.timescales import utc_to_jd_tdb
-    from solver.window import CaseBodies, select_arc, solve_cell
+    from solver.ephemeris.timescales import utc_to_jd_tdb
+    from solver.mechanics.families import geometry
+    from solver.window.case import load_case
+    from solver.window.case_bodies import CaseBodies
+    from solver.window.cell import select_arc, solve_cell
 
     case = load_case(ROOT / "sample_cases" / "tallis_rendezvous.toml")
     bodies = CaseBodies.of(case)
@@ -418,7 +419,7 @@ def test_bw08_survey_page_lists_targets_and_opens_one(server, server_folder, tab
     surveys = server_folder / "surveys"
     surveys.mkdir(exist_ok=True)
     write_small_survey(surveys / "bw08.parquet", targets=4)
-    from solver.survey import load_results
+    from solver.survey.results import load_results
 
     best = load_results(surveys / "bw08.parquet").iloc[0]
     tab = tabs()

@@ -1,7 +1,7 @@
 """Figure builders (pure: arrays in, figures out) and the arrays they are fed (no browser).
 
 Physics checks use sources outside the dashboard: Lagrange's time-of-flight equation for the
-family chart (Battin 1999, §4.5, via solver.families, itself checked against published
+family chart (Battin 1999, §4.5, via solver.mechanics.families, itself checked against published
 values), the ephemeris for the arc view's end points, and astropy's time scales for the date
 axis (UTC from TDB, astropy.time; the independent reference the project uses).
 """
@@ -29,12 +29,15 @@ from app.dashboard.prepare import (
     map_data,
     map_point,
 )
-from solver.case import load_case
 from solver.constants import AU_KM
-from solver.ephemeris import states
-from solver.families import Family, tau_of_epsilon
-from solver.frames import ECLIPTIC
-from solver.window import METRICS, CaseBodies, compute_window, select_arc, solve_cell
+from solver.ephemeris.frames import ECLIPTIC
+from solver.ephemeris.states import states
+from solver.mechanics.families import Family, tau_of_epsilon
+from solver.window.case import load_case
+from solver.window.case_bodies import CaseBodies
+from solver.window.cell import select_arc, solve_cell
+from solver.window.grid import compute_window
+from solver.window.metrics import METRICS
 
 ROOT = Path(__file__).resolve().parents[1]
 SAMPLES = ROOT / "sample_cases"
@@ -304,7 +307,7 @@ def test_details_carry_every_metric_with_units(tallis):
 
 def test_hover_carries_the_entry_speed_when_the_case_asks_for_it():
     from app.samples import load
-    from solver.window import compute_window
+    from solver.window.grid import compute_window
 
     case = load("vesper_venus_orbiter")  # entry_altitude_km = 125
     grid = compute_window(case)

@@ -20,7 +20,7 @@ from app.dashboard.model import DashboardModel
 from app.dashboard.shortlist import MAX_NOTE_CHARS, Shortlist
 from app.dashboard.state import ViewState, iso_to_unix_days
 from solver.errors import InputError
-from solver.window import Cancelled, compute_window, grid_axes
+from solver.window.grid import Cancelled, compute_window, grid_axes
 
 ROOT = Path(__file__).resolve().parents[1]
 SAMPLES = ROOT / "sample_cases"

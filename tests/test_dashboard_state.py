@@ -26,7 +26,7 @@ from app.dashboard.state import (
     to_query,
     unix_days_to_iso,
 )
-from solver.case import load_case
+from solver.window.case import load_case
 
 ROOT = Path(__file__).resolve().parents[1]
 TALLIS = ROOT / "sample_cases" / "tallis_rendezvous.toml"

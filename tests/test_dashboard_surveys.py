@@ -9,9 +9,9 @@ from app.dashboard.cases import CaseCatalogue
 from app.dashboard.state import from_query
 from app.dashboard.surveys import SurveyShelf
 from app.samples import SAMPLE_DIR
+from solver.ephemeris.timescales import utc_to_jd_tdb
 from solver.errors import InputError
-from solver.survey import load_results
-from solver.timescales import utc_to_jd_tdb
+from solver.survey.results import load_results
 
 
 @pytest.fixture(scope="module")

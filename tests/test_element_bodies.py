@@ -12,13 +12,14 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.integrate import solve_ivp
 
-from solver.bodies import default_registry
 from solver.constants import AU_KM, GM_MARS_SYSTEM_KM3_S2, GM_SUN_KM3_S2
-from solver.element_bodies import ElementBody, ElementSet, read_element_csv
-from solver.ephemeris import element_set_states, states
+from solver.ephemeris.bodies import default_registry
+from solver.ephemeris.element_bodies import ElementBody, ElementSet
+from solver.ephemeris.element_input import element_body, read_element_csv
+from solver.ephemeris.frames import rotate
+from solver.ephemeris.states import element_set_states, states
 from solver.errors import InputError
-from solver.frames import rotate
-from solver.kepler import state_to_elements
+from solver.mechanics.kepler import state_to_elements
 
 
 def _asteroid(**overrides) -> ElementBody:
@@ -32,11 +33,11 @@ def _asteroid(**overrides) -> ElementBody:
         mean_anomaly_deg=42.0,
     )
     values.update(overrides)
-    return ElementBody.from_elements("Tessellate", **values)  # invented demo body
+    return element_body("Tessellate", **values)  # invented demo body
 
 
 def _mars_flyby() -> ElementBody:
-    return ElementBody.from_elements(
+    return element_body(
         "Probe-7",  # invented
         central_body="Mars",
         epoch_jd_tdb=2462000.25,
@@ -135,7 +136,7 @@ def test_frames_of_elements():
 
 def test_default_frames_by_central():
     assert _asteroid().frame == "ecliptic"
-    moon_orbiter = ElementBody.from_elements(
+    moon_orbiter = element_body(
         "Lantern", central_body="moon", epoch_jd_tdb=2461000.5, semi_major_axis_km=2000.0,
         eccentricity=0.01, inclination_deg=90.0, raan_deg=0.0, arg_periapsis_deg=0.0,
         mean_anomaly_deg=0.0,
@@ -145,13 +146,13 @@ def test_default_frames_by_central():
 
 def test_chain_of_centrals():
     # A body about an element body about the Sun: its heliocentric state is the sum.
-    planet = ElementBody.from_elements(
+    planet = element_body(
         "Corvin", epoch_jd_tdb=2461000.5, semi_major_axis_au=3.0, eccentricity=0.05,
         inclination_deg=2.0, raan_deg=10.0, arg_periapsis_deg=20.0, mean_anomaly_deg=30.0,
         gm_km3_s2=5.0e6, radius_km=30000.0,
     )  # fmt: skip
     reg = default_registry().with_bodies(planet)
-    moon = ElementBody.from_elements(
+    moon = element_body(
         "Corvin I", central_body="corvin", epoch_jd_tdb=2461000.5, semi_major_axis_km=4.0e5,
         eccentricity=0.0, inclination_deg=0.0, raan_deg=0.0, arg_periapsis_deg=0.0,
         mean_anomaly_deg=0.0, registry=reg,
@@ -177,7 +178,7 @@ def test_registry_is_not_mutated():
     with pytest.raises(InputError, match="Tessellate"):
         reg.with_bodies(_asteroid())
     with pytest.raises(InputError, match="name"):
-        default_registry().with_bodies(ElementBody.from_elements(
+        default_registry().with_bodies(element_body(
             "Mars", epoch_jd_tdb=2461000.5, semi_major_axis_au=1.5, eccentricity=0.1,
             inclination_deg=1.0, raan_deg=0.0, arg_periapsis_deg=0.0, mean_anomaly_deg=0.0,
         ))  # fmt: skip
@@ -198,7 +199,7 @@ def test_with_bodies_rejects_other_things():
     m0=st.floats(-180.0, 180.0),
 )
 def test_round_trip_property(a_au, e, inc, raan, argp, m0):
-    body = ElementBody.from_elements(
+    body = element_body(
         "P", epoch_jd_tdb=2460000.5, semi_major_axis_au=a_au, eccentricity=e,
         inclination_deg=inc, raan_deg=raan, arg_periapsis_deg=argp, mean_anomaly_deg=m0,
     )  # fmt: skip
@@ -259,7 +260,7 @@ def test_many_bodies_chunked_like_one_call():
     rng = np.random.default_rng(5)
     n = 300
     bodies = ElementSet([
-        ElementBody.from_elements(
+        element_body(
             f"T{k}", epoch_jd_tdb=2461000.5, semi_major_axis_au=float(a), eccentricity=float(e),
             inclination_deg=float(i), raan_deg=10.0 * k, arg_periapsis_deg=3.0 * k,
             mean_anomaly_deg=float(m),
@@ -325,7 +326,7 @@ def test_csv_header_errors():
 
 def test_hyperbola_true_anomaly_beyond_asymptote():
     with pytest.raises(InputError) as info:
-        ElementBody.from_elements(
+        element_body(
             "H", central_body="earth", epoch_jd_tdb=2461000.5, semi_major_axis_km=-10000.0,
             eccentricity=1.5, inclination_deg=0.0, raan_deg=0.0, arg_periapsis_deg=0.0,
             true_anomaly_deg=140.0,

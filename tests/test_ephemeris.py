@@ -12,11 +12,11 @@ import pytest
 from astropy.coordinates import get_body_barycentric_posvel
 from astropy.time import Time
 
-from solver import ephem_de
 from solver.constants import GM_EARTH_KM3_S2, GM_MOON_KM3_S2
-from solver.ephemeris import states
+from solver.ephemeris import de as ephem_de
+from solver.ephemeris.frames import rotate
+from solver.ephemeris.states import states
 from solver.errors import InputError
-from solver.frames import rotate
 
 DATA = Path(__file__).parent / "reference_data"
 BUILTIN = pd.read_csv(DATA / "builtin_ephemeris_accuracy.csv", comment="#")

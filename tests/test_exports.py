@@ -9,9 +9,10 @@ import pandas as pd
 import pytest
 
 from app.samples import load
-from solver.export import GRID_COLUMNS, arc_json, arc_oem_text, read_provenance, write_grid
-from solver.kepler import propagate
-from solver.window import compute_window, select_arc, solve_cell
+from solver.files.export import GRID_COLUMNS, arc_json, arc_oem_text, read_provenance, write_grid
+from solver.mechanics.kepler import propagate
+from solver.window.cell import select_arc, solve_cell
+from solver.window.grid import compute_window
 
 
 @pytest.fixture(scope="module")

@@ -7,7 +7,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from solver.families import (
+from solver.mechanics.families import (
     Family,
     classify,
     family_curves,
@@ -20,7 +20,7 @@ from solver.families import (
     parabolic_tof_s,
     tau_of_epsilon,
 )
-from solver.lambert import minimum_tof_nondim, solve_lambert
+from solver.mechanics.lambert import minimum_tof_nondim, solve_lambert
 
 MU = 398600.4418
 

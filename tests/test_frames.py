@@ -11,8 +11,8 @@ from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
 from solver.constants import OBLIQUITY_J2000_DEG
+from solver.ephemeris.frames import EquatorFrame, equator_frame, rotate, rotation_matrix
 from solver.errors import InputError
-from solver.frames import EquatorFrame, equator_frame, rotate, rotation_matrix
 
 
 def _dec_ra_deg(v):

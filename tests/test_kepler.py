@@ -9,7 +9,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.integrate import solve_ivp
 
-from solver.kepler import (
+from solver.mechanics.kepler import (
     elements_to_state,
     mean_to_true_anomaly,
     propagate,
@@ -17,8 +17,8 @@ from solver.kepler import (
     state_to_elements,
     true_to_mean_anomaly,
 )
-from solver.lambert import solve_lambert
-from solver.stumpff import stumpff_c_array, stumpff_s_array
+from solver.mechanics.lambert import solve_lambert
+from solver.mechanics.stumpff import stumpff_c_array, stumpff_s_array
 
 MU_EARTH = 398600.4418
 

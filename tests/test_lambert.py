@@ -13,9 +13,9 @@ from hypothesis import strategies as st
 from lambert_sweep import make_sweep
 from scipy.integrate import solve_ivp
 
-from solver.families import classify, tau_of_epsilon
-from solver.kepler import propagate, state_to_elements
-from solver.lambert import (
+from solver.mechanics.families import classify, tau_of_epsilon
+from solver.mechanics.kepler import propagate, state_to_elements
+from solver.mechanics.lambert import (
     BRANCH_HIGH,
     BRANCH_LOW,
     BRANCH_SINGLE,

@@ -8,11 +8,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from solver import ephem_mean
-from solver.bodies import default_registry
-from solver.ephemeris import states
+from solver.ephemeris import mean_elements as ephem_mean
+from solver.ephemeris.bodies import default_registry
+from solver.ephemeris.frames import rotate
+from solver.ephemeris.states import states
 from solver.errors import InputError
-from solver.frames import rotate
 
 BOUNDS = pd.read_csv(Path(__file__).parent / "reference_data" / "standish_error_bounds.csv",
                      comment="#")  # fmt: skip

@@ -18,8 +18,7 @@ from hypothesis import strategies as st
 from oem import OrbitEphemerisMessage
 
 from solver.errors import InputError
-from solver.kepler import propagate
-from solver.oem import (
+from solver.files.oem import (
     CAUTION_COMMENTS,
     MAX_LINE_CHARS,
     REF_FRAMES,
@@ -27,6 +26,7 @@ from solver.oem import (
     format_oem,
     write_oem,
 )
+from solver.mechanics.kepler import propagate
 
 # Heliocentric gravitational parameter, km^3/s^2: IAU 2009 / JPL value of GM_sun, from memory.
 # It only shapes a realistic test arc; no check below depends on its last digits.
@@ -35,7 +35,7 @@ AU_KM = 149_597_870.7  # IAU 2012 Resolution B2 (exact by definition), from memo
 
 START = datetime(2031, 5, 1, 0, 0, 0)
 
-# Round-trip bounds promised in solver/oem.py: 16 significant digits.
+# Round-trip bounds promised in solver/files/oem.py: 16 significant digits.
 POSITION_TOLERANCE_KM = 1e-6  # 1 mm, for |r| < 1e10 km
 VELOCITY_TOLERANCE_KM_S = 1e-9
 

@@ -7,9 +7,10 @@ import pytest
 
 from app.samples import load
 from solver.errors import InputError
-from solver.launch_period import launch_period
-from solver.refine import MINUTE_DAYS, refine_best
-from solver.window import compute_window, select_arc, solve_cell
+from solver.window.cell import select_arc, solve_cell
+from solver.window.grid import compute_window
+from solver.window.launch_period import launch_period
+from solver.window.refine import MINUTE_DAYS, refine_best
 
 
 @pytest.fixture(scope="module")

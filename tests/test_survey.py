@@ -18,25 +18,23 @@ import pytest
 
 from app.cli import main
 from app.samples import SAMPLE_DIR, load
-from solver.element_bodies import ElementBody, read_element_csv
-from solver.ephem_mean import TABLE_1
+from solver.ephemeris.element_bodies import ElementBody
+from solver.ephemeris.element_input import element_body, read_element_csv
+from solver.ephemeris.mean_elements import TABLE_1
+from solver.ephemeris.timescales import utc_to_jd_tdb
 from solver.errors import InputError
-from solver.refine import refine_best
-from solver.survey import (
+from solver.survey.cluster import run_survey, start_local_cluster
+from solver.survey.results import (
     RESULT_COLUMNS,
-    SurveySettings,
-    case_for_target,
     load_results,
-    plan_survey,
     read_survey_metadata,
     results_base_case,
-    scan_target,
-    target_case,
 )
-from solver.survey_dask import run_survey, start_local_cluster
-from solver.survey_store import chunk_folder, chunk_path
-from solver.timescales import utc_to_jd_tdb
-from solver.window import compute_window
+from solver.survey.scan import SurveySettings, plan_survey, scan_target
+from solver.survey.store import chunk_folder, chunk_path
+from solver.survey.targets import case_for_target, target_case
+from solver.window.grid import compute_window
+from solver.window.refine import refine_best
 
 CATALOGUE = SAMPLE_DIR / "demo_catalogue.csv"
 MINUTE_DAYS = 1.0 / 1440.0
@@ -117,13 +115,13 @@ def test_target_case_needs_a_tof_bound():
 
 def _venus_like(epoch: str) -> ElementBody:
     """An element body on Venus's mean orbit at the epoch (Standish Table 1 [FOUND: REFERENCES.md
-    2.1], J2000 values plus rates, as in solver/ephem_mean.py)."""
+    2.1], J2000 values plus rates, as in solver/ephemeris/mean_elements.py)."""
     row = TABLE_1["venus"]
     t_cy = (float(utc_to_jd_tdb(epoch)) - 2451545.0) / 36525.0
     longitude = row.mean_longitude_deg + row.mean_longitude_deg_per_cy * t_cy
     varpi = row.longitude_periapsis_deg + row.longitude_periapsis_deg_per_cy * t_cy
     node = row.raan_deg + row.raan_deg_per_cy * t_cy
-    return ElementBody.from_elements(
+    return element_body(
         "Venus-like",
         epoch_utc=epoch,
         semi_major_axis_au=row.a_au + row.a_au_per_cy * t_cy,
@@ -141,7 +139,7 @@ def test_venus_like_target_reaches_the_handbook_minimum_c3(reference_data):
     for the handbook, see tests/reference_data/venus_minimum_c3.csv) within 3%: 2% for the
     handbook plus 1% for fixed mean elements instead of DE423 (Standish's stated error for
     Venus, 20" and 4000 km [FOUND: REFERENCES.md 2.2], moves C3 by well under 1%).
-    The zoom refinement and SLSQP (solver.refine) reach the same minimum to 1e-5."""
+    The zoom refinement and SLSQP (solver.window.refine) reach the same minimum to 1e-5."""
     with open(reference_data / "venus_minimum_c3.csv", newline="") as handle:
         row = next(r for r in csv.DictReader(handle) if r["opportunity"] == "1999")
     base = load("vesper_venus_orbiter").with_changes(

@@ -16,14 +16,14 @@ from astropy.time import Time
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from solver.errors import InputError
-from solver.timescales import (
+from solver.ephemeris.timescales import (
     FUTURE_UTC_NOTE,
     LAST_LEAP_SECOND_UTC,
     jd_tdb_to_iso_tdb,
     jd_tdb_to_utc,
     utc_to_jd_tdb,
 )
+from solver.errors import InputError
 
 ONE_MICROSECOND_S = 1e-6
 

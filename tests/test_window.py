@@ -10,16 +10,17 @@ import pytest
 from reference_lambert import lambert_uv
 
 from app.samples import load
-from solver.cache import GridCache
-from solver.case import parse_case
 from solver.constants import AU_KM, GM_SUN_KM3_S2, OBLIQUITY_J2000_RAD
-from solver.ephemeris import states
+from solver.ephemeris.states import states
+from solver.ephemeris.timescales import jd_tdb_to_utc, utc_to_jd_tdb
 from solver.errors import InputError
-from solver.kepler import propagate
+from solver.files.cache import GridCache
+from solver.mechanics.kepler import propagate
 from solver.reasons import Reason
-from solver.refine import refine_best
-from solver.timescales import jd_tdb_to_utc, utc_to_jd_tdb
-from solver.window import compute_window, select_arc, solve_cell
+from solver.window.case import parse_case
+from solver.window.cell import select_arc, solve_cell
+from solver.window.grid import compute_window
+from solver.window.refine import refine_best
 
 ECLIPTIC_POLE_ICRF = np.array([0.0, -math.sin(OBLIQUITY_J2000_RAD), math.cos(OBLIQUITY_J2000_RAD)])
 
@@ -337,7 +338,8 @@ def test_metrics_physics_spot_checks(vesper):
         math.sqrt(va**2 + 2 * venus.gm_km3_s2 / (venus.radius_km + 125.0)), rel=1e-12
     )
     # DLA of an asymptote along the ecliptic pole is 90° - ε (REFERENCES.md 6 [MEMORY])
-    from solver.window import CaseBodies, arc_metrics
+    from solver.window.case_bodies import CaseBodies
+    from solver.window.metrics import arc_metrics
 
     bodies = CaseBodies.of(case)
     m = arc_metrics(
@@ -362,7 +364,7 @@ def test_metrics_physics_spot_checks(vesper):
 )
 def test_every_output_says_how_its_dv_is_counted(sample, departure, arrival):
     """A Δv of 0 (the launcher's share, a flyby) is stated as such wherever it is shown."""
-    from solver.window import provenance
+    from solver.window.provenance import provenance
 
     prov = provenance(load(sample))
     assert departure in prov["departure_dv"]

@@ -35,7 +35,8 @@ def window_like(n: int, slots: int) -> dict[str, np.ndarray]:
 
 
 def _lines_for(label: str, arrays: dict[str, np.ndarray], folder: Path) -> list[BenchLine]:
-    from solver.cache import GridCache, cache_key
+    from solver.digest import cache_key
+    from solver.files.cache import GridCache
 
     cache = GridCache(folder / "cache", max_bytes=8 * 1024**3)
     key = cache_key({"bench": label})

@@ -148,7 +148,7 @@ def _http_transport(base_url: str):
 
 def _large_case_text(n: int) -> str:
     from app.bench.grid_bench import bench_case
-    from solver.case import dumps_toml
+    from solver.window.case import dumps_toml
 
     return dumps_toml(bench_case(n, 0))
 
@@ -156,7 +156,7 @@ def _large_case_text(n: int) -> str:
 def _cells(model, view_search: str, count: int, seed: int = 7) -> list[tuple[float, float]]:
     """Plot coordinates (ms) of random grid nodes of a view's case."""
     from app.dashboard.prepare import jd_tdb_to_unix_ms
-    from solver.window import grid_axes
+    from solver.window.grid import grid_axes
 
     _, case, _ = model.view_from_url(view_search)
     dep, arr = grid_axes(case)

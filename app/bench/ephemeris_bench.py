@@ -24,11 +24,12 @@ def _loop_rate(func, items) -> float:
 
 
 def _element_set(n_bodies: int):
-    from solver.element_bodies import ElementBody, ElementSet
+    from solver.ephemeris.element_bodies import ElementSet
+    from solver.ephemeris.element_input import element_body
 
     rng = np.random.default_rng(SEED)
     bodies = [
-        ElementBody.from_elements(
+        element_body(
             f"B{k}",
             epoch_jd_tdb=2461000.5,
             semi_major_axis_au=float(rng.uniform(0.6, 5.0)),
@@ -44,8 +45,8 @@ def _element_set(n_bodies: int):
 
 
 def run(size: str = "full") -> list[BenchLine]:
-    from solver.ephemeris import element_set_states, states
-    from solver.timescales import jd_tdb_to_utc, utc_to_jd_tdb
+    from solver.ephemeris.states import element_set_states, states
+    from solver.ephemeris.timescales import jd_tdb_to_utc, utc_to_jd_tdb
 
     full = size == "full"
     n_epochs = 100_000 if full else 5_000
@@ -80,7 +81,7 @@ def run(size: str = "full") -> list[BenchLine]:
     set_s = best_time_s(lambda: element_set_states(bodies, grid, central="sun"), repeats=2)
     set_rate = n_bodies * n_body_epochs / set_s
     n_body_loop = 200 if full else 50
-    from solver.bodies import default_registry
+    from solver.ephemeris.bodies import default_registry
 
     registry = default_registry().with_bodies(bodies[k] for k in range(n_body_loop))
     base_rate = n_body_epochs * _loop_rate(

@@ -21,7 +21,7 @@ SIZE_QUICK = 120
 
 def bench_case(n: int, max_revolutions: int):
     """An Earth-Venus case with n departure and n arrival dates (about a year each)."""
-    from solver.case import parse_case
+    from solver.window.case import parse_case
 
     return parse_case(f"""
 [case]
@@ -53,7 +53,9 @@ dla_max_deg = 40
 
 
 def _per_cell_seconds(case, samples: int) -> float:
-    from solver.window import CaseBodies, grid_axes, solve_cell
+    from solver.window.case_bodies import CaseBodies
+    from solver.window.cell import solve_cell
+    from solver.window.grid import grid_axes
 
     bodies = CaseBodies.of(case)
     dep, arr = grid_axes(case)
@@ -67,8 +69,8 @@ def _per_cell_seconds(case, samples: int) -> float:
 
 
 def run(size: str = "full") -> list[BenchLine]:
-    from solver.cache import GridCache
-    from solver.window import compute_window
+    from solver.files.cache import GridCache
+    from solver.window.grid import compute_window
 
     n = SIZE_FULL if size == "full" else SIZE_QUICK
     samples = 400 if size == "full" else 50

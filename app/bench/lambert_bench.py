@@ -108,7 +108,7 @@ def baseline_lambert(r1, r2, tof, mu):
 def _first_call_s() -> float:
     """Wall time of import plus a first solve in a fresh process (kernels load from cache)."""
     code = (
-        "import time; t=time.perf_counter(); from solver.lambert import solve_lambert; "
+        "import time; t=time.perf_counter(); from solver.mechanics.lambert import solve_lambert; "
         "solve_lambert([7000.,0,0],[0,8000.,0],3000.,398600.,max_revs=1); "
         "print(time.perf_counter()-t)"
     )
@@ -117,7 +117,7 @@ def _first_call_s() -> float:
 
 
 def run(size: str = "full") -> list[BenchLine]:
-    from solver.lambert import solve_lambert
+    from solver.mechanics.lambert import solve_lambert
 
     n = 1_000_000 if size == "full" else 20_000
     n_baseline = 2_000 if size == "full" else 200

@@ -41,8 +41,8 @@ SIZES = {
 def _warm_up() -> None:
     """Run on each worker: import the engine and solve one small target-year."""
     from app.samples import SAMPLE_DIR, load
-    from solver.element_bodies import read_element_csv
-    from solver.survey import SurveySettings, scan_target
+    from solver.ephemeris.element_input import read_element_csv
+    from solver.survey.scan import SurveySettings, scan_target
 
     base = load("survey_base")
     body = next(iter(read_element_csv(SAMPLE_DIR / "demo_catalogue.csv")))
@@ -51,8 +51,8 @@ def _warm_up() -> None:
 
 def _plan(size: str):
     from app.samples import SAMPLE_DIR, load
-    from solver.element_bodies import read_element_csv
-    from solver.survey import plan_survey
+    from solver.ephemeris.element_input import read_element_csv
+    from solver.survey.scan import plan_survey
 
     spec = SIZES[size]
     targets = list(read_element_csv(SAMPLE_DIR / "demo_catalogue.csv"))[: spec["targets"]]
@@ -66,7 +66,7 @@ def _plan(size: str):
 
 
 def _timed_run(plan, client, submit_options=None) -> float:
-    from solver.survey_dask import run_survey
+    from solver.survey.cluster import run_survey
 
     with tempfile.TemporaryDirectory() as folder:
         start = time.perf_counter()
@@ -82,7 +82,7 @@ def _timed_run(plan, client, submit_options=None) -> float:
 def run(size: str = "full") -> list[BenchLine]:
     from distributed import Client
 
-    from solver.survey_dask import start_local_cluster
+    from solver.survey.cluster import start_local_cluster
 
     plan = _plan(size)
     n_targets = len(plan.target_names)
@@ -121,7 +121,7 @@ def run(size: str = "full") -> list[BenchLine]:
     per_chunk_s = one_s / n_chunks
 
     # Projection for the issue's survey, from the 1-worker cost (Dask overhead included).
-    from solver.survey import DEFAULT_TARGETS_PER_CHUNK
+    from solver.survey.scan import DEFAULT_TARGETS_PER_CHUNK
 
     target_years = PROJECT_TARGETS * PROJECT_YEARS
     chunks = -(-target_years // DEFAULT_TARGETS_PER_CHUNK)

@@ -5,10 +5,9 @@ from __future__ import annotations
 import argparse
 import sys
 
-CAUTION = (
-    "Caution: two-body, patched-conic preliminary design. Confirm with high-fidelity tools and "
-    "the responsible mission authority before committing hardware or launch plans."
-)
+from solver.caution import CAUTION as _CAUTION
+
+CAUTION = "Caution: " + _CAUTION
 # Grids with more cell-arcs than this show a progress bar on stderr.
 PROGRESS_MIN_CELL_ARCS = 200_000
 
@@ -38,8 +37,8 @@ def add_cache_options(parser: argparse.ArgumentParser) -> None:
 
 def compute_grid(args: argparse.Namespace, case):
     """The case's grid, through the cache unless --no-cache, with a progress bar when long."""
-    from solver.cache import GridCache
-    from solver.window import check_grid_size, compute_window
+    from solver.files.cache import GridCache
+    from solver.window.grid import check_grid_size, compute_window
 
     n_dep, n_arr, slots = check_grid_size(case, args.max_cells)
     cache = None if args.no_cache else GridCache(args.cache_dir)
@@ -58,12 +57,12 @@ def compute_grid(args: argparse.Namespace, case):
 
 
 def utc(jd_tdb: float, digits: int = 0) -> str:
-    from solver.timescales import jd_tdb_to_utc
+    from solver.ephemeris.timescales import jd_tdb_to_utc
 
     return str(jd_tdb_to_utc(jd_tdb, digits=digits))
 
 
 def metric_choices() -> list[str]:
-    from solver.window import RANKING_METRICS
+    from solver.window.metrics import RANKING_METRICS
 
     return list(RANKING_METRICS)

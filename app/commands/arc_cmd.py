@@ -35,11 +35,12 @@ def run(args: argparse.Namespace) -> int:
 
     from app.commands.best_cmd import format_arc_report
     from app.samples import load
+    from solver.ephemeris.timescales import utc_to_jd_tdb
     from solver.errors import InputError
-    from solver.export import arc_json, arc_oem_text
+    from solver.files.export import arc_json, arc_oem_text
     from solver.reasons import describe
-    from solver.timescales import utc_to_jd_tdb
-    from solver.window import METRICS, select_arc, solve_cell
+    from solver.window.cell import select_arc, solve_cell
+    from solver.window.metrics import METRICS
 
     case = load(args.case)
     depart = float(utc_to_jd_tdb(args.depart, field="--depart"))

@@ -45,8 +45,8 @@ def run(args: argparse.Namespace) -> int:
     import json
 
     from app.samples import load
-    from solver.export import arc_json
-    from solver.refine import refine_best
+    from solver.files.export import arc_json
+    from solver.window.refine import refine_best
 
     case = load(args.case)
     grid = compute_grid(args, case)
@@ -78,7 +78,7 @@ def run(args: argparse.Namespace) -> int:
 
 def format_arc_report(report: dict) -> str:
     """Plain-text summary of an arc (shared with ``arcwindow arc``)."""
-    from solver.window import METRICS
+    from solver.window.metrics import METRICS
 
     lines = [
         f"{report['case_title']}",

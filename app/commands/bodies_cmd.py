@@ -21,7 +21,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
 def _date(jd: float) -> str:
     import math
 
-    from solver.timescales import jd_tdb_to_iso_tdb
+    from solver.ephemeris.timescales import jd_tdb_to_iso_tdb
 
     if math.isinf(jd):
         return "any"
@@ -32,8 +32,8 @@ def run(args: argparse.Namespace) -> int:
     import json
     import math
 
-    from solver.bodies import default_registry
-    from solver.element_bodies import read_element_csv
+    from solver.ephemeris.bodies import default_registry
+    from solver.ephemeris.element_input import read_element_csv
 
     registry = default_registry()
     if args.elements_csv:

@@ -17,7 +17,7 @@ def run(args: argparse.Namespace) -> int:
     import json
 
     from app.samples import DEFAULT_CASE, sample_case_paths
-    from solver.case import load_case
+    from solver.window.case import load_case
 
     rows = []
     for path in sample_case_paths():

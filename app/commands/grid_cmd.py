@@ -27,7 +27,7 @@ def run(args: argparse.Namespace) -> int:
 
     from app.samples import load
     from solver.errors import InputError
-    from solver.export import write_grid
+    from solver.files.export import write_grid
 
     out = Path(args.out)
     if out.suffix.lower() not in (".csv", ".parquet"):

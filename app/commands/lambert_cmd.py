@@ -85,9 +85,9 @@ def solve(args: argparse.Namespace) -> dict:
     """Validate the arguments, solve, and return the report as a plain dict."""
     import numpy as np
 
-    from solver.families import classify, family_label
-    from solver.kepler import state_to_elements
-    from solver.lambert import BRANCH_NAMES, solve_lambert
+    from solver.mechanics.families import classify, family_label
+    from solver.mechanics.kepler import state_to_elements
+    from solver.mechanics.lambert import BRANCH_NAMES, solve_lambert
     from solver.reasons import describe
 
     mu = parse_positive(args.mu_km3_s2, "--mu-km3-s2", "km^3/s^2")

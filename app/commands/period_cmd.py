@@ -34,8 +34,8 @@ def run(args: argparse.Namespace) -> int:
     from dataclasses import asdict
 
     from app.samples import load
-    from solver.launch_period import launch_period
-    from solver.window import provenance
+    from solver.window.launch_period import launch_period
+    from solver.window.provenance import provenance
 
     case = load(args.case)
     period = launch_period(case, args.days, args.strategy)

@@ -46,11 +46,11 @@ def run(args: argparse.Namespace) -> int:
 
     import numpy as np
 
-    from solver.bodies import default_registry
     from solver.constants import AU_KM
-    from solver.element_bodies import read_element_csv
-    from solver.ephemeris import states
-    from solver.timescales import FUTURE_UTC_NOTE, LAST_LEAP_SECOND_UTC, utc_to_jd_tdb
+    from solver.ephemeris.bodies import default_registry
+    from solver.ephemeris.element_input import read_element_csv
+    from solver.ephemeris.states import states
+    from solver.ephemeris.timescales import FUTURE_UTC_NOTE, LAST_LEAP_SECOND_UTC, utc_to_jd_tdb
 
     registry = default_registry()
     if args.elements_csv:

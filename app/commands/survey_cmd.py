@@ -23,7 +23,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument(
         "targets",
         metavar="TARGETS.csv",
-        help="element CSV of the targets (format: solver/element_bodies.py), or a sample "
+        help="element CSV of the targets (format: solver/ephemeris/element_input.py), or a sample "
         "catalogue name (demo_catalogue)",
     )
     parser.add_argument(
@@ -133,11 +133,11 @@ def run(args: argparse.Namespace) -> int:
     from pathlib import Path
 
     from app.samples import load
-    from solver.element_bodies import read_element_csv
+    from solver.ephemeris.element_input import read_element_csv
     from solver.errors import InputError
-    from solver.survey import DEFAULT_TARGETS_PER_CHUNK, SurveySettings, plan_survey
-    from solver.survey_dask import describe_client, pending_chunks, run_survey, survey_client
-    from solver.survey_store import chunk_folder
+    from solver.survey.cluster import describe_client, pending_chunks, run_survey, survey_client
+    from solver.survey.scan import DEFAULT_TARGETS_PER_CHUNK, SurveySettings, plan_survey
+    from solver.survey.store import chunk_folder
 
     out = Path(args.out)
     if out.suffix.lower() != ".parquet":
@@ -226,7 +226,7 @@ def run(args: argparse.Namespace) -> int:
 
 def format_ranking(results, plan, rows: int) -> str:
     """The head of the ranking as a plain-text table."""
-    from solver.window import METRICS
+    from solver.window.metrics import METRICS
 
     metric = METRICS[plan.settings.metric]
     within = int(results["within_limits"].sum())

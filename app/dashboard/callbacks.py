@@ -32,7 +32,7 @@ from dash import (
 )
 
 from solver.errors import InputError
-from solver.window import window_cache_key
+from solver.window.provenance import window_cache_key
 
 from . import layout, theme
 from .exports import arc_json, arc_oem, figure_html, grid_csv, safe_name

@@ -16,9 +16,9 @@ import threading
 from collections import OrderedDict
 from pathlib import Path
 
-from solver.case import Case, dumps_toml, load_case, parse_case
 from solver.errors import InputError
-from solver.window import check_grid_size
+from solver.window.case import Case, dumps_toml, load_case, parse_case
+from solver.window.grid import check_grid_size
 
 from .state import DEFAULT_CASE_ID, ViewState
 

@@ -2,7 +2,7 @@
 then default.
 
 * grid cache folder: ``cache_dir`` (``--cache-dir``), ``ARCWINDOW_CACHE_DIR``, the per-user
-  cache folder of ``solver.cache``;
+  cache folder of ``solver.files.cache``;
 * data folder (shortlist, uploaded cases): ``data_dir`` (``--data-dir``), ``ARCWINDOW_DATA_DIR``,
   ``platformdirs.user_data_dir("arcwindow")``;
 * sample cases folder: ``cases_dir``, ``ARCWINDOW_CASES_DIR``, this repository's
@@ -20,7 +20,7 @@ from pathlib import Path
 ENV_DATA_DIR = "ARCWINDOW_DATA_DIR"
 ENV_CASES_DIR = "ARCWINDOW_CASES_DIR"
 ENV_SURVEY_DIR = "ARCWINDOW_SURVEY_DIR"
-ENV_CACHE_DIR = "ARCWINDOW_CACHE_DIR"  # also read by solver.cache.GridCache
+ENV_CACHE_DIR = "ARCWINDOW_CACHE_DIR"  # also read by solver.files.cache.GridCache
 
 REPO_ROOT = Path(__file__).resolve().parents[2]
 
@@ -54,7 +54,7 @@ class Settings:
         import platformdirs
 
         from app.samples import SAMPLE_DIR
-        from solver.cache import default_directory
+        from solver.files.cache import default_directory
 
         data = _pick(data_dir, ENV_DATA_DIR, Path(platformdirs.user_data_dir("arcwindow")))
         return cls(

@@ -1,6 +1,6 @@
 """Downloads: the grid as CSV, the selected arc as CCSDS OEM and JSON, figures as HTML.
 
-The grid and arc formats are ``solver.export``'s own; this module only names the files and
+The grid and arc formats are ``solver.files.export``'s own; this module only names the files and
 turns results into text. Figures also download as PNG in the browser (the graph's camera
 button and the page's PNG buttons); the HTML version inlines plotly.js so it opens offline.
 """
@@ -12,10 +12,12 @@ import re
 
 import plotly.graph_objects as go
 
-from solver.case import Case
-from solver.export import arc_json as _arc_json
-from solver.export import arc_oem_text, grid_to_frame
-from solver.window import CAUTION, Arc, WindowGrid
+from solver.caution import CAUTION
+from solver.files.export import arc_json as _arc_json
+from solver.files.export import arc_oem_text, grid_to_frame
+from solver.window.case import Case
+from solver.window.cell import Arc
+from solver.window.grid import WindowGrid
 
 
 def safe_name(text: str) -> str:
@@ -24,7 +26,7 @@ def safe_name(text: str) -> str:
 
 
 def grid_csv(grid: WindowGrid) -> str:
-    """Every arc of the grid, one row per cell and arc (``solver.export`` columns)."""
+    """Every arc of the grid, one row per cell and arc (``solver.files.export`` columns)."""
     return grid_to_frame(grid).to_csv(index=False)
 
 

@@ -21,10 +21,11 @@ from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 
-from solver.cache import GridCache
-from solver.case import Case
 from solver.errors import InputError
-from solver.window import Cancelled, WindowGrid, compute_window, window_cache_key
+from solver.files.cache import GridCache
+from solver.window.case import Case
+from solver.window.grid import Cancelled, WindowGrid, compute_window
+from solver.window.provenance import window_cache_key
 
 DEFAULT_MEMORY_GRIDS = 8
 DEFAULT_MEMORY_BYTES = 2 * 1024**3

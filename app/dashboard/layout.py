@@ -12,8 +12,9 @@ import re
 
 from dash import dcc, html
 
-from solver.timescales import FUTURE_UTC_NOTE
-from solver.window import CAUTION, METRICS
+from solver.caution import CAUTION
+from solver.ephemeris.timescales import FUTURE_UTC_NOTE
+from solver.window.metrics import METRICS
 
 from . import theme
 from .cases import MAX_UPLOAD_BYTES
@@ -23,7 +24,7 @@ from .state import MAP_METRICS
 POLL_GRID_MS = 300
 POLL_SHORTLIST_MS = 3000
 
-# Control ids by the case setting they change (dotted keys of solver.case.with_changes).
+# Control ids by the case setting they change (dotted keys of solver.window.case.with_changes).
 CONTROL_IDS: dict[str, str] = {
     "case.departure_body": "dropdown-body-departure",
     "case.target_body": "dropdown-body-target",

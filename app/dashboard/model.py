@@ -20,21 +20,16 @@ from urllib.parse import parse_qs
 import numpy as np
 import plotly.graph_objects as go
 
-from solver.cache import GridCache
-from solver.case import Case
+from solver.ephemeris.timescales import utc_to_jd_tdb
 from solver.errors import InputError
-from solver.timescales import utc_to_jd_tdb
-from solver.window import (
-    METRICS,
-    Arc,
-    CaseBodies,
-    WindowGrid,
-    case_hash,
-    grid_axes,
-    select_arc,
-    solve_cell,
-    window_cache_key,
-)
+from solver.files.cache import GridCache
+from solver.window.best import best_grid_arc
+from solver.window.case import Case
+from solver.window.case_bodies import CaseBodies
+from solver.window.cell import Arc, select_arc, solve_cell
+from solver.window.grid import WindowGrid, grid_axes
+from solver.window.metrics import METRICS
+from solver.window.provenance import case_hash, window_cache_key
 
 from . import figures
 from .cases import CaseCatalogue
@@ -132,26 +127,13 @@ def grid_best_arc(
     """The best arc within limits among the arcs shown, at its grid node (None if no arc of
     the grid is within limits)."""
     slot = shown_slot(grid, arcs)
-    values = grid.metric(metric)
-    if METRICS[metric].rank_by_magnitude:
-        values = np.abs(values)
-    within = grid.within if slot is None else grid.within[..., slot : slot + 1]
-    values = values if slot is None else values[..., slot : slot + 1]
-    score = np.where(within, values, np.inf)
-    if not np.isfinite(score).any():
-        return None
-    i, j, k = np.unravel_index(int(np.argmin(score)), score.shape)
-    k = k if slot is None else slot
-    revolutions = int(grid.revolutions[k])
-    branch = ("single", "low", "high")[int(grid.branch[k])]
-    cell = solve_cell(case, grid.departure_jd_tdb[i], grid.arrival_jd_tdb[j], bodies)
-    return select_arc(cell, revolutions, branch, metric)
+    return best_grid_arc(case, grid, metric, slots=None if slot is None else [slot], bodies=bodies)
 
 
 class BestArcs:
     """Best arcs by (grid, metric, arcs shown): the grid node at once, refined in the background.
 
-    Refining the best arc off the grid (``solver.refine``) takes from a tenth of a second to
+    Refining the best arc off the grid (``solver.window.refine``) takes from a tenth of a second to
     several seconds depending on the metric, too long to hold a click or a metric change; so
     callers get the grid node's arc while a worker thread refines it, and pick the refined arc
     up on a later poll.
@@ -183,7 +165,7 @@ class BestArcs:
             self._pending[key] = self._pool.submit(self._refine, key, case, grid, metric, arcs)
 
     def _refine(self, key, case, grid, metric, arcs) -> None:
-        from solver.refine import refine_best  # scipy.optimize: imported when first needed
+        from solver.window.refine import refine_best  # scipy.optimize: imported when first needed
 
         revolutions, branch = parse_arcs(arcs)
         try:
@@ -424,7 +406,7 @@ class DashboardModel:
 
     def preview_figure(self, view: ViewState, case: Case, dep_days, arr_days) -> go.Figure:
         """A coarse window map for slider positions being dragged (InputError if refused)."""
-        from solver.window import compute_window
+        from solver.window.grid import compute_window
 
         changes = {}
         for (start_key, end_key, step_key), days in (
@@ -457,7 +439,7 @@ class DashboardModel:
         fam = family_data(case, sel.arcs, sel.arc, bodies)
         provenance = grid.provenance if grid is not None else {}
         if not provenance:
-            from solver.window import provenance as make_provenance
+            from solver.window.provenance import provenance as make_provenance
 
             provenance = make_provenance(case)
         details = arc_details(case, sel.arc, provenance, bodies)

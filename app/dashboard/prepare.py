@@ -1,9 +1,9 @@
 """Solver results turned into the plain arrays the figure builders draw.
 
 The figure builders (``figures.py``) know nothing of cases, grids or ephemerides: they take the
-dataclasses made here. This module calls the engine (``solver.window``, ``solver.kepler``,
-``solver.ephemeris``, ``solver.families``) and does the unit conversions for display, so the
-figures stay pure and fast to test.
+dataclasses made here. This module calls the engine (``solver.window``,
+``solver.mechanics.kepler``, ``solver.ephemeris.states``, ``solver.mechanics.families``) and does
+the unit conversions for display, so the figures stay pure and fast to test.
 
 Dates on the plots are milliseconds since 1970-01-01 UTC, the number a plotly date axis reads.
 """
@@ -16,10 +16,11 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import NDArray
 
-from solver.case import Case
-from solver.constants import AU_KM, SECONDS_PER_DAY
-from solver.ephemeris import states
-from solver.families import (
+from solver.constants import AU_KM
+from solver.ephemeris.frames import ECLIPTIC, ICRF, equator_frame, rotate
+from solver.ephemeris.states import states
+from solver.ephemeris.timescales import jd_tdb_to_utc, split_jd, tdb_jd_to_utc_jd
+from solver.mechanics.families import (
     FamilyCurve,
     classify,
     family_curves,
@@ -28,11 +29,15 @@ from solver.families import (
     minimum_energy_tau,
     parabolic_tau,
 )
-from solver.frames import ECLIPTIC, ICRF, equator_frame, rotate
-from solver.kepler import sample_arc, state_to_elements
+from solver.mechanics.kepler import sample_arc, state_to_elements
 from solver.reasons import describe
-from solver.timescales import jd_tdb_to_utc, split_jd, tdb_jd_to_utc_jd
-from solver.window import METRICS, Arc, CaseBodies, WindowGrid, dv_conventions
+from solver.time_units import SECONDS_PER_DAY
+from solver.window.case import Case
+from solver.window.case_bodies import CaseBodies
+from solver.window.cell import Arc
+from solver.window.grid import WindowGrid
+from solver.window.limits import LIMIT_RULES, breaches
+from solver.window.metrics import METRICS, dv_conventions
 
 from .state import parse_arcs
 
@@ -68,12 +73,8 @@ HOVER_FIELDS: tuple[tuple[str, str, str, str], ...] = (
 ENTRY_HOVER_FIELD = ("entry_speed_km_s", "entry speed", "km/s", ".3f")
 """Added when the case asks for an entry speed (an entry altitude)."""
 
-LIMIT_OF_METRIC = {
-    "c3_km2_s2": "c3_max_km2_s2",
-    "vinf_arrival_km_s": "vinf_arrival_max_km_s",
-    "dla_deg": "dla_max_deg",
-    "tof_days": "tof_max_days",
-}
+# The upper limit drawn as a contour on the map of each bounded metric.
+LIMIT_OF_METRIC = {rule.quantity: rule.key for rule in LIMIT_RULES if rule.bound == "max"}
 
 
 # ---------------------------------------------------------------------------------------------
@@ -553,25 +554,9 @@ def _fmt(value: float, digits: int = 3) -> str:
     return f"{value:,.{digits}f}"
 
 
-def limit_breaches(case: Case, arc: Arc) -> list[str]:
+def limit_breaches(case: Case, arc: Arc, bodies: CaseBodies | None = None) -> list[str]:
     """Plain-language list of the limits an arc breaks (empty when within limits)."""
-    lim = case.limits
-    m = arc.metrics
-    out = []
-    checks = (
-        (lim.c3_max_km2_s2, m["c3_km2_s2"], "C3", "km²/s²", False),
-        (lim.vinf_arrival_max_km_s, m["vinf_arrival_km_s"], "arrival v∞", "km/s", False),
-        (lim.dla_max_deg, abs(m["dla_deg"]), "|DLA|", "deg", False),
-        (lim.tof_max_days, arc.tof_days, "TOF", "days", False),
-        (lim.tof_min_days, arc.tof_days, "TOF", "days", True),
-    )
-    for bound, value, label, unit, is_min in checks:
-        if bound is None or not math.isfinite(value):
-            continue
-        if (value < bound) if is_min else (value > bound):
-            sign = "<" if is_min else ">"
-            out.append(f"{label} {_fmt(value, 2)} {sign} {bound:g} {unit}")
-    return out
+    return [b.text for b in breaches(case, bodies or CaseBodies.of(case), arc.metrics)]
 
 
 def arc_details(
@@ -588,7 +573,7 @@ def arc_details(
     if arc.revolutions:
         kind += f" geometry, {arc.revolutions}-revolution"
     status = "within limits" if arc.within else ("outside limits" if arc.ok else "no arc")
-    breaches = limit_breaches(case, arc) if arc.ok else []
+    breaches = limit_breaches(case, arc, bodies) if arc.ok else []
     tof_rows = [DetailRow("TOF", _fmt(arc.tof_days, 2 if arc.tof_days >= 2.0 else 4), "days")]
     if arc.tof_days < 2.0:
         tof_rows.append(DetailRow("TOF", _fmt(arc.tof_days * 24.0, 3), "h"))

@@ -23,8 +23,9 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 from urllib.parse import parse_qsl, quote
 
-from solver.case import Case, to_toml_dict
-from solver.window import METRICS
+from solver.window.case import Case, to_toml_dict
+from solver.window.metrics import METRICS
+from solver.window.settings import SETTINGS, Setting
 
 DEFAULT_CASE_ID = "tallis_rendezvous"
 DEFAULT_METRIC = "c3_km2_s2"
@@ -48,22 +49,18 @@ class Field:
     kind: str  # "text", "float", "int", "optional_float"
 
 
-# Scalar settings; the two date windows are handled as ranges (see RANGES).
-FIELDS: tuple[Field, ...] = (
-    Field("from", "case.departure_body", "text"),
-    Field("to", "case.target_body", "text"),
-    Field("dstep", "window.departure_step_days", "float"),
-    Field("astep", "window.arrival_step_days", "float"),
-    Field("revs", "transfer.max_revolutions", "int"),
-    Field("park", "departure_orbit.altitude_km", "optional_float"),
-    Field("mode", "arrival_orbit.mode", "text"),
-    Field("capp", "arrival_orbit.periapsis_altitude_km", "optional_float"),
-    Field("capa", "arrival_orbit.apoapsis_altitude_km", "optional_float"),
-    Field("c3max", "limits.c3_max_km2_s2", "optional_float"),
-    Field("vinfmax", "limits.vinf_arrival_max_km_s", "optional_float"),
-    Field("dlamax", "limits.dla_max_deg", "optional_float"),
-    Field("tofmin", "limits.tof_min_days", "optional_float"),
-    Field("tofmax", "limits.tof_max_days", "optional_float"),
+def _field_kind(setting: Setting) -> str:
+    if setting.kind == "integer":
+        return "int"
+    if setting.kind == "number":
+        return "float" if setting.default is not None else "optional_float"
+    return "text"
+
+
+# Scalar settings a link can carry, from the one table of case settings; the two date windows
+# are handled as ranges (see RANGES).
+FIELDS: tuple[Field, ...] = tuple(
+    Field(s.url, s.key, _field_kind(s)) for s in SETTINGS if s.url is not None
 )
 FIELD_BY_KEY = {f.key: f for f in FIELDS}
 FIELD_BY_URL = {f.url: f for f in FIELDS}

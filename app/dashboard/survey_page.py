@@ -2,7 +2,7 @@
 
 A second Dash app on the dashboard's own server, so the window page's callbacks and URL state
 stay as they are. "open" goes through ``/survey-open``, which builds the target's window case
-around its best arc (``solver.survey.case_for_target``), stores it like an uploaded case, and
+around its best arc (``solver.survey.scan.case_for_target``), stores it like an uploaded case, and
 sends the browser to the window page with that case and the best arc selected.
 """
 
@@ -14,8 +14,8 @@ from urllib.parse import parse_qsl, quote, urlencode
 from dash import Dash, Input, Output, State, ctx, dcc, html, no_update
 from flask import redirect, request
 
+from solver.caution import CAUTION
 from solver.errors import InputError
-from solver.window import CAUTION
 
 from .config import ASSETS_DIR
 from .surveys import TABLE_ROWS, SurveyShelf, SurveyTable

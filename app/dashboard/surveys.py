@@ -41,7 +41,7 @@ class SurveyTable:
 
     @property
     def summary(self) -> str:
-        from solver.window import METRICS
+        from solver.window.metrics import METRICS
 
         first, last = self.years
         meta = METRICS.get(self.metric)
@@ -79,7 +79,7 @@ class SurveyShelf:
 
     def table(self, name: str) -> SurveyTable:
         """The ranked rows of a results file (read again when the file changes)."""
-        from solver.survey import load_results, read_survey_metadata
+        from solver.survey.results import load_results, read_survey_metadata
 
         path = self.path(name)
         mtime = path.stat().st_mtime
@@ -111,7 +111,8 @@ class SurveyShelf:
         The window case is built from the survey's own base case and stored like an uploaded
         case, so the link works for every viewer of the server.
         """
-        from solver.survey import case_for_target, results_base_case
+        from solver.survey.results import results_base_case
+        from solver.survey.targets import case_for_target
 
         table = self.table(name)
         rows = table.frame[table.frame["target"] == target]

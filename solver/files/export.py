@@ -1,0 +1,270 @@
+"""Exports that downstream tools read: grid tables (CSV, Parquet), arcs (CCSDS OEM, JSON).
+
+Every export states its provenance (ephemeris, constants, engine version, case hash): CSV files
+open with ``#`` comment lines (``pandas.read_csv(path, comment="#")`` skips them), Parquet files
+carry it in the schema metadata under ``arcwindow.provenance``, JSON under ``"provenance"``, and
+OEM files in COMMENT lines.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from solver.ephemeris.timescales import jd_tdb_to_iso_tdb, jd_tdb_to_utc
+from solver.errors import InputError
+from solver.files.oem import format_oem
+from solver.mechanics.families import Family, family_label
+from solver.mechanics.kepler import propagate, sample_arc, state_to_elements
+from solver.mechanics.lambert import BRANCH_NAMES
+from solver.reasons import Reason, describe
+from solver.window.case import Case
+from solver.window.cell import Arc
+from solver.window.grid import WindowGrid
+from solver.window.metrics import METRICS
+from solver.window.provenance import provenance
+
+GRID_COLUMNS = (
+    "departure_utc",
+    "arrival_utc",
+    "tof_days",
+    "revolutions",
+    "branch",
+    "transfer_type",
+    "family",
+    "c3_km2_s2",
+    "vinf_departure_km_s",
+    "dla_deg",
+    "rla_deg",
+    "vinf_arrival_km_s",
+    "vinf_arrival_dec_deg",
+    "vinf_arrival_ra_deg",
+    "dv_departure_km_s",
+    "dv_arrival_km_s",
+    "dv_total_km_s",
+    "entry_speed_km_s",
+    "transfer_angle_deg",
+    "periapsis_km",
+    "apoapsis_km",
+    "a_km",
+    "e",
+    "within_limits",
+    "reason",
+    "departure_jd_tdb",
+    "arrival_jd_tdb",
+)
+
+
+def grid_to_frame(grid: WindowGrid) -> pd.DataFrame:
+    """One row per cell and arc; a cell with no arc at all is one row carrying its reason.
+
+    Multi-revolution slots that do not exist for a cell (its TOF is below the N-revolution
+    minimum) are not arcs and have no row; every cell appears at least once.
+    """
+    _n_dep, _n_arr, _slots = grid.shape
+    converged = grid.converged
+    no_arc = ~converged.any(axis=-1)
+    keep = converged.copy()
+    keep[..., 0] |= no_arc  # the cell's one row, with the slot-0 reason
+    i, j, k = np.nonzero(keep)
+    # Text columns are categoricals: a million rows share a few hundred distinct strings.
+    dep_utc = list(np.atleast_1d(jd_tdb_to_utc(grid.departure_jd_tdb, digits=0)))
+    arr_utc = list(np.atleast_1d(jd_tdb_to_utc(grid.arrival_jd_tdb, digits=0)))
+    family_names = [""] + [Family(code).label for code in range(1, max(Family) + 1)]
+    reason_names = [describe(code) for code in range(max(Reason) + 1)]
+    branch_names = [BRANCH_NAMES[b] for b in sorted(BRANCH_NAMES)]
+    reasons = grid.reason[i, j, k]
+
+    def categorical(codes, names):
+        return pd.Categorical.from_codes(np.asarray(codes, dtype=np.int64), categories=names)
+
+    columns: dict[str, Any] = {
+        "departure_utc": categorical(i, dep_utc),
+        "arrival_utc": categorical(j, arr_utc),
+        "tof_days": grid.tof_days[i, j],
+        "revolutions": grid.revolutions[k],
+        "branch": categorical(grid.branch[k], branch_names),
+        "transfer_type": categorical(
+            (grid.transfer_angle_deg[i, j] >= 180.0).astype(int), ["I", "II"]
+        ),
+        "family": categorical(grid.family[i, j, k], family_names),
+    }
+    for name in GRID_COLUMNS:
+        if name in grid.arcs:
+            columns[name] = grid.arcs[name][i, j, k]
+    columns["transfer_angle_deg"] = grid.transfer_angle_deg[i, j]
+    columns["within_limits"] = grid.within[i, j, k]
+    columns["reason"] = categorical(reasons, reason_names)
+    columns["departure_jd_tdb"] = grid.departure_jd_tdb[i]
+    columns["arrival_jd_tdb"] = grid.arrival_jd_tdb[j]
+    return pd.DataFrame({name: columns[name] for name in GRID_COLUMNS})
+
+
+def write_grid(grid: WindowGrid, path: str | Path) -> Path:
+    """Write the grid table to ``.csv`` or ``.parquet`` (chosen by the suffix)."""
+    path = Path(path)
+    suffix = path.suffix.lower()
+    if suffix not in (".csv", ".parquet"):
+        raise InputError("--out", str(path), "a file name ending in .csv or .parquet")
+    frame = grid_to_frame(grid)
+    prov = grid.provenance or provenance(grid.case)
+    import pyarrow as pa
+
+    table = pa.Table.from_pandas(frame, preserve_index=False)
+    if suffix == ".csv":
+        import pyarrow.csv as pacsv
+
+        # pyarrow writes CSV an order of magnitude faster than pandas for million-row grids;
+        # categoricals are written as their text.
+        plain = table.cast(
+            pa.schema(
+                [
+                    pa.field(f.name, pa.string()) if pa.types.is_dictionary(f.type) else f
+                    for f in table.schema
+                ]
+            )
+        )
+        with open(path, "wb") as handle:
+            header = "".join(f"# {key}: {value}\n" for key, value in prov.items())
+            header += "# units: in the column names; dates UTC (ISO 8601), JD in TDB\n"
+            handle.write(header.encode("utf-8"))
+            pacsv.write_csv(plain, handle)
+    else:
+        import pyarrow.parquet as pq
+
+        metadata = dict(table.schema.metadata or {})
+        metadata[b"arcwindow.provenance"] = json.dumps(prov).encode()
+        pq.write_table(table.replace_schema_metadata(metadata), path)
+    return path
+
+
+def read_provenance(path: str | Path) -> dict[str, str]:
+    """Provenance of a grid file written by :func:`write_grid`."""
+    path = Path(path)
+    if path.suffix.lower() == ".parquet":
+        import pyarrow.parquet as pq
+
+        meta = pq.read_schema(path).metadata or {}
+        return json.loads(meta.get(b"arcwindow.provenance", b"{}"))
+    out = {}
+    with open(path, encoding="utf-8") as handle:
+        for line in handle:
+            if not line.startswith("# "):
+                break
+            key, _, value = line[2:].rstrip("\n").partition(": ")
+            out[key] = value
+    return out
+
+
+# ---------------------------------------------------------------------------------------------
+# Single arcs
+
+
+def arc_json(case: Case, arc: Arc) -> dict[str, Any]:
+    """Everything about one arc as plain JSON-able data (states in ICRF, km and km/s)."""
+    elements = state_to_elements(arc.r1_km, arc.v1_km_s, arc.mu_km3_s2)
+
+    def clean(value: float) -> float | None:
+        return float(value) if math.isfinite(value) else None
+
+    return {
+        "case_title": case.title,
+        "departure_utc": str(jd_tdb_to_utc(arc.departure_jd_tdb, digits=0)),
+        "arrival_utc": str(jd_tdb_to_utc(arc.arrival_jd_tdb, digits=0)),
+        "departure_jd_tdb": arc.departure_jd_tdb,
+        "arrival_jd_tdb": arc.arrival_jd_tdb,
+        "central_body": case.central_body,
+        "departure_body": case.departure_body,
+        "target_body": case.target_body,
+        "revolutions": arc.revolutions,
+        "branch": arc.branch,
+        "family": family_label(arc.family, arc.revolutions, arc.branch) if arc.family else None,
+        "transfer_type": "I" if arc.transfer_angle_deg < 180.0 else "II",
+        "transfer_angle_deg": arc.transfer_angle_deg,
+        "solved": arc.ok,
+        "reason": describe(arc.reason),
+        "within_limits": arc.within,
+        "metrics": {name: clean(value) for name, value in arc.metrics.items()},
+        "units": {name: METRICS[name].unit for name in arc.metrics if name in METRICS},
+        "frame": "ICRF",
+        "r1_km": arc.r1_km.tolist(),
+        "v1_km_s": arc.v1_km_s.tolist(),
+        "r2_km": arc.r2_km.tolist(),
+        "v2_km_s": arc.v2_km_s.tolist(),
+        "elements": {
+            "a_km": clean(float(elements.a_km)),
+            "e": clean(float(elements.e)),
+            "inclination_deg": clean(math.degrees(float(elements.inclination_rad))),
+            "raan_deg": clean(math.degrees(float(elements.raan_rad))),
+            "arg_periapsis_deg": clean(math.degrees(float(elements.arg_periapsis_rad))),
+            "true_anomaly_at_departure_deg": clean(math.degrees(float(elements.true_anomaly_rad))),
+            "frame": "ICRF (equatorial J2000)",
+        },
+        "mu_km3_s2": arc.mu_km3_s2,
+        "provenance": provenance(case),
+    }
+
+
+def arc_oem_text(
+    case: Case, arc: Arc, *, points_per_revolution: int = 360, min_points: int = 101
+) -> str:
+    """The arc as a CCSDS OEM 2.0 (KVN) message: TDB epochs, ICRF, about the central body."""
+    if not arc.ok:
+        raise InputError(
+            "arc",
+            f"{arc.revolutions} rev {arc.branch}",
+            f"a solved arc (this one: {describe(arc.reason)})",
+        )
+    tof_s = arc.tof_days * 86400.0
+    t_s, _ = sample_arc(
+        arc.r1_km,
+        arc.v1_km_s,
+        tof_s,
+        arc.mu_km3_s2,
+        points_per_revolution=points_per_revolution,
+        min_points=min_points,
+    )
+    r, v = propagate(arc.r1_km, arc.v1_km_s, t_s, arc.mu_km3_s2)
+    # The end states are the solution's own, exactly (the propagated ones agree to ~1e-10).
+    r[0], v[0], r[-1], v[-1] = arc.r1_km, arc.v1_km_s, arc.r2_km, arc.v2_km_s
+    epochs = [
+        str(e)
+        for e in np.atleast_1d(jd_tdb_to_iso_tdb(arc.departure_jd_tdb, t_s / 86400.0, digits=6))
+    ]
+    prov = provenance(case)
+    comments = [
+        f"Transfer arc of case '{case.title}' (case hash {prov['case_hash']})",
+        f"{case.departure_body} to {case.target_body} about {case.central_body}; "
+        f"{arc.revolutions} revolution(s), {arc.branch} branch",
+        f"Ephemeris: {prov['ephemeris']}; constants: {prov['constants']}",
+        f"Engine: {prov['engine']}; method: {prov['lambert_method']}",
+    ]
+    return format_oem(
+        epochs,
+        r,
+        v,
+        object_name=f"{case.departure_body}-{case.target_body} arc"[:60],
+        object_id=f"ARCWINDOW-{prov['case_hash'][:8]}-N{arc.revolutions}{arc.branch[0].upper()}",
+        center_name=case.central_body.upper(),
+        ref_frame="ICRF",
+        time_system="TDB",
+        originator="arcwindow",
+        comments=comments,
+        interpolation="LAGRANGE",
+        interpolation_degree=7,
+    )
+
+
+__all__ = [
+    "GRID_COLUMNS",
+    "arc_json",
+    "arc_oem_text",
+    "grid_to_frame",
+    "read_provenance",
+    "write_grid",
+]

@@ -1,0 +1,61 @@
+"""The window engine: cases, metrics, limits, grids, single arcs, best arcs and launch periods.
+
+Joins the ephemeris and the Lambert solver over departure x arrival date grids.
+
+The public names, by module, are listed below (each is imported on first use).
+"""
+
+from __future__ import annotations
+
+from solver._lazy import lazy_api
+
+__all__, __getattr__, __dir__ = lazy_api(
+    __name__,
+    {
+        "case": [
+            "ARRIVAL_MODES",
+            "Case",
+            "Limits",
+            "case_from_dict",
+            "dumps_toml",
+            "element_body_dict",
+            "load_case",
+            "parse_case",
+            "to_toml_dict",
+        ],
+        "case_bodies": ["CaseBodies", "body_states", "transfer_angle_deg"],
+        "metrics": [
+            "METRICS",
+            "RANKING_METRICS",
+            "Metric",
+            "arc_metrics",
+            "dv_conventions",
+            "ranking_values",
+        ],
+        "limits": [
+            "LIMIT_RULES",
+            "Breach",
+            "LimitRule",
+            "breach_text",
+            "breaches",
+            "margins",
+            "within_limits",
+        ],
+        "settings": ["SECTIONS", "SETTING", "SETTINGS", "Setting", "read_setting"],
+        "best": ["best_grid_arc", "slot_arc", "slot_arc_at", "slots_of"],
+        "grid": [
+            "DEFAULT_MAX_CELL_ARCS",
+            "ENV_MAX_CELL_ARCS",
+            "Cancelled",
+            "WindowGrid",
+            "check_grid_size",
+            "compute_window",
+            "grid_axes",
+            "max_cell_arcs",
+        ],
+        "cell": ["Arc", "select_arc", "solve_cell"],
+        "provenance": ["case_hash", "ephemeris_label", "provenance", "window_cache_key"],
+        "refine": ["METHODS", "RefinedArc", "refine_best"],
+        "launch_period": ["STRATEGIES", "LaunchPeriod", "PeriodDay", "launch_period"],
+    },
+)

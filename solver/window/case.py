@@ -1,0 +1,509 @@
+"""Case files: one scenario in TOML (bodies, date windows, orbits, limits), validated.
+
+A case can be written by hand::
+
+    [case]
+    title = "Vesper orbiter, 2031 opportunity"
+    central_body = "sun"
+    departure_body = "earth"
+    target_body = "venus"
+
+    [window]
+    departure_start = "2031-01-01"
+    departure_end = "2031-06-30"
+    departure_step_days = 1
+    arrival_start = "2031-05-01"
+    arrival_end = "2031-12-31"
+    arrival_step_days = 1
+
+    [transfer]
+    max_revolutions = 0
+    direction = "prograde"      # angular momentum along the ecliptic pole (Sun-centred) or
+                                # along the central planet's north pole
+
+    [departure_orbit]           # optional: circular parking orbit about the departure body
+    altitude_km = 200
+
+    [arrival_orbit]             # optional
+    mode = "capture"            # "capture", "flyby" or "rendezvous"
+    periapsis_altitude_km = 300
+    apoapsis_altitude_km = 35000
+    entry_altitude_km = 125     # optional: speed at the entry interface
+
+    [limits]                    # optional
+    c3_max_km2_s2 = 20
+    vinf_arrival_max_km_s = 4.5
+    dla_max_deg = 28.5
+    tof_min_days = 80
+    tof_max_days = 250
+
+    [[bodies]]                  # optional, any number: bodies defined by orbital elements
+    name = "Tallis"
+    central_body = "sun"
+    epoch_utc = "2030-01-01"
+    semi_major_axis_au = 2.1
+    eccentricity = 0.12
+    inclination_deg = 4.0
+    raan_deg = 80.0
+    arg_periapsis_deg = 150.0
+    mean_anomaly_deg = 10.0
+
+Every problem raises :class:`solver.errors.InputError` naming the key (``"window.departure_end"``),
+the value and what is accepted. Unknown keys are refused too, so a misspelt limit is not silently
+ignored.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+from typing import Any
+
+from solver.ephemeris.bodies import Body, BodyRegistry, default_registry, has_mass
+from solver.ephemeris.element_bodies import ElementBody
+from solver.ephemeris.element_input import ELEMENT_FIELDS, element_body
+from solver.ephemeris.timescales import jd_tdb_to_utc, utc_to_jd_tdb
+from solver.errors import InputError
+from solver.window.settings import SECTIONS, SETTING, read_setting
+
+ARRIVAL_MODES = SETTING["arrival_orbit.mode"].choices
+
+_SECTIONS = SECTIONS
+
+
+@dataclass(frozen=True)
+class Limits:
+    """The analyst's bounds; ``None`` means no bound."""
+
+    c3_max_km2_s2: float | None = None
+    vinf_arrival_max_km_s: float | None = None
+    dla_max_deg: float | None = None
+    tof_min_days: float | None = None
+    tof_max_days: float | None = None
+
+
+@dataclass(frozen=True)
+class Case:
+    """A validated case. Dates are kept as the ISO strings given and as JD TDB."""
+
+    title: str
+    central_body: str
+    departure_body: str
+    target_body: str
+    departure_start: str
+    departure_end: str
+    departure_step_days: float
+    arrival_start: str
+    arrival_end: str
+    arrival_step_days: float
+    max_revolutions: int = 0
+    direction: str = "prograde"
+    parking_altitude_km: float | None = None
+    arrival_mode: str = "flyby"
+    capture_periapsis_altitude_km: float | None = None
+    capture_apoapsis_altitude_km: float | None = None
+    entry_altitude_km: float | None = None
+    limits: Limits = field(default_factory=Limits)
+    ephemeris_source: str = "de423"
+    description: str = ""
+    bodies: tuple[ElementBody, ...] = ()
+    departure_start_jd_tdb: float = math.nan
+    departure_end_jd_tdb: float = math.nan
+    arrival_start_jd_tdb: float = math.nan
+    arrival_end_jd_tdb: float = math.nan
+    source_path: str = ""
+
+    @property
+    def retrograde(self) -> bool:
+        return self.direction == "retrograde"
+
+    def registry(self) -> BodyRegistry:
+        """The built-in bodies plus this case's own element bodies."""
+        return default_registry().with_bodies(*self.bodies) if self.bodies else default_registry()
+
+    def normalized(self) -> dict[str, Any]:
+        """Everything that determines the computed grid, in canonical form (for the cache key).
+
+        The title, description and file path do not change the numbers and are left out; dates
+        enter as JD TDB so ``"2031-01-01"`` and ``"2031-01-01T00:00:00Z"`` are the same case.
+        """
+        data = asdict(self)
+        for key in (
+            "title",
+            "description",
+            "source_path",
+            "departure_start",
+            "departure_end",
+            "arrival_start",
+            "arrival_end",
+        ):
+            data.pop(key)
+        data["bodies"] = [asdict(b) for b in self.bodies]
+        return data
+
+    def with_changes(self, **changes: Any) -> Case:
+        """A copy with some fields replaced, re-validated (used by the dashboard controls)."""
+        raw = to_toml_dict(self)
+        for dotted, value in changes.items():
+            section, key = dotted.split(".", 1)
+            if value is None:
+                raw.get(section, {}).pop(key, None)
+            else:
+                raw.setdefault(section, {})[key] = value
+        return case_from_dict(raw, source_path=self.source_path)
+
+
+# ---------------------------------------------------------------------------------------------
+# Parsing
+
+
+def load_case(path: str | Path) -> Case:
+    """Read and validate a TOML case file."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise InputError("case", str(path), "an existing TOML case file") from None
+    except UnicodeDecodeError:
+        raise InputError("case", str(path), "a UTF-8 text file") from None
+    return parse_case(text, source_path=str(path))
+
+
+def parse_case(text: str, source_path: str = "") -> Case:
+    """Validate TOML text as a case."""
+    try:
+        raw = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError("case file", _short(str(exc)), "valid TOML (see sample_cases/)") from None
+    return case_from_dict(raw, source_path=source_path)
+
+
+def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
+    """Validate a parsed TOML document as a case."""
+    if not isinstance(raw, dict):
+        raise InputError("case file", type(raw).__name__, "a TOML table")
+    for key, value in raw.items():
+        if key == "bodies":
+            if not isinstance(value, list):
+                raise InputError("bodies", value, "an array of tables ([[bodies]])")
+            continue
+        if key not in _SECTIONS:
+            raise InputError(
+                key, "(section)", "one of " + ", ".join(sorted([*_SECTIONS, "bodies"]))
+            )
+        if not isinstance(value, dict):
+            raise InputError(key, value, f"a [{key}] table")
+        unknown = set(value) - _SECTIONS[key]
+        if unknown:
+            name = sorted(unknown)[0]
+            raise InputError(
+                f"{key}.{name}",
+                value[name],
+                f"a known key of [{key}]: " + ", ".join(sorted(_SECTIONS[key])),
+            )
+
+    case = raw.get("case")
+    if case is None:
+        raise InputError("case", "(missing)", "a [case] table with title and bodies")
+    window = raw.get("window")
+    if window is None:
+        raise InputError("window", "(missing)", "a [window] table with the date windows")
+    arr_orbit = raw.get("arrival_orbit", {})
+
+    def setting(key: str) -> Any:
+        return read_setting(raw, key)
+
+    title = setting("case.title")
+    bodies = _element_bodies(raw.get("bodies", []))
+    registry = default_registry().with_bodies(*bodies) if bodies else default_registry()
+    central = _body(registry, "case.central_body", setting("case.central_body"))
+    departure = _body(registry, "case.departure_body", setting("case.departure_body"))
+    target = _body(registry, "case.target_body", setting("case.target_body"))
+    if departure.key == target.key:
+        raise InputError(
+            "case.target_body", case["target_body"], "a body other than the departure body"
+        )
+    for role, body in (("departure_body", departure), ("target_body", target)):
+        if body.key == central.key:
+            raise InputError(f"case.{role}", case[role], f"a body orbiting {central.name}")
+
+    source = setting("ephemeris.source")
+    dates = {}
+    for key in ("departure_start", "departure_end", "arrival_start", "arrival_end"):
+        text = setting(f"window.{key}")
+        dates[key] = (text, float(utc_to_jd_tdb(text, field=f"window.{key}")))
+    steps = {key: setting(f"window.{key}") for key in ("departure_step_days", "arrival_step_days")}
+    _check_dates_in_range(registry, (central, departure, target), source, dates)
+    if dates["departure_end"][1] < dates["departure_start"][1]:
+        raise InputError(
+            "window.departure_end",
+            dates["departure_end"][0],
+            f"on or after window.departure_start ({dates['departure_start'][0]})",
+        )
+    if dates["arrival_end"][1] < dates["arrival_start"][1]:
+        raise InputError(
+            "window.arrival_end",
+            dates["arrival_end"][0],
+            f"on or after window.arrival_start ({dates['arrival_start'][0]})",
+        )
+    if dates["arrival_end"][1] <= dates["departure_start"][1]:
+        raise InputError(
+            "window.arrival_end",
+            dates["arrival_end"][0],
+            f"after window.departure_start ({dates['departure_start'][0]}): "
+            "every arrival would come before every departure",
+        )
+
+    max_revs = setting("transfer.max_revolutions")
+    direction = setting("transfer.direction")
+
+    parking = setting("departure_orbit.altitude_km")
+    if parking is not None and not has_mass(departure):
+        raise InputError(
+            "departure_orbit.altitude_km",
+            parking,
+            f"no parking orbit: {departure.name} has no GM and radius "
+            "(leave [departure_orbit] out to depart from its orbit directly)",
+        )
+
+    mode = setting("arrival_orbit.mode")
+    if mode is None:
+        if has_mass(target):
+            mode = "capture" if "periapsis_altitude_km" in arr_orbit else "flyby"
+        else:
+            mode = "rendezvous"
+    periapsis = setting("arrival_orbit.periapsis_altitude_km")
+    apoapsis = setting("arrival_orbit.apoapsis_altitude_km")
+    entry = setting("arrival_orbit.entry_altitude_km")
+    if mode == "capture":
+        if not has_mass(target):
+            raise InputError(
+                "arrival_orbit.mode",
+                mode,
+                f"'rendezvous' or 'flyby' ({target.name} has no GM and radius)",
+            )
+        if periapsis is None:
+            raise InputError(
+                "arrival_orbit.periapsis_altitude_km",
+                "(missing)",
+                "a capture periapsis altitude, km",
+            )
+        if apoapsis is None:
+            apoapsis = periapsis  # circular capture orbit
+        if apoapsis < periapsis:
+            raise InputError(
+                "arrival_orbit.apoapsis_altitude_km",
+                apoapsis,
+                f">= arrival_orbit.periapsis_altitude_km ({periapsis:g} km)",
+            )
+    if entry is not None and not has_mass(target):
+        raise InputError(
+            "arrival_orbit.entry_altitude_km",
+            entry,
+            f"no entry speed: {target.name} has no GM and radius",
+        )
+
+    limits = Limits(**{name: setting(f"limits.{name}") for name in SECTIONS["limits"]})
+    if (
+        limits.tof_min_days is not None
+        and limits.tof_max_days is not None
+        and limits.tof_max_days < limits.tof_min_days
+    ):
+        raise InputError(
+            "limits.tof_max_days",
+            limits.tof_max_days,
+            f">= limits.tof_min_days ({limits.tof_min_days:g})",
+        )
+
+    return Case(
+        title=title,
+        central_body=central.name,
+        departure_body=departure.name,
+        target_body=target.name,
+        departure_start=dates["departure_start"][0],
+        departure_end=dates["departure_end"][0],
+        departure_step_days=steps["departure_step_days"],
+        arrival_start=dates["arrival_start"][0],
+        arrival_end=dates["arrival_end"][0],
+        arrival_step_days=steps["arrival_step_days"],
+        max_revolutions=int(max_revs),
+        direction=direction,
+        parking_altitude_km=parking,
+        arrival_mode=mode,
+        capture_periapsis_altitude_km=periapsis,
+        capture_apoapsis_altitude_km=apoapsis,
+        entry_altitude_km=entry,
+        limits=limits,
+        ephemeris_source=source,
+        description=setting("case.description"),
+        bodies=tuple(bodies),
+        departure_start_jd_tdb=dates["departure_start"][1],
+        departure_end_jd_tdb=dates["departure_end"][1],
+        arrival_start_jd_tdb=dates["arrival_start"][1],
+        arrival_end_jd_tdb=dates["arrival_end"][1],
+        source_path=source_path,
+    )
+
+
+def to_toml_dict(case: Case) -> dict[str, Any]:
+    """The case as a TOML-shaped dict (round-trips through :func:`case_from_dict`)."""
+    raw: dict[str, Any] = {
+        "case": {
+            "title": case.title,
+            "central_body": case.central_body,
+            "departure_body": case.departure_body,
+            "target_body": case.target_body,
+        },
+        "window": {
+            "departure_start": case.departure_start,
+            "departure_end": case.departure_end,
+            "departure_step_days": case.departure_step_days,
+            "arrival_start": case.arrival_start,
+            "arrival_end": case.arrival_end,
+            "arrival_step_days": case.arrival_step_days,
+        },
+        "transfer": {"max_revolutions": case.max_revolutions, "direction": case.direction},
+        "arrival_orbit": {"mode": case.arrival_mode},
+        "ephemeris": {"source": case.ephemeris_source},
+    }
+    if case.description:
+        raw["case"]["description"] = case.description
+    if case.parking_altitude_km is not None:
+        raw["departure_orbit"] = {"altitude_km": case.parking_altitude_km}
+    for key, value in (
+        ("periapsis_altitude_km", case.capture_periapsis_altitude_km),
+        ("apoapsis_altitude_km", case.capture_apoapsis_altitude_km),
+        ("entry_altitude_km", case.entry_altitude_km),
+    ):
+        if value is not None:
+            raw["arrival_orbit"][key] = value
+    limits = {k: v for k, v in asdict(case.limits).items() if v is not None}
+    if limits:
+        raw["limits"] = limits
+    if case.bodies:
+        raw["bodies"] = [element_body_dict(b) for b in case.bodies]
+    return raw
+
+
+def dumps_toml(case: Case) -> str:
+    """The case as TOML text (for downloads and for saving an edited case)."""
+    lines: list[str] = []
+    raw = to_toml_dict(case)
+    for section, table in raw.items():
+        if section == "bodies":
+            continue
+        lines.append(f"[{section}]")
+        lines.extend(f"{k} = {_toml_value(v)}" for k, v in table.items())
+        lines.append("")
+    for body in raw.get("bodies", []):
+        lines.append("[[bodies]]")
+        lines.extend(f"{k} = {_toml_value(v)}" for k, v in body.items())
+        lines.append("")
+    return "\n".join(lines)
+
+
+# ---------------------------------------------------------------------------------------------
+# Helpers
+
+
+def _short(text: str) -> str:
+    return text if len(text) < 120 else text[:117] + "..."
+
+
+def _body(registry: BodyRegistry, key: str, name: str) -> Body:
+    return registry.get(name, field=key)
+
+
+def _element_bodies(entries: list) -> list[ElementBody]:
+    bodies: list[ElementBody] = []
+    registry = default_registry()
+    for index, entry in enumerate(entries, start=1):
+        prefix = f"bodies[{index}]."
+        if not isinstance(entry, dict):
+            raise InputError(f"bodies[{index}]", entry, "a [[bodies]] table")
+        unknown = set(entry) - ELEMENT_FIELDS
+        if unknown:
+            key = sorted(unknown)[0]
+            raise InputError(
+                prefix + key,
+                entry[key],
+                "a known element key: " + ", ".join(sorted(ELEMENT_FIELDS)),
+            )
+        if "name" not in entry:
+            raise InputError(prefix + "name", "(missing)", "a body name")
+        kwargs = {k: v for k, v in entry.items() if k != "name"}
+        for key in ("eccentricity", "inclination_deg", "raan_deg", "arg_periapsis_deg"):
+            if key not in kwargs:
+                raise InputError(prefix + key, "(missing)", "a number")
+        epoch = kwargs.get("epoch_utc")
+        if epoch is not None and hasattr(epoch, "isoformat"):
+            kwargs["epoch_utc"] = epoch.isoformat()
+        body = element_body(entry["name"], registry=registry, field_prefix=prefix, **kwargs)
+        registry = registry.with_bodies(body)  # later bodies may orbit earlier ones
+        bodies.append(body)
+    return bodies
+
+
+def element_body_dict(body: ElementBody) -> dict[str, Any]:
+    """An element body as a ``[[bodies]]`` table (canonical units; round-trips exactly).
+
+    Used to put an :class:`ElementBody` into a case dict for :func:`case_from_dict`.
+    """
+    out: dict[str, Any] = {
+        "name": body.name,
+        "central_body": body.central_body,
+        "epoch_jd_tdb": body.epoch_jd_tdb,
+        "semi_major_axis_km": body.semi_major_axis_km,
+        "eccentricity": body.eccentricity,
+        "inclination_deg": body.inclination_deg,
+        "raan_deg": body.raan_deg,
+        "arg_periapsis_deg": body.arg_periapsis_deg,
+        "mean_anomaly_deg": body.mean_anomaly_deg,
+        "frame": body.frame,
+    }
+    if math.isfinite(body.gm_km3_s2):
+        out["gm_km3_s2"] = body.gm_km3_s2
+    if math.isfinite(body.radius_km):
+        out["radius_km"] = body.radius_km
+    return out
+
+
+def _toml_value(value: Any) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (int, float)):
+        return repr(value)
+    escaped = str(value).replace("\\", "\\\\").replace('"', '\\"')
+    return f'"{escaped}"'
+
+
+def _check_dates_in_range(registry, bodies, source: str, dates) -> None:
+    """Dates outside the ephemeris are refused up front, naming the date and the range."""
+    for body in bodies:
+        chosen = body.source_range(source) or body.source_range(body.default_source)
+        if chosen is None or body.elements is not None:
+            continue
+        for key, (text, jd) in dates.items():
+            if not chosen.jd_tdb_min <= jd <= chosen.jd_tdb_max:
+                first = jd_tdb_to_utc(chosen.jd_tdb_min, digits=0)
+                last = jd_tdb_to_utc(chosen.jd_tdb_max, digits=0)
+                raise InputError(
+                    f"window.{key}",
+                    text,
+                    f"a date within the {chosen.source} range for {body.name}: {first} to {last}",
+                )
+
+
+__all__ = [
+    "ARRIVAL_MODES",
+    "Case",
+    "Limits",
+    "case_from_dict",
+    "dumps_toml",
+    "element_body_dict",
+    "load_case",
+    "parse_case",
+    "to_toml_dict",
+]

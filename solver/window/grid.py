@@ -1,0 +1,343 @@
+"""The window grid: every departure x arrival date pair of a case, solved and scored."""
+
+from __future__ import annotations
+
+import math
+import os
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from solver.errors import InputError
+from solver.mechanics.families import family_from_x
+from solver.mechanics.lambert import slot_layout, solve_lambert
+from solver.reasons import Reason
+from solver.time_units import SECONDS_PER_DAY
+from solver.window.case import Case
+from solver.window.case_bodies import CaseBodies, body_states, transfer_angle_deg
+from solver.window.limits import within_limits
+from solver.window.metrics import METRICS, arc_metrics, ranking_values
+from solver.window.provenance import provenance, window_cache_key
+
+# One cell-arc holds about 16 float64 results plus temporaries of the solve (~400 bytes in all);
+# 20 million cell-arcs stay within about a third of a 24 GiB machine's memory.
+DEFAULT_MAX_CELL_ARCS = 20_000_000
+ENV_MAX_CELL_ARCS = "ARCWINDOW_MAX_CELL_ARCS"
+# Departure rows solved per chunk: small enough for smooth progress, large for vector speed.
+_ROWS_PER_CHUNK_TARGET_ARCS = 250_000
+_ARC_FLOAT_COLUMNS = tuple(m for m in METRICS if m != "tof_days")
+
+
+class Cancelled(Exception):
+    """Raised by a progress callback to stop a grid computation."""
+
+
+@dataclass
+class WindowGrid:
+    """A solved window: per-cell and per-arc arrays plus the axes and provenance.
+
+    Shapes: ``n_dep`` departure dates, ``n_arr`` arrival dates, ``S = 2*max_revolutions + 1``
+    arc slots (slot 0 single revolution; slots 2N-1, 2N the N-revolution low and high branch).
+
+    Attributes
+    ----------
+    departure_jd_tdb : (n_dep,)   arrival_jd_tdb : (n_arr,)
+    departure_r_km, departure_v_km_s : (n_dep, 3)  departure body about the central body, ICRF
+    arrival_r_km, arrival_v_km_s : (n_arr, 3)      target body about the central body, ICRF
+    tof_days, transfer_angle_deg : (n_dep, n_arr)
+    revolutions, branch : (S,)
+    arcs : dict of (n_dep, n_arr, S) float64 arrays, one per ``METRICS`` column but tof_days
+    family, reason : (n_dep, n_arr, S) int8
+    within : (n_dep, n_arr, S) bool, arcs within limits
+    provenance : dict  ephemeris, constants, engine version, case hash, frame, caution
+    """
+
+    case: Case
+    departure_jd_tdb: NDArray[np.float64]
+    arrival_jd_tdb: NDArray[np.float64]
+    departure_r_km: NDArray[np.float64]
+    departure_v_km_s: NDArray[np.float64]
+    arrival_r_km: NDArray[np.float64]
+    arrival_v_km_s: NDArray[np.float64]
+    tof_days: NDArray[np.float64]
+    transfer_angle_deg: NDArray[np.float64]
+    revolutions: NDArray[np.int64]
+    branch: NDArray[np.int8]
+    arcs: dict[str, NDArray[np.float64]]
+    family: NDArray[np.int8]
+    reason: NDArray[np.int8]
+    within: NDArray[np.bool_]
+    provenance: dict[str, Any] = field(default_factory=dict)
+    from_cache: bool = False
+
+    @property
+    def shape(self) -> tuple[int, int, int]:
+        return self.reason.shape
+
+    @property
+    def converged(self) -> NDArray[np.bool_]:
+        return self.reason == Reason.OK
+
+    @property
+    def transfer_type(self) -> NDArray[np.int8]:
+        """1 for Type I (transfer angle below 180 degrees), 2 for Type II."""
+        return np.where(self.transfer_angle_deg < 180.0, 1, 2).astype(np.int8)
+
+    def metric(self, name: str) -> NDArray[np.float64]:
+        """(n_dep, n_arr, S) values of a metric (TOF broadcast over the arc slots)."""
+        if name == "tof_days":
+            return np.broadcast_to(self.tof_days[..., None], self.shape)
+        if name not in self.arcs:
+            raise InputError("metric", name, "one of " + ", ".join(METRICS))
+        return self.arcs[name]
+
+    def best_slot(self, metric: str = "c3_km2_s2") -> NDArray[np.int64]:
+        """Per cell, the slot of the best arc by ``metric``: within limits first, -1 if none."""
+        values = ranking_values(self.metric(metric), metric)
+        score = np.where(self.converged, values, np.inf)
+        score_within = np.where(self.within, score, np.inf)
+        any_within = self.within.any(axis=-1)
+        slot = np.where(any_within, np.argmin(score_within, axis=-1), np.argmin(score, axis=-1))
+        return np.where(self.converged.any(axis=-1), slot, -1)
+
+    def best_values(self, metric: str = "c3_km2_s2", by: str | None = None) -> NDArray[np.float64]:
+        """(n_dep, n_arr) values of ``metric`` on each cell's best arc ranked ``by`` a metric."""
+        slot = self.best_slot(by or metric)
+        values = np.take_along_axis(self.metric(metric), np.maximum(slot, 0)[..., None], -1)[..., 0]
+        return np.where(slot >= 0, values, np.nan)
+
+    def cell_within(self) -> NDArray[np.bool_]:
+        """(n_dep, n_arr) cells with at least one arc within limits."""
+        return np.asarray(self.within.any(axis=-1))
+
+    def cell_reason(self) -> NDArray[np.int8]:
+        """(n_dep, n_arr) reason a cell has no arc (OK where it has one)."""
+        has = self.converged.any(axis=-1)
+        return np.where(has, np.int8(Reason.OK), self.reason[..., 0]).astype(np.int8)
+
+    def best_cell(
+        self,
+        metric: str = "c3_km2_s2",
+        *,
+        slots: list[int] | None = None,
+        mask: NDArray[np.bool_] | None = None,
+    ) -> tuple[int, int, int] | None:
+        """``(i_dep, j_arr, slot)`` of the best arc of the whole grid, or None if none qualifies.
+
+        The one rule for "the best arc": the lowest ``metric`` (by magnitude where the metric
+        ranks so, as DLA) among the arcs within limits (or those of ``mask``), optionally among
+        some arc ``slots`` only (one revolution count and branch).
+        """
+        qualifies = self.within if mask is None else mask
+        if slots is not None:
+            keep = np.zeros(qualifies.shape[-1], dtype=bool)
+            keep[slots] = True
+            qualifies = qualifies & keep
+        score = np.where(qualifies, ranking_values(self.metric(metric), metric), np.inf)
+        if not np.isfinite(score).any():
+            return None
+        i, j, k = np.unravel_index(int(np.argmin(score)), score.shape)
+        return int(i), int(j), int(k)
+
+    # -- cache round trip ----------------------------------------------------------------------
+    def to_arrays(self) -> dict[str, NDArray]:
+        arrays: dict[str, NDArray] = {
+            "departure_jd_tdb": self.departure_jd_tdb,
+            "arrival_jd_tdb": self.arrival_jd_tdb,
+            "departure_r_km": self.departure_r_km,
+            "departure_v_km_s": self.departure_v_km_s,
+            "arrival_r_km": self.arrival_r_km,
+            "arrival_v_km_s": self.arrival_v_km_s,
+            "tof_days": self.tof_days,
+            "transfer_angle_deg": self.transfer_angle_deg,
+            "revolutions": self.revolutions,
+            "branch": self.branch,
+            "family": self.family,
+            "reason": self.reason,
+            "within": self.within,
+        }
+        arrays.update({f"arc.{k}": v for k, v in self.arcs.items()})
+        return arrays
+
+    @classmethod
+    def from_arrays(cls, case: Case, arrays: dict[str, NDArray], provenance: dict) -> WindowGrid:
+        arcs = {k[4:]: v for k, v in arrays.items() if k.startswith("arc.")}
+        plain = {k: v for k, v in arrays.items() if not k.startswith("arc.")}
+        return cls(case=case, arcs=arcs, provenance=dict(provenance), from_cache=True, **plain)
+
+
+def grid_axes(case: Case) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Departure and arrival epochs (JD TDB): start, start + step, ... up to the end date."""
+
+    def axis(start, end, step):
+        n = math.floor((end - start) / step + 1e-9) + 1
+        return start + step * np.arange(n)
+
+    return (
+        axis(case.departure_start_jd_tdb, case.departure_end_jd_tdb, case.departure_step_days),
+        axis(case.arrival_start_jd_tdb, case.arrival_end_jd_tdb, case.arrival_step_days),
+    )
+
+
+def max_cell_arcs(value: int | None = None) -> int:
+    """The cell-arc cap: argument, else ``ARCWINDOW_MAX_CELL_ARCS``, else the default."""
+    if value is not None:
+        return int(value)
+    env = os.environ.get(ENV_MAX_CELL_ARCS)
+    if env:
+        try:
+            return int(float(env))
+        except ValueError:
+            raise InputError(ENV_MAX_CELL_ARCS, env, "a positive integer") from None
+    return DEFAULT_MAX_CELL_ARCS
+
+
+def check_grid_size(case: Case, cap: int | None = None) -> tuple[int, int, int]:
+    """(n_dep, n_arr, slots) of the case's grid; InputError if it exceeds the cap."""
+    dep, arr = grid_axes(case)
+    slots = 2 * case.max_revolutions + 1
+    total = len(dep) * len(arr) * slots
+    limit = max_cell_arcs(cap)
+    if total > limit:
+        raise InputError(
+            "window",
+            f"{len(dep)} departure x {len(arr)} arrival dates x {slots} arcs = {total:,}",
+            f"at most {limit:,} cell-arcs (raise the step days, narrow the dates, lower "
+            f"max_revolutions, or set {ENV_MAX_CELL_ARCS})",
+        )
+    return len(dep), len(arr), slots
+
+
+def compute_window(
+    case: Case,
+    *,
+    cache: Any = None,
+    progress: Callable[[int, int], None] | None = None,
+    max_cells: int | None = None,
+) -> WindowGrid:
+    """Solve and score every cell of a case's window.
+
+    Parameters
+    ----------
+    case : Case
+        The validated case.
+    cache : solver.files.cache.GridCache, optional
+        Look the grid up here first; store it after computing.
+    progress : callable(done_rows, total_rows), optional
+        Called after each chunk of departure dates; raise :class:`Cancelled` in it to stop.
+    max_cells : int, optional
+        Cell-arc cap (see :func:`max_cell_arcs`).
+
+    Returns
+    -------
+    WindowGrid
+
+    Raises
+    ------
+    InputError
+        Grid over the cap; dates outside the ephemeris (caught when the case is parsed).
+    """
+    n_dep, n_arr, slots = check_grid_size(case, max_cells)
+    key = None
+    if cache is not None:
+        key = window_cache_key(case)
+        hit = cache.get(key)
+        if hit is not None:
+            if progress is not None:
+                progress(n_dep, n_dep)
+            return WindowGrid.from_arrays(case, hit.arrays, hit.metadata)
+
+    bodies = CaseBodies.of(case)
+    dep_jd, arr_jd = grid_axes(case)
+    r_dep, v_dep = body_states(case, bodies, bodies.departure, dep_jd, "window.departure dates")
+    r_arr, v_arr = body_states(case, bodies, bodies.target, arr_jd, "window.arrival dates")
+
+    tof_days = arr_jd[None, :] - dep_jd[:, None]
+    angle = transfer_angle_deg(
+        r_dep[:, None, :], r_arr[None, :, :], bodies.pole_icrf, case.retrograde
+    )
+    revolutions, branch = slot_layout(case.max_revolutions)
+    arcs = {name: np.empty((n_dep, n_arr, slots)) for name in _ARC_FLOAT_COLUMNS}
+    family = np.empty((n_dep, n_arr, slots), dtype=np.int8)
+    reason = np.empty((n_dep, n_arr, slots), dtype=np.int8)
+    within = np.empty((n_dep, n_arr, slots), dtype=bool)
+
+    rows = max(1, _ROWS_PER_CHUNK_TARGET_ARCS // max(1, n_arr * slots))
+    for start in range(0, n_dep, rows):
+        sl = slice(start, min(n_dep, start + rows))
+        tof_s = tof_days[sl] * SECONDS_PER_DAY
+        sol = solve_lambert(
+            r_dep[sl, None, :],
+            r_arr[None, :, :],
+            tof_s,
+            bodies.mu_central_km3_s2,
+            max_revs=case.max_revolutions,
+            retrograde=case.retrograde,
+            pole=bodies.pole_icrf,
+        )
+        metrics = arc_metrics(
+            case,
+            bodies,
+            r_dep[sl, None, None, :],
+            sol.v1_km_s,
+            sol.v2_km_s,
+            v_dep[sl, None, None, :],
+            v_arr[None, :, None, :],
+        )
+        for name, values in metrics.items():
+            arcs[name][sl] = values
+        chunk_reason = np.where(
+            (tof_s <= 0)[..., None] & (sol.reason == Reason.NONPOSITIVE_TOF),
+            np.int8(Reason.ARRIVAL_NOT_AFTER_DEPARTURE),
+            sol.reason,
+        )
+        reason[sl] = chunk_reason
+        family[sl] = family_from_x(sol.x, (angle[sl] > 180.0)[..., None])
+        within[sl] = within_limits(
+            case, bodies, metrics, tof_days[sl][..., None], chunk_reason == Reason.OK
+        )
+        if progress is not None:
+            progress(sl.stop, n_dep)
+
+    grid = WindowGrid(
+        case=case,
+        departure_jd_tdb=dep_jd,
+        arrival_jd_tdb=arr_jd,
+        departure_r_km=r_dep,
+        departure_v_km_s=v_dep,
+        arrival_r_km=r_arr,
+        arrival_v_km_s=v_arr,
+        tof_days=tof_days,
+        transfer_angle_deg=angle,
+        revolutions=revolutions,
+        branch=branch,
+        arcs=arcs,
+        family=family,
+        reason=reason,
+        within=within,
+        provenance=provenance(case),
+    )
+    if cache is not None and key is not None:
+        try:
+            cache.put(key, grid.to_arrays(), grid.provenance)
+        except OSError:
+            pass  # a full or read-only cache folder must not cost the user the grid
+    return grid
+
+
+# ---------------------------------------------------------------------------------------------
+
+
+__all__ = [
+    "DEFAULT_MAX_CELL_ARCS",
+    "ENV_MAX_CELL_ARCS",
+    "Cancelled",
+    "WindowGrid",
+    "check_grid_size",
+    "compute_window",
+    "grid_axes",
+    "max_cell_arcs",
+]

@@ -1,0 +1,214 @@
+"""Launch periods: the run of consecutive departure days one mission must cover.
+
+A mission cannot count on leaving on its single best day; it must be able to leave on any of L
+consecutive days. The launch vehicle then has to deliver the largest C3 of those days. This
+module places the period (its first day) and, for a fixed arrival date, that date, so that the
+largest C3 over the period is as small as possible:
+
+* ``"fixed-arrival"``: every day of the period aims at one arrival date (a single arrival, as
+  for an orbit insertion planned around one approach geometry); the arrival date is chosen on
+  the grid, then refined continuously.
+* ``"free-arrival"``: each day flies its own best arrival date.
+
+Each day's arc must meet the case's other limits (TOF, arrival v∞, clearing the central body);
+the C3 and DLA the period needs are reported and compared with the C3 and DLA limits.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.lib.stride_tricks import sliding_window_view
+from scipy.optimize import minimize_scalar
+
+from solver.errors import InputError
+from solver.time_units import MINUTE_DAYS, round_to_minute_from
+from solver.window.case import Case
+from solver.window.case_bodies import CaseBodies
+from solver.window.cell import Arc, solve_cell
+from solver.window.grid import compute_window
+
+STRATEGIES = ("fixed-arrival", "free-arrival")
+
+
+@dataclass(frozen=True)
+class PeriodDay:
+    """One departure day of a launch period and the arc it flies."""
+
+    departure_jd_tdb: float
+    arrival_jd_tdb: float
+    c3_km2_s2: float
+    dla_deg: float
+    rla_deg: float
+    vinf_arrival_km_s: float
+    tof_days: float
+    revolutions: int
+    branch: str
+
+
+@dataclass(frozen=True)
+class LaunchPeriod:
+    """The best placement of a launch period of ``length_days`` consecutive days."""
+
+    length_days: int
+    strategy: str
+    open_jd_tdb: float
+    close_jd_tdb: float
+    arrival_jd_tdb: float | None  # the common arrival date for "fixed-arrival"
+    max_c3_km2_s2: float
+    max_abs_dla_deg: float
+    meets_c3_limit: bool | None
+    meets_dla_limit: bool | None
+    days: tuple[PeriodDay, ...]
+
+
+def _feasibility_case(case: Case) -> Case:
+    """The case with daily departures and without the C3 and DLA limits (they are outputs)."""
+    return case.with_changes(
+        **{
+            "window.departure_step_days": 1.0,
+            "limits.c3_max_km2_s2": None,
+            "limits.dla_max_deg": None,
+        }
+    )
+
+
+def _best_arc(arcs: list[Arc]) -> Arc | None:
+    """The feasible arc of lowest C3 among a cell's arcs, or None."""
+    feasible = [a for a in arcs if a.ok and a.within]
+    return min(feasible, key=lambda a: a.metrics["c3_km2_s2"]) if feasible else None
+
+
+def _best_arrival(c3_of_arrival, grid_arrival_jd: float, step_days: float) -> float:
+    """The arrival date, to the minute, within a grid step of ``grid_arrival_jd`` that minimizes
+    ``c3_of_arrival``; the grid date itself if the continuous search does not beat it."""
+    result = minimize_scalar(
+        c3_of_arrival,
+        bounds=(grid_arrival_jd - step_days, grid_arrival_jd + step_days),
+        method="bounded",
+        options={"xatol": MINUTE_DAYS},
+    )
+    arrival = round_to_minute_from(grid_arrival_jd, float(result.x))
+    return (
+        arrival if c3_of_arrival(arrival) <= c3_of_arrival(grid_arrival_jd) else (grid_arrival_jd)
+    )
+
+
+def _day(arc: Arc) -> PeriodDay:
+    m = arc.metrics
+    return PeriodDay(
+        arc.departure_jd_tdb,
+        arc.arrival_jd_tdb,
+        m["c3_km2_s2"],
+        m["dla_deg"],
+        m["rla_deg"],
+        m["vinf_arrival_km_s"],
+        arc.tof_days,
+        arc.revolutions,
+        arc.branch,
+    )
+
+
+def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival") -> LaunchPeriod:
+    """Place a launch period of ``length_days`` days to minimize its largest C3.
+
+    Parameters
+    ----------
+    case : Case
+        The case; its departure window is scanned day by day, its arrival window on its own
+        step.
+    length_days : int
+        Consecutive departure days the mission must cover (1 to the window's length).
+    strategy : {"fixed-arrival", "free-arrival"}
+        One arrival date for the whole period, or each day's own best arrival.
+
+    Raises
+    ------
+    InputError
+        Bad length or strategy, or no placement where every day has a feasible arc.
+    """
+    if strategy not in STRATEGIES:
+        raise InputError("strategy", strategy, "'fixed-arrival' or 'free-arrival'")
+    feasible_case = _feasibility_case(case)
+    grid = compute_window(feasible_case)
+    n_days = len(grid.departure_jd_tdb)
+    if (
+        isinstance(length_days, bool)
+        or int(length_days) != length_days
+        or not (1 <= length_days <= n_days)
+    ):
+        raise InputError(
+            "--days",
+            length_days,
+            f"a whole number of days from 1 to {n_days} (the departure window)",
+        )
+    length_days = int(length_days)
+    bodies = CaseBodies.of(feasible_case)
+    c3 = np.where(grid.cell_within(), grid.best_values("c3_km2_s2"), np.inf)
+
+    if strategy == "fixed-arrival":
+        worst = sliding_window_view(c3, length_days, axis=0).max(axis=-1)  # (starts, n_arr)
+        if not np.isfinite(worst).any():
+            raise InputError(
+                "--days",
+                length_days,
+                "a period length for which one arrival date serves every day "
+                "within the case's TOF and arrival limits",
+            )
+        start, j = (int(k) for k in np.unravel_index(int(np.argmin(worst)), worst.shape))
+        dep = grid.departure_jd_tdb[start : start + length_days]
+        arr0 = float(grid.arrival_jd_tdb[j])
+
+        def period_max(arrival: float) -> float:
+            arcs = [_best_arc(solve_cell(feasible_case, d, arrival, bodies)) for d in dep]
+            return max((a.metrics["c3_km2_s2"] if a else math.inf) for a in arcs)
+
+        arrival = _best_arrival(period_max, arr0, feasible_case.arrival_step_days)
+        arcs = [_best_arc(solve_cell(feasible_case, d, arrival, bodies)) for d in dep]
+        fixed_arrival: float | None = arrival
+    else:
+        per_day = c3.min(axis=1)
+        worst = sliding_window_view(per_day, length_days).max(axis=-1)
+        if not np.isfinite(worst).any():
+            raise InputError(
+                "--days",
+                length_days,
+                "a period length for which every day has an arc within the "
+                "case's TOF and arrival limits",
+            )
+        start = int(np.argmin(worst))
+        dep = grid.departure_jd_tdb[start : start + length_days]
+        arcs = []
+        step = feasible_case.arrival_step_days
+        for i, d in enumerate(dep, start=int(start)):
+            arr0 = float(grid.arrival_jd_tdb[int(np.argmin(c3[i]))])
+
+            def day_c3(arrival: float, d=d) -> float:
+                arc = _best_arc(solve_cell(feasible_case, d, arrival, bodies))
+                return arc.metrics["c3_km2_s2"] if arc else math.inf
+
+            arrival = _best_arrival(day_c3, arr0, step)
+            arcs.append(_best_arc(solve_cell(feasible_case, d, arrival, bodies)))
+        fixed_arrival = None
+
+    days = tuple(_day(a) for a in arcs if a is not None)
+    max_c3 = max(d.c3_km2_s2 for d in days)
+    max_dla = max(abs(d.dla_deg) for d in days)
+    lim = case.limits
+    return LaunchPeriod(
+        length_days=length_days,
+        strategy=strategy,
+        open_jd_tdb=float(dep[0]),
+        close_jd_tdb=float(dep[-1]),
+        arrival_jd_tdb=fixed_arrival,
+        max_c3_km2_s2=max_c3,
+        max_abs_dla_deg=max_dla,
+        meets_c3_limit=None if lim.c3_max_km2_s2 is None else max_c3 <= lim.c3_max_km2_s2,
+        meets_dla_limit=None if lim.dla_max_deg is None else max_dla <= lim.dla_max_deg,
+        days=days,
+    )
+
+
+__all__ = ["STRATEGIES", "LaunchPeriod", "PeriodDay", "launch_period"]

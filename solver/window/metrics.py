@@ -1,0 +1,222 @@
+"""Per-arc metrics: what each one means, and how each is computed from the arc's velocities.
+
+For each cell (a departure date and an arrival date) and each arc of the cell (the
+single-revolution arc and the low- and high-branch arcs of N = 1..max_revolutions) the engine
+gives the numbers that decide a mission:
+
+* time of flight, transfer angle, Type I/II, family;
+* departure v∞, C3 = v∞², DLA and RLA (declination and right ascension of the departure
+  asymptote in ICRF/EME2000), departure Δv from a circular parking orbit;
+* arrival v∞, its declination and right ascension (ICRF), arrival Δv into the capture orbit
+  (zero for a flyby, |v∞| for a rendezvous), speed at the entry interface;
+* total Δv; the arc's periapsis and apoapsis about the central body, a and e;
+* whether the arc is within the case's limits, and a reason code for every arc that is missing.
+
+All vectors are in ICRF, the frame of the ephemeris; "prograde" turns about the ecliptic pole for
+a Sun-centred case and about the central planet's north pole otherwise.
+
+Conventions (common practice in preliminary design):
+
+* v∞ vectors are the arc velocity minus the body's velocity, both about the central body (the
+  patched-conic approximation; the body's own sphere of influence is a point).
+* Departure Δv from a circular parking orbit of radius r_p: sqrt(v∞² + 2μ/r_p) - sqrt(μ/r_p)
+  (a tangential burn at periapsis of the departure hyperbola). Without a parking orbit the launch
+  vehicle is taken to deliver the C3 and the departure Δv is 0; leaving a body with no mass (an
+  element body without GM) costs |v∞|.
+* Arrival Δv into an orbit of periapsis r_p and apoapsis r_a: sqrt(v∞² + 2μ/r_p) -
+  sqrt(2μ r_a / (r_p (r_p + r_a))); flyby 0; rendezvous |v∞|.
+* Entry speed at radius R + h: sqrt(v∞² + 2μ/(R + h)).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from solver.ephemeris.bodies import has_mass
+from solver.window.case import Case
+from solver.window.case_bodies import CaseBodies
+
+
+@dataclass(frozen=True)
+class Metric:
+    """A per-arc quantity an analyst can map, rank or limit."""
+
+    column: str
+    label: str
+    unit: str
+    description: str
+    rank_by_magnitude: bool = False  # rank |value| (DLA: the launch site cares about |DLA|)
+
+
+METRICS: dict[str, Metric] = {
+    m.column: m
+    for m in (
+        Metric("c3_km2_s2", "C3", "km²/s²", "launch energy, the square of the departure v∞"),
+        Metric("vinf_departure_km_s", "departure v∞", "km/s", "hyperbolic excess speed leaving"),
+        Metric(
+            "dla_deg",
+            "DLA",
+            "deg",
+            "declination of the departure asymptote (ICRF)",
+            rank_by_magnitude=True,
+        ),
+        Metric("rla_deg", "RLA", "deg", "right ascension of the departure asymptote (ICRF)"),
+        Metric("vinf_arrival_km_s", "arrival v∞", "km/s", "hyperbolic excess speed arriving"),
+        Metric(
+            "vinf_arrival_dec_deg",
+            "arrival v∞ declination",
+            "deg",
+            "declination of the arrival asymptote (ICRF)",
+            rank_by_magnitude=True,
+        ),
+        Metric(
+            "vinf_arrival_ra_deg",
+            "arrival v∞ right ascension",
+            "deg",
+            "right ascension of the arrival asymptote (ICRF)",
+        ),
+        Metric("dv_departure_km_s", "departure Δv", "km/s", "burn from the parking orbit"),
+        Metric("dv_arrival_km_s", "arrival Δv", "km/s", "burn into the capture orbit"),
+        Metric("dv_total_km_s", "total Δv", "km/s", "departure plus arrival Δv"),
+        Metric("entry_speed_km_s", "entry speed", "km/s", "speed at the entry interface"),
+        Metric("tof_days", "TOF", "days", "time of flight"),
+        Metric("periapsis_km", "arc periapsis", "km", "closest approach to the central body"),
+        Metric("apoapsis_km", "arc apoapsis", "km", "farthest distance from the central body"),
+        Metric("a_km", "arc semi-major axis", "km", "negative for hyperbolic arcs"),
+        Metric("e", "arc eccentricity", "", "eccentricity of the transfer arc"),
+    )
+}
+RANKING_METRICS = (
+    "c3_km2_s2",
+    "vinf_arrival_km_s",
+    "dv_total_km_s",
+    "tof_days",
+    "dla_deg",
+    "vinf_departure_km_s",
+    "dv_departure_km_s",
+    "dv_arrival_km_s",
+)
+_ARC_FLOAT_COLUMNS = tuple(m for m in METRICS if m != "tof_days")
+
+
+def ranking_values(values: Any, metric: str) -> Any:
+    """Values (a float or an array) as they rank for ``metric``: magnitudes for metrics ranked
+    by magnitude (DLA), the values themselves otherwise."""
+    return np.abs(values) if METRICS[metric].rank_by_magnitude else values
+
+
+def arc_metrics(
+    case: Case,
+    bodies: CaseBodies,
+    r1_km: NDArray,
+    v1_km_s: NDArray,
+    v2_km_s: NDArray,
+    departure_v_km_s: NDArray,
+    arrival_v_km_s: NDArray,
+) -> dict[str, NDArray[np.float64]]:
+    """Every per-arc metric from the arc velocities and the bodies' velocities (ICRF).
+
+    Shapes broadcast: vectors (..., 3) give metrics of shape (...). NaN arcs give NaN metrics.
+    """
+    mu = bodies.mu_central_km3_s2
+    vinf_d = v1_km_s - departure_v_km_s
+    vinf_a = v2_km_s - arrival_v_km_s
+    vd2 = np.einsum("...i,...i->...", vinf_d, vinf_d)
+    va2 = np.einsum("...i,...i->...", vinf_a, vinf_a)
+    vd = np.sqrt(vd2)
+    va = np.sqrt(va2)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out: dict[str, NDArray[np.float64]] = {
+            "c3_km2_s2": vd2,
+            "vinf_departure_km_s": vd,
+            "dla_deg": np.degrees(np.arcsin(np.clip(vinf_d[..., 2] / vd, -1.0, 1.0))),
+            "rla_deg": np.degrees(np.arctan2(vinf_d[..., 1], vinf_d[..., 0])) % 360.0,
+            "vinf_arrival_km_s": va,
+            "vinf_arrival_dec_deg": np.degrees(np.arcsin(np.clip(vinf_a[..., 2] / va, -1.0, 1.0))),
+            "vinf_arrival_ra_deg": np.degrees(np.arctan2(vinf_a[..., 1], vinf_a[..., 0])) % 360.0,
+        }
+
+        dep = bodies.departure
+        if case.parking_altitude_km is not None and has_mass(dep):
+            rp = dep.radius_km + case.parking_altitude_km
+            out["dv_departure_km_s"] = np.sqrt(vd2 + 2 * dep.gm_km3_s2 / rp) - math.sqrt(
+                dep.gm_km3_s2 / rp
+            )
+        elif has_mass(dep):
+            out["dv_departure_km_s"] = np.where(np.isfinite(vd), 0.0, np.nan)
+        else:
+            out["dv_departure_km_s"] = vd
+
+        tgt = bodies.target
+        if case.arrival_mode == "capture":
+            # A capture case always has both altitudes (the parser sets a circular orbit).
+            assert case.capture_periapsis_altitude_km is not None
+            assert case.capture_apoapsis_altitude_km is not None
+            rp = tgt.radius_km + case.capture_periapsis_altitude_km
+            ra = tgt.radius_km + case.capture_apoapsis_altitude_km
+            v_orbit = math.sqrt(2 * tgt.gm_km3_s2 * ra / (rp * (rp + ra)))
+            out["dv_arrival_km_s"] = np.sqrt(va2 + 2 * tgt.gm_km3_s2 / rp) - v_orbit
+        elif case.arrival_mode == "rendezvous":
+            out["dv_arrival_km_s"] = va
+        else:
+            out["dv_arrival_km_s"] = np.where(np.isfinite(va), 0.0, np.nan)
+        out["dv_total_km_s"] = out["dv_departure_km_s"] + out["dv_arrival_km_s"]
+        if case.entry_altitude_km is not None:
+            out["entry_speed_km_s"] = np.sqrt(
+                va2 + 2 * tgt.gm_km3_s2 / (tgt.radius_km + case.entry_altitude_km)
+            )
+        else:
+            out["entry_speed_km_s"] = np.full(va.shape, np.nan)
+
+        # The arc's own conic about the central body, from its departure state.
+        r1 = np.broadcast_to(r1_km, v1_km_s.shape)
+        r1n = np.sqrt(np.einsum("...i,...i->...", r1, r1))
+        v1sq = np.einsum("...i,...i->...", v1_km_s, v1_km_s)
+        h = np.cross(r1, v1_km_s)
+        p = np.einsum("...i,...i->...", h, h) / mu
+        energy = 0.5 * v1sq - mu / r1n
+        e = np.sqrt(np.maximum(0.0, 1.0 + 2.0 * energy * p / mu))
+        out["a_km"] = -mu / (2.0 * energy)
+        out["e"] = e
+        out["periapsis_km"] = p / (1.0 + e)
+        out["apoapsis_km"] = np.where(e < 1.0, p / (1.0 - e), np.inf)
+        out["apoapsis_km"] = np.where(np.isfinite(e), out["apoapsis_km"], np.nan)
+    return out
+
+
+def dv_conventions(case: Case, bodies: CaseBodies) -> dict[str, str]:
+    """How this case's departure and arrival Δv are counted, in words (the module's conventions).
+
+    A Δv of 0 means "no burn by the spacecraft here", which a reader must not take for free.
+    """
+    if case.parking_altitude_km is not None and has_mass(bodies.departure):
+        departure = f"burn from a circular {case.parking_altitude_km:g} km parking orbit"
+    elif has_mass(bodies.departure):
+        departure = "0: the launch vehicle delivers the C3 (the case has no parking orbit)"
+    else:
+        departure = "|v∞|: one burn to leave the departure body's orbit"
+    if case.arrival_mode == "capture":
+        arrival = (
+            f"burn at periapsis into a {case.capture_periapsis_altitude_km:g} × "
+            f"{case.capture_apoapsis_altitude_km:g} km capture orbit"
+        )
+    elif case.arrival_mode == "rendezvous":
+        arrival = "|v∞|: one burn to match the target's velocity"
+    else:
+        arrival = "0: a flyby, no burn"
+    return {"departure_dv": departure, "arrival_dv": arrival}
+
+
+__all__ = [
+    "METRICS",
+    "RANKING_METRICS",
+    "Metric",
+    "arc_metrics",
+    "dv_conventions",
+    "ranking_values",
+]

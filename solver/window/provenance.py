@@ -1,0 +1,54 @@
+"""Where every output's numbers come from: provenance, case hash and the grid cache key."""
+
+from __future__ import annotations
+
+import datetime as _dt
+from typing import Any
+
+from solver import ENGINE_VERSION
+from solver.caution import CAUTION
+from solver.digest import cache_key
+from solver.window.case import Case
+from solver.window.case_bodies import CaseBodies
+from solver.window.metrics import dv_conventions
+
+
+def ephemeris_label(case: Case) -> str:
+    if case.ephemeris_source == "mean":
+        return "JPL approximate mean elements (Standish, Table 1, 1800-2050)"
+    return "JPL DE423 (jplephem, de423 package)"
+
+
+def case_hash(case: Case) -> str:
+    return cache_key({"case": case.normalized()})[:16]
+
+
+def window_cache_key(case: Case) -> str:
+    return cache_key(
+        {
+            "case": case.normalized(),
+            "ephemeris": ephemeris_label(case),
+            "engine": ENGINE_VERSION,
+            "grid_format": 1,
+        }
+    )
+
+
+def provenance(case: Case) -> dict[str, Any]:
+    """What every output states about where its numbers come from."""
+    return {
+        "case_title": case.title,
+        "case_hash": case_hash(case),
+        "ephemeris": ephemeris_label(case),
+        "constants": "GM from the DE423 header; radii JPL SSD / IAU 2015 (solver/constants.py)",
+        "engine": f"arcwindow {ENGINE_VERSION}",
+        "lambert_method": "Izzo (2015) with Householder iterations",
+        "frame": "ICRF (equatorial J2000); DLA/RLA and arrival asymptote angles in ICRF",
+        "time_scales": "dates shown in UTC; computed in TDB",
+        **dv_conventions(case, CaseBodies.of(case)),
+        "computed_utc": _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
+        "caution": CAUTION,
+    }
+
+
+__all__ = ["case_hash", "ephemeris_label", "provenance", "window_cache_key"]

@@ -1,0 +1,246 @@
+"""The best arc off the grid: departure and arrival times to the minute, within limits.
+
+A grid finds the best cell to the nearest grid step; an analyst wants the best arc itself.
+:func:`refine_best` starts from the grid's best arc within limits and has two methods:
+
+* ``"zoom"`` (default): nested grids around the best arc so far, each a 9 x 9 grid over plus
+  and minus the previous step at a quarter of it, solved by the window engine, until the step is
+  under a minute (seven levels from a 5-day grid). Its cost is bounded (a few hundred cells),
+  every limit is checked cell by cell, non-smooth metrics (|DLA|) and limits active at the
+  optimum are no harder than any other, and the result is never worse than the grid cell.
+* ``"slsqp"``: scipy's SLSQP over continuous epochs with the limits as inequality constraints and
+  the date windows as bounds, then rounded to the minute and kept only if still within limits
+  and no worse. Smooth and precise where no limit binds; its cost grows when one does, so its
+  evaluations are capped.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+from scipy.optimize import minimize
+
+from solver.ephemeris.timescales import jd_tdb_to_utc
+from solver.errors import InputError
+from solver.time_units import MINUTE_DAYS, round_to_minute_from
+from solver.window.best import slot_arc, slots_of
+from solver.window.case import Case
+from solver.window.case_bodies import CaseBodies
+from solver.window.cell import Arc, select_arc, solve_cell
+from solver.window.grid import WindowGrid, compute_window
+from solver.window.limits import margins
+from solver.window.metrics import METRICS, ranking_values
+
+METHODS = ("zoom", "slsqp")
+ZOOM_SUBSTEPS = 4
+"""Zoom grids step a quarter of the previous step, over plus and minus the previous step."""
+ZOOM_FINEST_DAYS = MINUTE_DAYS
+"""Zooming stops after the level whose step is first below a minute."""
+SLSQP_MAX_EVALUATIONS = 400
+_FAILED = 1e30  # objective where no arc exists (steers the optimizer back)
+
+
+@dataclass(frozen=True)
+class RefinedArc:
+    """The refined best arc and how it was found."""
+
+    arc: Arc
+    metric: str
+    grid_arc: Arc
+    improvement: float  # grid value minus refined value, in the metric's unit
+    evaluations: int  # cells or single arcs solved
+    message: str
+
+
+class _EnoughEvaluations(Exception):
+    """Stops SLSQP at its evaluation budget; the best arc within limits seen so far is kept."""
+
+
+def _value(arc: Arc, metric: str) -> float:
+    return float(ranking_values(arc.metrics.get(metric, math.nan), metric))
+
+
+def refine_best(
+    case: Case,
+    grid: WindowGrid,
+    metric: str = "c3_km2_s2",
+    *,
+    revolutions: int | None = None,
+    branch: str | None = None,
+    method: str = "zoom",
+) -> RefinedArc:
+    """Refine the grid's best arc within limits by ``metric`` to the minute.
+
+    Parameters
+    ----------
+    case, grid : Case, WindowGrid
+        The case and its solved grid.
+    metric : str
+        A ``METRICS`` column (DLA is ranked by its magnitude).
+    revolutions, branch : optional
+        Refine the best arc of this revolution count and branch instead of the overall best.
+    method : {"zoom", "slsqp"}
+        See the module docstring.
+
+    Raises
+    ------
+    InputError
+        Unknown metric or method, or no arc of the grid within limits.
+    """
+    if metric not in METRICS:
+        raise InputError("metric", metric, "one of " + ", ".join(METRICS))
+    if method not in METHODS:
+        raise InputError("method", method, "'zoom' or 'slsqp'")
+    slots = None
+    if revolutions is not None:
+        if revolutions != 0 and branch not in (None, "low", "high"):
+            raise InputError("branch", branch, "'low' or 'high'")
+        slots = slots_of(grid, revolutions, branch)
+        if not slots:
+            raise InputError(
+                "revolutions",
+                revolutions,
+                f"0 to {case.max_revolutions} (the case's max_revolutions)",
+            )
+    best = grid.best_cell(metric, slots=slots)
+    if best is None:
+        raise InputError(
+            "limits",
+            "no arc of the grid within limits",
+            "a window or limits that leave at least one arc",
+        )
+    bodies = CaseBodies.of(case)
+    grid_arc = slot_arc(case, bodies, grid, *best)
+    if method == "zoom":
+        arc, evaluations, message = _zoom(case, bodies, grid_arc, metric, slots)
+    else:
+        arc, evaluations, message = _slsqp(case, bodies, grid_arc, metric)
+    return RefinedArc(
+        arc=arc,
+        metric=metric,
+        grid_arc=grid_arc,
+        improvement=_value(grid_arc, metric) - _value(arc, metric),
+        evaluations=evaluations,
+        message=message,
+    )
+
+
+def _zoom(
+    case: Case, bodies: CaseBodies, start: Arc, metric: str, slots: list[int] | None
+) -> tuple[Arc, int, str]:
+    """Nested grids around ``start``; returns (arc, cells solved, message)."""
+    arc, score = start, _value(start, metric)
+    dep, arr = start.departure_jd_tdb, start.arrival_jd_tdb
+    half_dep, half_arr = case.departure_step_days, case.arrival_step_days
+    cells = 0
+    while min(half_dep, half_arr) >= ZOOM_FINEST_DAYS:
+        d0 = max(dep - half_dep, case.departure_start_jd_tdb)
+        d1 = min(dep + half_dep, case.departure_end_jd_tdb)
+        a0 = max(arr - half_arr, case.arrival_start_jd_tdb)
+        a1 = min(arr + half_arr, case.arrival_end_jd_tdb)
+        half_dep, half_arr = half_dep / ZOOM_SUBSTEPS, half_arr / ZOOM_SUBSTEPS
+        # Only the dates differ from the validated case, and they lie inside its windows.
+        sub = replace(
+            case,
+            departure_start=str(jd_tdb_to_utc(d0)),
+            departure_end=str(jd_tdb_to_utc(d1)),
+            arrival_start=str(jd_tdb_to_utc(a0)),
+            arrival_end=str(jd_tdb_to_utc(a1)),
+            departure_start_jd_tdb=d0,
+            departure_end_jd_tdb=d1,
+            arrival_start_jd_tdb=a0,
+            arrival_end_jd_tdb=a1,
+            departure_step_days=half_dep,
+            arrival_step_days=half_arr,
+        )
+        zoom = compute_window(sub)
+        cells += zoom.reason.size
+        cell = zoom.best_cell(metric, slots=slots)
+        if cell is None:
+            continue
+        candidate = slot_arc(case, bodies, zoom, *cell)
+        if candidate.within and _value(candidate, metric) < score:
+            arc, score = candidate, _value(candidate, metric)
+            dep, arr = arc.departure_jd_tdb, arc.arrival_jd_tdb
+    # Report whole minutes from the grid's dates when that keeps the arc within limits and
+    # no worse than the grid cell (the last level stepped ~20 s).
+    candidate = select_arc(
+        solve_cell(
+            case,
+            round_to_minute_from(start.departure_jd_tdb, arc.departure_jd_tdb),
+            round_to_minute_from(start.arrival_jd_tdb, arc.arrival_jd_tdb),
+            bodies,
+        ),
+        arc.revolutions,
+        arc.branch,
+    )
+    if candidate.within and _value(candidate, metric) <= _value(start, metric):
+        arc = candidate
+    return arc, cells, f"nested grids down to the minute ({cells} cells)"
+
+
+def _slsqp(case: Case, bodies: CaseBodies, start: Arc, metric: str) -> tuple[Arc, int, str]:
+    """SLSQP over continuous epochs from ``start``; returns (arc, arcs solved, message)."""
+    dep0, arr0 = start.departure_jd_tdb, start.arrival_jd_tdb
+    memo: dict[tuple[float, float], Arc | None] = {}
+
+    def arc_at(x: np.ndarray) -> Arc | None:
+        key = (float(x[0]), float(x[1]))
+        if key not in memo:
+            dep, arr = dep0 + key[0], arr0 + key[1]
+            arc = (
+                select_arc(solve_cell(case, dep, arr, bodies), start.revolutions, start.branch)
+                if arr > dep
+                else None
+            )
+            memo[key] = arc if arc is not None and arc.ok else None
+        return memo[key]
+
+    def objective(x):
+        if len(memo) >= SLSQP_MAX_EVALUATIONS:
+            raise _EnoughEvaluations
+        arc = arc_at(x)
+        return _FAILED if arc is None else _value(arc, metric)
+
+    def constraints(x):
+        arc = arc_at(x)
+        return np.array(margins(case, bodies, arc.metrics) if arc is not None else [-1e6])
+
+    bounds = [
+        (case.departure_start_jd_tdb - dep0, case.departure_end_jd_tdb - dep0),
+        (case.arrival_start_jd_tdb - arr0, case.arrival_end_jd_tdb - arr0),
+    ]
+    # Finite-difference step: a hundredth of the grid step (1.4 min for a daily grid).
+    step_days = 0.01 * min(case.departure_step_days, case.arrival_step_days)
+    try:
+        result = minimize(
+            objective,
+            np.zeros(2),
+            method="SLSQP",
+            bounds=bounds,
+            constraints=[{"type": "ineq", "fun": constraints}],
+            options={"ftol": 1e-12, "maxiter": 100, "eps": step_days},
+        )
+        found, note = np.asarray(result.x), str(result.message)
+    except _EnoughEvaluations:
+        seen = [(x, a) for x, a in memo.items() if a is not None and a.within]
+        found = (
+            np.asarray(min(seen, key=lambda item: _value(item[1], metric))[0])
+            if seen
+            else np.zeros(2)
+        )
+        note = f"stopped after {SLSQP_MAX_EVALUATIONS} evaluations"
+    # Round to the minute and check the rounded arc, not the optimizer's claim.
+    candidate = arc_at(np.round(found / MINUTE_DAYS) * MINUTE_DAYS)
+    if (
+        candidate is not None
+        and candidate.within
+        and _value(candidate, metric) <= _value(start, metric)
+    ):
+        return candidate, len(memo), f"refined to the minute ({note})"
+    return start, len(memo), "grid arc kept: " + note
+
+
+__all__ = ["METHODS", "RefinedArc", "refine_best"]
