@@ -31,12 +31,12 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     import json
-    from pathlib import Path
 
     from app.commands.best_cmd import format_arc_report
     from app.samples import load
     from solver.ephemeris.timescales import utc_to_jd_tdb
     from solver.errors import InputError
+    from solver.files.atomic import write_bytes_atomic
     from solver.files.export import arc_json, arc_oem_text
     from solver.reasons import describe
     from solver.window.cell import select_arc, solve_cell
@@ -64,7 +64,7 @@ def run(args: argparse.Namespace) -> int:
             f"dates with an arc ({describe(arc.reason)})",
         )
     if args.oem:
-        Path(args.oem).write_text(arc_oem_text(case, arc), encoding="ascii")
+        write_bytes_atomic(args.oem, arc_oem_text(case, arc).encode("ascii"), checksum=True)
     report = arc_json(case, arc)
     if args.json:
         print(json.dumps(report, indent=2))
