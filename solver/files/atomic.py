@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import contextlib
 import hashlib
+import io
 import logging
 import os
 import re
@@ -34,7 +35,7 @@ import secrets
 import time
 from collections.abc import Callable, Iterator
 from pathlib import Path
-from typing import BinaryIO
+from typing import BinaryIO, cast
 
 logger = logging.getLogger(__name__)
 
@@ -103,15 +104,16 @@ def atomic_output(
     final = Path(path)
     temp = temporary_path(final)
     handle = open(temp, "xb", buffering=buffering)  # closed below, before the rename
+    hashing = _HashingWriter(handle) if checksum else None
     try:
         try:
-            yield handle
+            yield handle if hashing is None else cast(BinaryIO, hashing)
             handle.flush()
             os.fsync(handle.fileno())
         finally:
             handle.close()
         _test_pause()
-        digest = file_sha256(temp) if checksum else None
+        digest = hashing.hexdigest() if hashing is not None else None
         os.replace(temp, final)
     except BaseException:
         _unlink_quietly(temp)
@@ -119,6 +121,40 @@ def atomic_output(
     if digest is not None:
         write_checksum(final, digest)
     _fsync_folder(final.parent)
+
+
+class _HashingWriter(io.RawIOBase):
+    """A write-only file that hashes what passes through it on the way to the real file.
+
+    Hashing as the bytes are written, rather than reading the file back, keeps an 8 GB table from
+    being read twice. It offers no ``fileno`` and no ``seek``: bytes written around it would be
+    missing from the hash.
+    """
+
+    def __init__(self, handle: BinaryIO) -> None:
+        super().__init__()
+        self._handle = handle
+        self._digest = hashlib.sha256()
+        self._position = 0
+
+    def writable(self) -> bool:
+        return True
+
+    def write(self, data) -> int:
+        view = memoryview(data).cast("B")
+        self._digest.update(view)
+        self._handle.write(view)
+        self._position += view.nbytes
+        return view.nbytes
+
+    def tell(self) -> int:
+        return self._position
+
+    def flush(self) -> None:
+        self._handle.flush()
+
+    def hexdigest(self) -> str:
+        return self._digest.hexdigest()
 
 
 def write_bytes_atomic(
