@@ -22,13 +22,16 @@ from solver.window.limits import within_limits
 from solver.window.metrics import METRICS, arc_metrics, ranking_values
 from solver.window.provenance import provenance, window_cache_key
 
-# One cell-arc holds about 16 float64 results plus temporaries of the solve (~400 bytes in all);
-# 20 million cell-arcs stay within about a third of a 24 GiB machine's memory.
+# 20 million cell-arcs are about 2.5 GB of arrays (BYTES_PER_CELL_ARC each); solving and writing
+# them peaks well within a third of a 24 GiB machine's memory (DEVELOPERS.md, "Budgets").
 DEFAULT_MAX_CELL_ARCS = 20_000_000
 ENV_MAX_CELL_ARCS = "ARCWINDOW_MAX_CELL_ARCS"
 # Departure rows solved per chunk: small enough for smooth progress, large for vector speed.
 _ROWS_PER_CHUNK_TARGET_ARCS = 250_000
 _ARC_FLOAT_COLUMNS = tuple(m for m in METRICS if m != "tof_days")
+BYTES_PER_CELL_ARC = 8 * len(_ARC_FLOAT_COLUMNS) + 3
+"""Bytes one cell-arc holds in a solved grid: a float64 per metric (TOF is per cell) and the
+family, reason and within flags (one byte each)."""
 
 
 class Cancelled(Exception):
@@ -169,12 +172,27 @@ class WindowGrid:
         return cls(case=case, arcs=arcs, provenance=dict(provenance), from_cache=True, **plain)
 
 
+def axis_length(start_jd: float, end_jd: float, step_days: float) -> int:
+    """Number of dates ``start, start + step, ...`` up to ``end``, by arithmetic alone.
+
+    Nothing is allocated, so a window of a billion dates costs no more to count than one of ten
+    (the size check runs before any axis is built). A step that divides the window to within
+    1e-9 of a step keeps the end date.
+    """
+    steps = (float(end_jd) - float(start_jd)) / float(step_days)
+    if not math.isfinite(steps) or steps < 0.0:
+        raise InputError("window", f"{start_jd} to {end_jd} every {step_days} days", _AXIS_RULE)
+    return math.floor(steps + 1e-9) + 1
+
+
+_AXIS_RULE = "an end date on or after the start date and a positive step"
+
+
 def grid_axes(case: Case) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Departure and arrival epochs (JD TDB): start, start + step, ... up to the end date."""
 
     def axis(start, end, step):
-        n = math.floor((end - start) / step + 1e-9) + 1
-        return start + step * np.arange(n)
+        return start + step * np.arange(axis_length(start, end, step))
 
     return (
         axis(case.departure_start_jd_tdb, case.departure_end_jd_tdb, case.departure_step_days),
@@ -190,25 +208,50 @@ def max_cell_arcs(value: int | None = None) -> int:
     if env:
         try:
             return int(float(env))
-        except ValueError:
+        except (ValueError, OverflowError):
             raise InputError(ENV_MAX_CELL_ARCS, env, "a positive integer") from None
     return DEFAULT_MAX_CELL_ARCS
 
 
+def estimated_grid_bytes(n_dep: int, n_arr: int, slots: int) -> int:
+    """Bytes a solved grid of this shape holds (its arrays), from the shape alone.
+
+    Per cell-arc: one float64 per metric but TOF, plus the family, reason and within flags
+    (:data:`BYTES_PER_CELL_ARC`); per cell: TOF and transfer angle; per date: its epoch and the
+    body's state. Solving adds at most one chunk of departure rows of temporaries
+    (``_ROWS_PER_CHUNK_TARGET_ARCS`` cell-arcs, tens of MB).
+    """
+    cells = n_dep * n_arr
+    return cells * slots * BYTES_PER_CELL_ARC + cells * 16 + (n_dep + n_arr) * 56
+
+
 def check_grid_size(case: Case, cap: int | None = None) -> tuple[int, int, int]:
-    """(n_dep, n_arr, slots) of the case's grid; InputError if it exceeds the cap."""
-    dep, arr = grid_axes(case)
+    """(n_dep, n_arr, slots) of the case's grid; InputError if it exceeds the cap.
+
+    The counts come from the windows and steps by arithmetic (:func:`axis_length`): no axis is
+    built, so a refused window costs nothing however large it is.
+    """
+    n_dep = axis_length(
+        case.departure_start_jd_tdb, case.departure_end_jd_tdb, case.departure_step_days
+    )
+    n_arr = axis_length(case.arrival_start_jd_tdb, case.arrival_end_jd_tdb, case.arrival_step_days)
     slots = 2 * case.max_revolutions + 1
-    total = len(dep) * len(arr) * slots
+    total = n_dep * n_arr * slots
     limit = max_cell_arcs(cap)
     if total > limit:
         raise InputError(
             "window",
-            f"{len(dep)} departure x {len(arr)} arrival dates x {slots} arcs = {total:,}",
-            f"at most {limit:,} cell-arcs (raise the step days, narrow the dates, lower "
-            f"max_revolutions, or set {ENV_MAX_CELL_ARCS})",
+            f"{n_dep:,} departure x {n_arr:,} arrival dates x {slots} arcs = {total:,} "
+            f"(about {_gigabytes(estimated_grid_bytes(n_dep, n_arr, slots))})",
+            f"at most {limit:,} cell-arcs (about {_gigabytes(limit * (BYTES_PER_CELL_ARC + 16))}; "
+            "raise the step days, narrow the dates, lower max_revolutions, or set "
+            f"{ENV_MAX_CELL_ARCS})",
         )
-    return len(dep), len(arr), slots
+    return n_dep, n_arr, slots
+
+
+def _gigabytes(nbytes: float) -> str:
+    return f"{nbytes / 1e9:.3g} GB" if nbytes >= 1e8 else f"{nbytes / 1e6:.3g} MB"
 
 
 def compute_window(
@@ -332,12 +375,15 @@ def compute_window(
 
 
 __all__ = [
+    "BYTES_PER_CELL_ARC",
     "DEFAULT_MAX_CELL_ARCS",
     "ENV_MAX_CELL_ARCS",
     "Cancelled",
     "WindowGrid",
+    "axis_length",
     "check_grid_size",
     "compute_window",
+    "estimated_grid_bytes",
     "grid_axes",
     "max_cell_arcs",
 ]
