@@ -425,10 +425,10 @@ def test_bw08_survey_page_lists_targets_and_opens_one(server, server_folder, tab
     tab = tabs()
     page = tab.page
     page.goto(server + "survey/?results=bw08")
-    page.wait_for_selector(f"tr[data-target='{best['target']}'] a:text('open')")
+    page.wait_for_selector(f"tr[data-target='{best['target']}'] button:text('open')")
     assert page.locator(".aw-survey-table tbody tr").count() == 4
     tab.shot("listed")
-    page.locator(f"tr[data-target='{best['target']}'] a:text('open')").click()
+    page.locator(f"tr[data-target='{best['target']}'] button:text('open')").click()
     page.wait_for_function(
         "(t) => (document.querySelector('#text-case-title') || {}).innerText?.includes(t)",
         arg=str(best["target"]),
@@ -441,8 +441,13 @@ def test_bw08_survey_page_lists_targets_and_opens_one(server, server_folder, tab
         arg=departure,
     )
     tab.shot("opened")
-    # an unknown target comes back to the survey page with a clear message
-    page.goto(server + "survey-open?results=bw08&target=nobody")
+    # "open" is a POST (it stores a case); an unknown target comes back to the survey page with
+    # a clear message
+    page.evaluate(
+        "() => { const form = document.createElement('form'); form.method = 'post';"
+        " form.action = '/survey-open?results=bw08&target=nobody';"
+        " document.body.appendChild(form); form.submit(); }"
+    )
     page.wait_for_function(
         "() => (document.querySelector('#div-survey-message') || {}).innerText?.includes('target')"
     )

@@ -355,8 +355,7 @@ def test_callbacks_over_http_open_click_and_change_metric(tmp_path):
     model.shutdown()
 
 
-DOWNLOADS = [  # button, file-name ending, how the file starts
-    ("button-download-grid-csv", "_grid.csv", "departure_utc"),
+DOWNLOADS = [  # button, file-name ending, how the file starts (the grid: test_served_access.py)
     ("button-download-arc-oem", "_arc.oem", "CCSDS_OEM_VERS"),
     ("button-download-arc-json", "_arc.json", "{"),
     ("button-download-family-html", "_family.html", "<!doctype html>"),

@@ -10,12 +10,38 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         "serve",
         help="serve the dashboard (localhost only unless --host says otherwise)",
         description=(
-            "Serve the dashboard on a production WSGI server. Everyone who can reach the address "
-            "sees the same shortlist; bind to another interface with --host only on a trusted "
-            "network."
+            "Serve the dashboard on a production WSGI server. Everyone who holds the link sees "
+            "the same shortlist. On any address other than loopback (--host) every request needs "
+            "an access token: one is generated at start and printed with the link to share "
+            "(or give your own with --token). Each request may solve a grid of at most "
+            "--request-budget bytes (default 1GiB, about 7 million cell-arcs) and send a body "
+            "of at most 1 MiB. See docs/threat-model.md."
         ),
     )
     parser.add_argument("--host", default="127.0.0.1", help="interface to bind (default 127.0.0.1)")
+    parser.add_argument(
+        "--token",
+        default=None,
+        metavar="TOKEN",
+        help="access token (at least 16 characters; default: $ARCWINDOW_TOKEN, else a new random "
+        "one off loopback, none on loopback)",
+    )
+    parser.add_argument(
+        "--allow-host",
+        action="append",
+        default=[],
+        metavar="NAME",
+        help="a host name the team uses to reach the server (repeatable; localhost, IP addresses "
+        "and this machine's names are always accepted)",
+    )
+    parser.add_argument(
+        "--request-budget",
+        default=None,
+        metavar="SIZE",
+        help="memory one request may use for its grid, e.g. 1GiB or 500MB (default: "
+        "$ARCWINDOW_REQUEST_BUDGET, else 1GiB); larger grids are refused with a message, "
+        "before anything is allocated",
+    )
     parser.add_argument("--port", type=int, default=8050, help="TCP port (default 8050)")
     parser.add_argument(
         "--cache-dir",
@@ -43,6 +69,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     import faulthandler
+    import os
     import signal
     import sys
     import webbrowser
@@ -51,21 +78,55 @@ def run(args: argparse.Namespace) -> int:
 
     from app.cli import UserInputError
     from app.dashboard import create_app
+    from app.dashboard.access import MAX_REQUEST_BODY_BYTES, AccessPolicy
+    from app.dashboard.budget import apply_request_budget
 
     if not 0 < args.port < 65536:
         raise UserInputError(f"--port {args.port} is not accepted; expected 1 to 65535")
     if args.threads < 1:
         raise UserInputError(f"--threads {args.threads} is not accepted; expected at least 1")
+    token = args.token or os.environ.get("ARCWINDOW_TOKEN") or None
+    try:
+        policy = AccessPolicy.for_address(
+            args.host, args.port, token=token, allow_hosts=args.allow_host
+        )
+    except ValueError as exc:
+        raise UserInputError(f"--token is not accepted; expected {exc}") from None
+    budget = apply_request_budget(args.request_budget)
     # `kill -USR1 <pid>` prints every thread's stack to stderr: how to see what a stuck
     # request is waiting on, without stopping the session.
     if hasattr(signal, "SIGUSR1"):
         faulthandler.register(signal.SIGUSR1, file=sys.stderr, all_threads=True)
     dash_app = create_app(
-        cache_dir=args.cache_dir, data_dir=args.data_dir, surveys_dir=args.survey_dir
+        cache_dir=args.cache_dir,
+        data_dir=args.data_dir,
+        surveys_dir=args.survey_dir,
+        access=policy,
     )
-    url = f"http://{args.host}:{args.port}/"
+    url = f"http://{_display_host(args.host)}:{args.port}/"
+    link = policy.share_link(url)
     print(f"arcwindow dashboard at {url} (Ctrl+C to stop)", flush=True)
+    print(f"  {budget.describe()}", flush=True)
+    if policy.token is not None:
+        print(f"  access token required; share this link with the team: {link}", flush=True)
+    for problem in dash_app.server.config.get("ARCWINDOW_STARTUP_NOTES", []):
+        print(f"  note: {problem}", flush=True)
     if args.open:
-        webbrowser.open(url)
-    waitress.serve(dash_app.server, host=args.host, port=args.port, threads=args.threads)
+        webbrowser.open(link)
+    waitress.serve(
+        dash_app.server,
+        host=args.host,
+        port=args.port,
+        threads=args.threads,
+        max_request_body_size=MAX_REQUEST_BODY_BYTES,
+    )
     return 0
+
+
+def _display_host(host: str) -> str:
+    """The address to print: the machine's name for a wildcard bind, brackets for IPv6."""
+    import socket
+
+    if host in ("0.0.0.0", "::", ""):
+        return socket.getfqdn() or socket.gethostname()
+    return f"[{host}]" if ":" in host else host

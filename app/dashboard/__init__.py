@@ -8,7 +8,9 @@
 * ``prepare``: solver results to display arrays; ``figures``: pure figure builders;
   ``theme``: colours and fonts;
 * ``model``: the above put together for the callbacks; ``layout``; ``callbacks``;
-* ``surveys`` and ``survey_page``: the survey page at ``/survey/``.
+* ``surveys`` and ``survey_page``: the survey page at ``/survey/``;
+* ``access``: the token, host check and security headers on every request; ``downloads``:
+  grid tables streamed from files through a route of their own.
 """
 
 from __future__ import annotations
@@ -17,6 +19,7 @@ import os
 
 from dash import Dash
 
+from .access import AccessPolicy
 from .config import ASSETS_DIR, Settings
 from .model import DashboardModel
 
@@ -30,6 +33,7 @@ def create_app(
     cases_dir: str | os.PathLike | None = None,
     surveys_dir: str | os.PathLike | None = None,
     model: DashboardModel | None = None,
+    access: AccessPolicy | None = None,
 ) -> Dash:
     """Build the dashboard app.
 
@@ -41,13 +45,18 @@ def create_app(
         (see ``config``).
     model : DashboardModel, optional
         A ready model (tests pass one with a stand-in grid engine).
+    access : AccessPolicy, optional
+        Token and served host names (``arcwindow serve`` builds it from ``--host``); default:
+        a localhost server without a token. Host check, same-origin writes, the body limit and
+        the security headers apply either way.
 
     Returns
     -------
     dash.Dash
         Serve ``app.server`` (a Flask WSGI app) with a production WSGI server.
     """
-    from . import callbacks, layout
+    from . import access as access_module
+    from . import callbacks, downloads, layout
     from .survey_page import create_survey_app
     from .surveys import SurveyShelf
 
@@ -64,8 +73,12 @@ def create_app(
         # server, the survey page included.
         compress=True,
     )
+    access_module.install(
+        app.server, access or AccessPolicy.for_address("127.0.0.1", 0, token=None)
+    )
     app.layout = layout.page()
     callbacks.register(app, model)
+    downloads.register(app, model)
     app.server.config["ARCWINDOW_MODEL"] = model
     # The survey page: a second Dash app at /survey/ on the same server.
     create_survey_app(app.server, SurveyShelf(model.settings.surveys_dir, model.catalogue))

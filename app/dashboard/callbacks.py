@@ -35,7 +35,7 @@ from solver.errors import InputError
 from solver.window.provenance import window_cache_key
 
 from . import layout, theme
-from .exports import arc_json, arc_oem, figure_html, grid_csv, safe_name
+from .exports import arc_json, arc_oem, figure_html, safe_name
 from .layout import CONTROL_IDS, SLIDER_IDS
 from .model import DashboardModel
 from .prepare import display_name
@@ -465,8 +465,8 @@ def register(app, model: DashboardModel) -> None:
         return table, now, note_out, message
 
     # ---- downloads -----------------------------------------------------------------------
+    # The grid table is not built here: app/dashboard/downloads.py streams it from a file.
     download_buttons = {
-        "button-download-grid-csv": "grid",
         "button-download-arc-oem": "oem",
         "button-download-arc-json": "json",
         "button-download-map-html": "map",
@@ -490,10 +490,6 @@ def register(app, model: DashboardModel) -> None:
         case = model.case(view)
         grid = model.grids.memory_get(window_cache_key(case))
         stem = safe_name(case.title)
-        if kind == "grid":
-            if grid is None:
-                return no_update, _notes(["The grid is still being solved."])
-            return dcc.send_string(grid_csv(grid), f"{stem}_grid.csv"), ""
         if kind == "map":
             if grid is None:
                 return no_update, _notes(["The grid is still being solved."])

@@ -1,4 +1,5 @@
-"""Downloads: the grid as CSV, the selected arc as CCSDS OEM and JSON, figures as HTML.
+"""Downloads: the selected arc as CCSDS OEM and JSON, figures as HTML (the grid table is
+streamed from a file by ``downloads``).
 
 The grid and arc formats are ``solver.files.export``'s own; this module only names the files and
 turns results into text. Figures also download as PNG in the browser (the graph's camera
@@ -14,20 +15,14 @@ import plotly.graph_objects as go
 
 from solver.caution import CAUTION
 from solver.files.export import arc_json as _arc_json
-from solver.files.export import arc_oem_text, grid_to_frame
+from solver.files.export import arc_oem_text
 from solver.window.case import Case
 from solver.window.cell import Arc
-from solver.window.grid import WindowGrid
 
 
 def safe_name(text: str) -> str:
     """A file-name stem from free text."""
     return re.sub(r"[^A-Za-z0-9_.-]+", "_", text).strip("_")[:80] or "arcwindow"
-
-
-def grid_csv(grid: WindowGrid) -> str:
-    """Every arc of the grid, one row per cell and arc (``solver.files.export`` columns)."""
-    return grid_to_frame(grid).to_csv(index=False)
 
 
 def arc_oem(case: Case, arc: Arc) -> str:

@@ -1,7 +1,7 @@
 """The survey page (``/survey/``): ranked targets of a results file; each opens its window map.
 
 A second Dash app on the dashboard's own server, so the window page's callbacks and URL state
-stay as they are. "open" goes through ``/survey-open``, which builds the target's window case
+stay as they are. "open" posts to ``/survey-open``, which builds the target's window case
 around its best arc (``solver.survey.scan.case_for_target``), stores it like an uploaded case, and
 sends the browser to the window page with that case and the best arc selected.
 """
@@ -57,10 +57,12 @@ def create_survey_app(server, shelf: SurveyShelf) -> Dash:
     app.layout = layout()
     register(app, shelf)
 
-    @server.route(OPEN_PATH)
+    # "open" stores a case (a state change), so it is a POST from the table's form: a link or a
+    # page on another site cannot make a viewer's browser do it (app/dashboard/access.py).
+    @server.route(OPEN_PATH, methods=["POST"])
     def open_target():
-        name = request.args.get("results", "")
-        target = request.args.get("target", "")
+        name = request.values.get("results", "")
+        target = request.values.get("target", "")
         try:
             return redirect("/" + shelf.open_target(name, target))
         except InputError as exc:
@@ -179,11 +181,12 @@ def table_children(table: SurveyTable) -> list:
             record["departure_jd_tdb"]
         )
         link = (
-            html.A(
-                "open",
-                className="aw-link",
-                href=f"{OPEN_PATH}?results={quote(table.name)}"
+            html.Form(
+                html.Button("open", type="submit", className="aw-link aw-link-button"),
+                method="post",
+                action=f"{OPEN_PATH}?results={quote(table.name)}"
                 f"&target={quote(str(record['target']))}",
+                className="aw-inline-form",
             )
             if has_arc
             else html.Span(record.get("reason", ""), className="aw-small")

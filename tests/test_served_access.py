@@ -1,0 +1,369 @@
+"""A served session's defences: the access token, the Host check, same-origin writes, framing and
+other headers, the request body limit, POST for every state change, the grid download route
+and the per-request grid budget.
+
+Everything runs through the app's own WSGI server object (Flask's test client), with the
+requests a browser or another site's page would send.
+"""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+import tracemalloc
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from app.bench.dashboard_bench import DashClient, _test_client_transport
+from app.dashboard import DashboardModel, Settings, create_app
+from app.dashboard.access import (
+    MAX_REQUEST_BODY_BYTES,
+    SECURITY_HEADERS,
+    TOKEN_HEADER,
+    AccessPolicy,
+    is_loopback,
+)
+from app.dashboard.budget import REQUEST_BYTES_PER_CELL_ARC, request_budget
+from solver.files.atomic import verify_checksum
+from solver.window.grid import ENV_MAX_CELL_ARCS, check_grid_size
+
+ROOT = Path(__file__).resolve().parents[1]
+SAMPLES = ROOT / "sample_cases"
+TOKEN = "k3y-for-the-test-session-0123456789"
+VIEW = "?case=vesper_venus_orbiter"
+
+
+@pytest.fixture
+def served(tmp_path):
+    """An app as `arcwindow serve --host 0.0.0.0 --token ...` builds it."""
+    model = DashboardModel(Settings.resolve(tmp_path / "c", tmp_path / "d", SAMPLES))
+    policy = AccessPolicy.for_address("0.0.0.0", 8123, token=TOKEN, allow_hosts=["arc.team"])
+    app = create_app(model=model, access=policy)
+    yield app, policy
+    model.shutdown()
+
+
+@pytest.fixture
+def local(tmp_path):
+    """An app as `arcwindow serve` builds it on localhost (no token)."""
+    model = DashboardModel(Settings.resolve(tmp_path / "c", tmp_path / "d", SAMPLES))
+    app = create_app(model=model)
+    yield app, model
+    model.shutdown()
+
+
+def callback_body(app) -> dict:
+    """A real request of the page: the view sync of the default case."""
+    deps = app.server.test_client(use_cookies=False).get(
+        "/_dash-dependencies", headers={TOKEN_HEADER: TOKEN}
+    )
+    assert deps.status_code == 200
+    dep = next(d for d in deps.get_json() if d["output"].startswith("..location-page-url.search"))
+    return {
+        "output": dep["output"],
+        "outputs": [
+            {"id": p.rpartition(".")[0], "property": p.rpartition(".")[2]}
+            for p in dep["output"].strip(".").split("...")
+        ],
+        "inputs": [
+            {**i, "value": VIEW if i["id"] == "location-page-url" else None} for i in dep["inputs"]
+        ],
+        "state": [{**s, "value": None} for s in dep["state"]],
+        "changedPropIds": ["location-page-url.search"],
+    }
+
+
+# ---------------------------------------------------------------------------------------------
+# The token
+
+
+def test_loopback_needs_no_token_and_other_addresses_get_one():
+    assert is_loopback("127.0.0.1") and is_loopback("::1") and is_loopback("localhost")
+    assert not is_loopback("0.0.0.0") and not is_loopback("192.168.1.20")
+    assert AccessPolicy.for_address("127.0.0.1", 8050).token is None
+    generated = AccessPolicy.for_address("0.0.0.0", 8050).token
+    assert generated and len(generated) >= 40  # 32 random bytes
+    assert AccessPolicy.for_address("0.0.0.0", 8050).token != generated  # fresh each start
+    with pytest.raises(ValueError, match="16"):
+        AccessPolicy.for_address("0.0.0.0", 8050, token="short")
+
+
+def test_without_the_token_only_a_page_that_asks_for_it(served):
+    app, _ = served
+    client = app.server.test_client()
+    page = client.get("/", headers={"Accept": "text/html"})
+    assert page.status_code == 401
+    text = page.get_data(as_text=True)
+    assert 'name="token"' in text and "_dash-config" not in text and "arcwindow" in text
+    for path in ("/_dash-layout", "/_dash-dependencies", "/survey/", "/download/grid.csv"):
+        assert client.get(path).status_code == 401, path
+    assert client.get("/", query_string={"token": "wrong-token-wrong-token"}).status_code == 401
+
+
+def test_the_shared_link_sets_a_cookie_and_drops_the_token_from_the_address(served):
+    app, policy = served
+    client = app.server.test_client()
+    first = client.get(f"/{VIEW}&token={TOKEN}")
+    assert first.status_code == 303
+    assert first.headers["Location"] == f"/{VIEW}"  # the view kept, the token gone
+    cookie = first.headers["Set-Cookie"]
+    assert cookie.startswith(f"{policy.cookie_name}=") and "HttpOnly" in cookie
+    assert "SameSite=Lax" in cookie
+    assert client.get("/").status_code == 200  # the cookie carries it from now on
+    assert client.get("/_dash-layout").status_code == 200
+
+
+def test_the_token_page_form_sets_the_cookie_and_returns_only_to_this_server(served):
+    app, _ = served
+    client = app.server.test_client()
+    wrong = client.post("/access", data={"token": "not-it-not-it-not-it", "next": "/"})
+    assert wrong.status_code == 401 and "not this session" in wrong.get_data(as_text=True)
+    for target, expected in (
+        ("/survey/?results=x", "/survey/?results=x"),
+        ("//evil.example/", "/"),
+        ("https://evil.example/", "/"),
+    ):
+        answer = app.server.test_client().post("/access", data={"token": TOKEN, "next": target})
+        assert answer.status_code == 303 and answer.headers["Location"] == expected
+    answer = client.post("/access", data={"token": TOKEN, "next": "/"})
+    assert client.get("/").status_code == 200
+
+
+def test_writes_need_the_token_too(served):
+    app, _ = served
+    body = callback_body(app)
+    client = app.server.test_client(use_cookies=False)
+    assert client.post("/_dash-update-component", json=body).status_code == 401
+    assert client.post("/survey-open?results=a&target=b").status_code == 401
+    granted = client.post("/_dash-update-component", json=body, headers={TOKEN_HEADER: TOKEN})
+    assert granted.status_code == 200
+
+
+# ---------------------------------------------------------------------------------------------
+# Host, origin, framing and other headers
+
+
+@pytest.mark.parametrize(
+    ("host", "status"),
+    [
+        ("localhost:8050", 200),
+        ("127.0.0.1:8050", 200),
+        ("[::1]:8050", 200),
+        ("evil.example", 400),
+        ("evil.example:8050", 400),
+        ("localhost.evil.example", 400),
+    ],
+)
+def test_foreign_host_is_refused_even_on_localhost(local, host, status):
+    app, _ = local
+    answer = app.server.test_client().get("/", headers={"Host": host})
+    assert answer.status_code == status
+    if status == 400:
+        assert "_dash-config" not in answer.get_data(as_text=True)
+
+
+def test_names_the_team_uses_are_accepted(served):
+    app, _ = served
+    headers = {"Host": "arc.team:8123", TOKEN_HEADER: TOKEN}
+    assert app.server.test_client().get("/", headers=headers).status_code == 200
+    headers["Host"] = "192.168.4.7:8123"  # an address, not a name: no rebinding possible
+    assert app.server.test_client().get("/", headers=headers).status_code == 200
+
+
+def test_a_write_from_another_site_is_refused_even_on_localhost(local):
+    app, _ = local
+    body = callback_body(app)
+    client = app.server.test_client()
+    for origin in ("http://evil.example", "null"):
+        answer = client.post("/_dash-update-component", json=body, headers={"Origin": origin})
+        assert answer.status_code == 403, origin
+    answer = client.post(
+        "/_dash-update-component", json=body, headers={"Referer": "http://evil.example/x"}
+    )
+    assert answer.status_code == 403
+    same = client.post("/_dash-update-component", json=body, headers={"Origin": "http://localhost"})
+    assert same.status_code == 200
+
+
+@pytest.mark.parametrize(
+    "path", ["/", "/_dash-layout", "/survey/", "/no-such-page", "/assets/arcwindow.css"]
+)
+def test_framing_is_refused_and_security_headers_are_on_every_answer(local, path):
+    app, _ = local
+    answer = app.server.test_client().get(path)
+    assert answer.headers["X-Frame-Options"] == "DENY"
+    assert "frame-ancestors 'none'" in answer.headers["Content-Security-Policy"]
+    for name, value in SECURITY_HEADERS.items():
+        assert answer.headers[name] == value
+
+
+def test_request_bodies_over_the_limit_are_refused(local):
+    app, _ = local
+    client = app.server.test_client()
+    big = b"{" + b" " * (MAX_REQUEST_BODY_BYTES + 1) + b"}"
+    answer = client.post(
+        "/_dash-update-component", data=big, headers={"Content-Type": "application/json"}
+    )
+    assert answer.status_code == 413
+    assert client.get("/").status_code == 200  # and the server goes on serving
+
+
+def test_survey_open_changes_state_only_by_post(local, tmp_path):
+    """A GET of the old "open" address is now only the page (nothing stored, no redirect into
+    a new case); the POST of the survey table's form does the work."""
+    from small_survey import write_small_survey
+
+    app, model = local
+    write_small_survey(model.settings.surveys_dir / "s.parquet", targets=2)
+    target = pd.read_parquet(model.settings.surveys_dir / "s.parquet")["target"].iloc[0]
+    client = app.server.test_client()
+    uploads = model.settings.uploads_dir
+    read = client.get(f"/survey-open?results=s&target={target}")
+    assert read.status_code == 200 and "Location" not in read.headers
+    assert not uploads.exists() or not list(uploads.iterdir())
+    opened = client.post(f"/survey-open?results=s&target={target}")
+    assert opened.status_code == 302 and opened.headers["Location"].startswith("/?case=upload-")
+    assert len(list(uploads.glob("upload-*.toml"))) == 1
+    unknown = client.post("/survey-open?results=s&target=nobody")
+    assert unknown.status_code == 302 and "error=" in unknown.headers["Location"]
+
+
+def test_survey_table_opens_targets_with_a_form_post(tmp_path):
+    from app.dashboard.survey_page import OPEN_PATH, table_children
+    from app.dashboard.surveys import SurveyTable
+
+    frame = pd.DataFrame(
+        [
+            {
+                "rank": 1,
+                "target": "Amberly",
+                "status": "within_limits",
+                "within_limits": True,
+                "departure_jd_tdb": 2463000.5,
+                "reason": "",
+            }
+        ]
+    )
+    table = SurveyTable("s", frame, "base", (2031, 2031), "c3_km2_s2", 1, 1, "arcwindow x")
+    form = table_children(table)[0].children[1].children[0].children[-1].children
+    assert form.method == "post" and form.action.startswith(OPEN_PATH + "?results=s")
+
+
+# ---------------------------------------------------------------------------------------------
+# Downloads streamed from files
+
+
+def test_grid_download_streams_a_verified_file_with_the_cli_header(local, tmp_path):
+    app, _ = local
+    client = DashClient(
+        _test_client_transport(app), app.server.test_client().get("/_dash-dependencies").get_json()
+    )
+    http = app.server.test_client()
+    waiting = http.get(f"/download/check/grid.csv{VIEW}")
+    assert waiting.status_code == 409 and not waiting.get_json()["ok"]
+    assert client.open_page(VIEW) == [200, 200, 200]
+    search = client.values["location-page-url.search"]
+    ready = http.get(f"/download/check/grid.csv{search}")
+    assert ready.status_code == 200 and ready.get_json() == {"ok": True, "message": ""}
+    answer = http.get(f"/download/grid.csv{search}")
+    assert answer.status_code == 200 and answer.is_streamed
+    assert answer.headers["Content-Disposition"].startswith("attachment; filename=Vesper")
+    text = answer.get_data(as_text=True)
+    assert text.startswith("# case_title: Vesper Venus orbiter")
+    import io
+
+    from solver.files.export import GRID_COLUMNS
+
+    assert list(pd.read_csv(io.StringIO(text), comment="#", nrows=3).columns) == list(GRID_COLUMNS)
+    exported = list((tmp_path / "c" / "exports").glob("*.csv"))
+    assert len(exported) == 1 and exported[0].read_text() == text
+    verify_checksum(exported[0])
+    parquet = http.get(f"/download/grid.parquet{search}")
+    assert parquet.status_code == 200 and parquet.data[:4] == b"PAR1"
+    assert http.get(f"/download/grid.xlsx{search}").status_code == 404
+    assert http.get("/download/grid.csv?case=../../etc/passwd").status_code == 400
+
+
+def test_grid_button_is_no_longer_built_inside_a_callback(local):
+    app, _ = local
+    deps = app.server.test_client().get("/_dash-dependencies").get_json()
+    server_side = [d for d in deps if not d.get("clientside_function")]
+    for dep in server_side:
+        assert "button-download-grid-csv" not in str(dep["inputs"])
+
+
+# ---------------------------------------------------------------------------------------------
+# The budget of one request
+
+
+WORST_LINK = (
+    "?case=vesper_venus_orbiter&dep=1800-01-01~2199-06-01&arr=1800-01-02~2199-12-31"
+    "&dstep=0.000695&astep=0.000695&revs=20"
+)
+
+
+def test_worst_link_is_refused_before_anything_is_allocated(local):
+    """The size check counts the dates by arithmetic. It used to build both date axes first: a
+    link like this one (210 million dates per axis) cost 3.4 GB before it was refused."""
+    _, model = local
+    tracemalloc.start()
+    try:
+        _, case, notes = model.view_from_url(WORST_LINK)
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert any("cell-arcs" in note for note in notes), notes
+    assert peak < 20e6, f"{peak / 1e6:.0f} MB traced"
+    assert case.departure_step_days == 1.0  # the case file's own settings, shown instead
+
+
+def test_size_check_counts_match_the_axes():
+    from hypothesis import given, settings
+    from hypothesis import strategies as st
+
+    from app.samples import load
+    from solver.window.grid import grid_axes
+
+    base = load("vesper_venus_orbiter")
+
+    @settings(max_examples=60, deadline=None)
+    @given(
+        st.floats(min_value=0.05, max_value=30.0),
+        st.floats(min_value=0.05, max_value=30.0),
+        st.integers(min_value=0, max_value=2),
+    )
+    def check(dstep, astep, revs):
+        case = base.with_changes(
+            **{
+                "window.departure_step_days": dstep,
+                "window.arrival_step_days": astep,
+                "transfer.max_revolutions": revs,
+            }
+        )
+        dep, arr = grid_axes(case)
+        assert check_grid_size(case, 10**12) == (len(dep), len(arr), 2 * revs + 1)
+
+    check()
+
+
+def test_request_budget_sets_the_grid_cap(monkeypatch):
+    monkeypatch.delenv(ENV_MAX_CELL_ARCS, raising=False)
+    budget = request_budget("1GiB")
+    assert budget.max_cell_arcs == 2**30 // REQUEST_BYTES_PER_CELL_ARC
+    monkeypatch.setenv(ENV_MAX_CELL_ARCS, "1000")  # an operator's own smaller cap still holds
+    assert request_budget("1GiB").max_cell_arcs == 1000
+
+
+def test_serve_help_states_the_budget_and_the_token():
+    text = subprocess.run(
+        [sys.executable, "-m", "app.cli", "serve", "--help"],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        check=True,
+    ).stdout
+    flat = " ".join(text.split())
+    for phrase in ("--request-budget", "1GiB", "access token", "--token", "--allow-host", "1 MiB"):
+        assert phrase in flat, phrase
