@@ -4,7 +4,7 @@
 
 * ``state``: the view state and its URL query;
 * ``cases``: sample and uploaded cases; ``jobs``: grids in memory and background jobs;
-  ``shortlist``: the shared shortlist file; ``exports``: downloads;
+  ``shortlist``: the shared shortlist store (SQLite); ``exports``: downloads;
 * ``prepare``: solver results to display arrays; ``figures``: pure figure builders;
   ``theme``: colours and fonts;
 * ``model``: the above put together for the callbacks; ``layout``; ``callbacks``;
@@ -80,6 +80,8 @@ def create_app(
     callbacks.register(app, model)
     downloads.register(app, model)
     app.server.config["ARCWINDOW_MODEL"] = model
+    # What the data folder could not use (a store kept aside, entries refused): `serve` prints it.
+    app.server.config["ARCWINDOW_STARTUP_NOTES"] = model.shortlist.problems()
     # The survey page: a second Dash app at /survey/ on the same server.
     create_survey_app(app.server, SurveyShelf(model.settings.surveys_dir, model.catalogue))
     return app
