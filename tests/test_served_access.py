@@ -367,3 +367,78 @@ def test_serve_help_states_the_budget_and_the_token():
     flat = " ".join(text.split())
     for phrase in ("--request-budget", "1GiB", "access token", "--token", "--allow-host", "1 MiB"):
         assert phrase in flat, phrase
+
+
+# ---------------------------------------------------------------------------------------------
+# Text from a case in figures
+
+
+MARKUP = "<a href='https://evil.example'>Ka</a>"
+
+
+def test_names_from_a_case_show_as_text_in_figures():
+    """Plotly reads links and other tags in titles, legends and hover labels; a body named with
+    markup must show those characters, not a link."""
+    from dataclasses import replace
+
+    from app.dashboard.figures import arc_view_figure, window_map_figure
+    from app.dashboard.prepare import arc_scene, map_data
+    from solver.window.case import parse_case
+    from solver.window.case_bodies import CaseBodies
+    from solver.window.cell import solve_cell
+    from solver.window.grid import compute_window
+
+    text = (SAMPLES / "kestrel_relay_leo.toml").read_text()
+    text = text.replace('"Kestrel-A"', f'"{MARKUP}"')
+    case = parse_case(text)
+    arcs = solve_cell(case, case.departure_start_jd_tdb, case.departure_start_jd_tdb + 0.08)
+    figure = arc_view_figure(arc_scene(case, arcs[0], CaseBodies.of(case)))
+    shown = figure.to_json()
+    assert "&lt;a href='https://evil.example'&gt;Ka&lt;/a&gt;" in figure.layout.title.text
+    assert "<a href" not in shown
+    small = case.with_changes(
+        **{"window.departure_step_days": 0.05, "window.arrival_step_days": 0.05}
+    )
+    data = replace(map_data(compute_window(small), "dv_total_km_s", "best"), title=MARKUP)
+    assert window_map_figure(data).layout.title.text.startswith("&lt;a href=")
+
+
+def test_a_live_server_with_a_token_asks_for_it(tmp_path):
+    """`arcwindow serve --token` (here on loopback, where a token is optional): the printed link
+    carries the token; without it only the token page answers."""
+    import socket
+    import time
+    import urllib.error
+    import urllib.request
+
+    with socket.socket() as probe:
+        probe.bind(("127.0.0.1", 0))
+        port = probe.getsockname()[1]
+    command = [sys.executable, "-m", "app.cli", "serve", "--port", str(port), "--token", TOKEN]
+    command += ["--cache-dir", str(tmp_path / "c"), "--data-dir", str(tmp_path / "d")]
+    log = tmp_path / "serve.log"
+    with open(log, "w") as out:
+        server = subprocess.Popen(command, cwd=ROOT, stdout=out, stderr=subprocess.STDOUT)
+    try:
+        base = f"http://127.0.0.1:{port}/"
+        deadline = time.monotonic() + 60
+        while f"token={TOKEN}" not in log.read_text():
+            assert server.poll() is None and time.monotonic() < deadline, log.read_text()
+            time.sleep(0.1)
+        while True:
+            try:
+                urllib.request.urlopen(base, timeout=5)
+            except urllib.error.HTTPError as exc:
+                assert exc.code == 401 and 'name="token"' in exc.read().decode()
+                break
+            except OSError:
+                assert server.poll() is None and time.monotonic() < deadline, log.read_text()
+                time.sleep(0.1)
+        request = urllib.request.Request(base + "_dash-layout", headers={TOKEN_HEADER: TOKEN})
+        with urllib.request.urlopen(request, timeout=10) as answer:
+            assert answer.status == 200 and answer.headers["X-Frame-Options"] == "DENY"
+        printed = log.read_text()
+        assert f"{base}?token={TOKEN}" in printed and "request budget 1 GiB" in printed
+    finally:
+        server.terminate()
+        server.wait(10)

@@ -49,6 +49,8 @@ SECURITY_HEADERS = {
     "Referrer-Policy": "no-referrer",
 }
 _SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
+# Requests of scripts and of the page's own code get a plain 401; pages get the token form.
+_API_PREFIXES = ("/_dash-", "/_reload-hash", "/_favicon", "/assets/", "/download/")
 _LOOPBACK_NAMES = frozenset({"localhost", "localhost.localdomain", "ip6-localhost"})
 
 
@@ -173,7 +175,7 @@ def install(server: Flask, policy: AccessPolicy) -> None:
         supplied = request.headers.get(TOKEN_HEADER) or request.cookies.get(policy.cookie_name)
         if policy.token_matches(supplied):
             return None
-        if request.method == "GET" and request.accept_mimetypes.accept_html:
+        if request.method == "GET" and not request.path.startswith(_API_PREFIXES):
             return _token_page(request.full_path.rstrip("?"), status=401)
         return _plain("This arcwindow session needs its access token.", 401)
 
