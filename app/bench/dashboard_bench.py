@@ -460,4 +460,12 @@ def run(size: str = "full") -> list[BenchLine]:
         lines += _viewer_lines(
             folder / "viewers", LOAD_SECONDS_QUICK if quick else LOAD_SECONDS_FULL
         )
+        lines += _crowd_lines(folder / "crowd", size)
     return lines
+
+
+def _crowd_lines(folder: Path, size: str) -> list[BenchLine]:
+    """50 viewers for 60 s: errors, p95 click and page load, server memory (crowd_bench)."""
+    from app.bench.crowd_bench import crowd_lines
+
+    return crowd_lines(folder, size)
