@@ -87,7 +87,7 @@ def test_earth_is_emb_minus_moon_share():
 
 def test_earth_split_matters_against_epv00():
     # epv00 models the Earth itself: our Earth is within its 13.4 km accuracy while the EMB is
-    # thousands of km away (the EMB-Earth offset reaches ~4700 km [REFERENCES.md 2.3]).
+    # thousands of km away (the EMB-Earth offset reaches ~4700 km [docs/references.md 2.3]).
     r_ref, _ = _builtin("earth", JD_1900_2100)
     r_earth, _ = states("earth", JD_1900_2100, central="ssb")
     r_emb, _ = states("emb", JD_1900_2100, central="ssb")

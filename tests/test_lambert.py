@@ -279,7 +279,7 @@ def test_sweep_branches_ordered_by_semi_major_axis(sweep):
 # ---------------------------------------------------------------------------------------------
 # Multi-revolution counts: 2N + 1 arcs once the TOF allows N revolutions
 # [FOUND: abstract of Ochoa & Prussing, "Multiple Revolution Solutions to Lambert's Problem";
-#  also Zhang, Mortari & Zhou, JGCD 33(6), 2010] (REFERENCES.md 1.5)
+#  also Zhang, Mortari & Zhou, JGCD 33(6), 2010] (docs/references.md 1.5)
 
 
 @pytest.mark.parametrize("revs", [1, 2, 3, 5])

@@ -48,7 +48,7 @@ def test_mean_elements_within_stated_errors(row):
 
 def test_earth_from_mean_is_emb_within_bound():
     # The table is for the EM barycentre; "earth" from it is off by the EMB-Earth offset
-    # (<= ~4700 km, REFERENCES.md 2.3), still inside the 6000 km nominal bound in RMS.
+    # (<= ~4700 km, docs/references.md 2.3), still inside the 6000 km nominal bound in RMS.
     r_mean, _ = states("earth", JD, source="mean")
     r_emb, _ = states("emb", JD, source="mean")
     np.testing.assert_array_equal(r_mean, r_emb)
