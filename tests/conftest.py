@@ -30,3 +30,19 @@ def pytest_runtest_makereport(item, call):
 settings.register_profile("repeatable", derandomize=True, print_blob=True)
 settings.register_profile("explore", derandomize=False, print_blob=True)
 settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "repeatable"))
+
+
+# Fast tests first, then slow ones, then the browser tests: a quick failure is reported quickly.
+# Code checks (lint, format, types) come first of all.
+def _stage(item: pytest.Item) -> int:
+    if item.path.name == "test_code_quality.py":
+        return 0
+    if item.get_closest_marker("browser"):
+        return 3
+    if item.get_closest_marker("slow"):
+        return 2
+    return 1
+
+
+def pytest_collection_modifyitems(config: pytest.Config, items: list[pytest.Item]) -> None:
+    items.sort(key=_stage)  # stable: each stage keeps the files' own order
