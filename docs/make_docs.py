@@ -2,10 +2,14 @@
 
 * ``docs/case-format.md`` from the table of case settings (``solver.window.settings.SETTINGS``)
   and the element-body fields;
-* ``docs/cli.md`` from the command line's own ``--help`` texts.
+* ``docs/cli.md`` from the command line's own ``--help`` texts;
+* ``docs/validation.md`` (with ``--validation``) from what the tests measured against outside
+  sources in their last whole run (``test-artifacts/validation.json``, written by the tests'
+  ``validation`` fixture).
 
 Run ``python docs/make_docs.py`` after changing a setting or a command; ``tests/test_docs.py``
-fails while a page is out of date.
+fails while a page is out of date. Run the whole test suite, then ``python docs/make_docs.py
+--validation``, before a release.
 """
 
 from __future__ import annotations
@@ -141,8 +145,50 @@ def cli() -> str:
 
 PAGES = {"case-format.md": case_format, "cli.md": cli}
 
+VALIDATION_RECORD = ROOT / "test-artifacts" / "validation.json"
+
+
+def _number(value: float) -> str:
+    return f"{value:.3g}" if value and (abs(value) < 1e-3 or abs(value) >= 1e4) else f"{value:.4g}"
+
+
+def validation(record: dict) -> str:
+    """The validation report: each check against an outside source and what it measured."""
+    checks = sorted(record["checks"], key=lambda row: (row["test"].split("::")[0], row["check"]))
+    lines = [
+        "# Validation",
+        "",
+        "<!-- Written by `python docs/make_docs.py --validation` from the measurements of the",
+        "     last whole test run (test-artifacts/validation.json); never edited by hand. -->",
+        "",
+        f"Engine {record['engine_version']}. Every row is a check that passed: the quantity",
+        "compared, the outside source (sections refer to docs/references.md), how far that source",
+        "was verified, the agreement measured and the tolerance the test allows. Tags: FOUND, read",
+        "in the source; SECONDARY, a transcription; MEMORY, recalled; COMPUTED, recomputed",
+        "independently.",
+        "",
+        "| check | source | tag | measured | tolerance | test |",
+        "| --- | --- | --- | --- | --- | --- |",
+    ]
+    for row in checks:
+        unit = f" {row['unit']}" if row["unit"] else ""
+        note = f" ({row['note']})" if row["note"] else ""
+        lines.append(
+            f"| {_cell(row['check'])}{_cell(note)} | {_cell(row['source'])} | {_cell(row['tag'])}"
+            f" | {_number(row['measured'])}{_cell(unit)} | {_number(row['tolerance'])}{_cell(unit)}"
+            f" | `{row['test'].split('::')[0]}` |"
+        )
+    return "\n".join(lines) + "\n"
+
 
 def main() -> int:
+    if "--validation" in sys.argv[1:]:
+        import json
+
+        record = json.loads(VALIDATION_RECORD.read_text())
+        (DOCS / "validation.md").write_text(validation(record))
+        print("wrote docs/validation.md")
+        return 0
     for name, make in PAGES.items():
         with contextlib.redirect_stdout(io.StringIO()):
             text = make()
