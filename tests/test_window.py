@@ -159,7 +159,7 @@ def test_venus_best_c3_dates_near_flown_missions(reference_data):
 def test_curtis_earth_mars_example_with_mean_elements():
     """Curtis, Example 8.8 (edition-dependent numbering) [MEMORY]: Earth 1996-11-07 to Mars
     1997-09-12, v∞ 3.1651 km/s leaving and 2.8852 km/s arriving with the book's mean elements;
-    with the Standish 1800-2050 set we use [COMPUTED in REFERENCES.md 1.2] 3.16566 and 2.88519.
+    with the Standish 1800-2050 set we use [COMPUTED in docs/references.md 1.2] 3.16566 and 2.88519.
     Tolerance 1e-3 km/s: the two element sets differ by about 0.5 m/s here."""
     case = parse_case("""
 [case]
@@ -337,7 +337,7 @@ def test_metrics_physics_spot_checks(vesper):
     assert arc.metrics["entry_speed_km_s"] == pytest.approx(
         math.sqrt(va**2 + 2 * venus.gm_km3_s2 / (venus.radius_km + 125.0)), rel=1e-12
     )
-    # DLA of an asymptote along the ecliptic pole is 90° - ε (REFERENCES.md 6 [MEMORY])
+    # DLA of an asymptote along the ecliptic pole is 90° - ε (docs/references.md 6 [MEMORY])
     from solver.window.case_bodies import CaseBodies
     from solver.window.metrics import arc_metrics
 

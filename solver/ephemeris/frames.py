@@ -3,7 +3,7 @@
 * ``"icrf"``: the frame of the JPL DE ephemerides (ICRF axes, which agree with the mean equator
   and equinox of J2000, EME2000, to about 0.02 arcsec). DLA and RLA are measured here.
 * ``"ecliptic"``: the mean ecliptic and equinox of J2000, obtained from ICRF by a rotation of
-  the J2000 obliquity, 84381.406 arcsec (IAU 2006, REFERENCES.md 4.4 [FOUND]), about +x. The
+  the J2000 obliquity, 84381.406 arcsec (IAU 2006, docs/references.md 4.4 [FOUND]), about +x. The
   ~0.02 arcsec frame bias between ICRF and EME2000 is neglected (common practice; far below
   anything a two-body design study resolves). Used for pictures and for Sun-centred "prograde".
 * Planet-equator frames (``equator_frame(pole_ra_deg, pole_dec_deg)``): z along the body's north
