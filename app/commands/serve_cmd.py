@@ -14,7 +14,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
             "the same shortlist. On any address other than loopback (--host) every request needs "
             "an access token: one is generated at start and printed with the link to share "
             "(or give your own with --token). Each request may solve a grid of at most "
-            "--request-budget bytes (default 1GiB, about 7 million cell-arcs) and send a body "
+            "--request-budget bytes (default 1GiB, about 3.9 million cell-arcs) and send a body "
             "of at most 1 MiB. See docs/threat-model.md."
         ),
     )
