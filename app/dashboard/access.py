@@ -17,7 +17,9 @@ so it covers every route: the Dash pages and callbacks, the survey page, downloa
   site's page cannot make a viewer's browser change anything, even on localhost.
 * **Headers** on every answer: ``X-Frame-Options: DENY`` and ``Content-Security-Policy:
   frame-ancestors 'none'`` (no other site may frame the page), ``X-Content-Type-Options:
-  nosniff``, ``Referrer-Policy: no-referrer``.
+  nosniff``, ``Referrer-Policy: same-origin`` (no address of this server, which may carry a view
+  or, once, the token, is sent to another site; "no-referrer" would make browsers send
+  ``Origin: null`` with the token form's POST, which the origin check refuses).
 * **Body size**: request bodies above :data:`MAX_REQUEST_BODY_BYTES` are refused with 413.
 """
 
@@ -46,7 +48,7 @@ SECURITY_HEADERS = {
     "X-Frame-Options": "DENY",
     "Content-Security-Policy": "frame-ancestors 'none'",
     "X-Content-Type-Options": "nosniff",
-    "Referrer-Policy": "no-referrer",
+    "Referrer-Policy": "same-origin",
 }
 _SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
 # Requests of scripts and of the page's own code get a plain 401; pages get the token form.

@@ -135,11 +135,15 @@ def register(app: Dash, model: DashboardModel) -> GridExports:
             max_age=0,
         )
 
-    # The page's "grid CSV" button: check, then let the browser stream the file to disk.
+    # The page's "grid CSV" button: check, then let the browser stream the file to disk. The
+    # message goes into the downloads' message line directly: a second callback output on it
+    # (allow_duplicate) stopped the page's grid poll in Dash 4, so the callback's own output
+    # is the button's tooltip, as the page's PNG buttons do.
     app.clientside_callback(
         """async function(clicks) {
             if (!clicks) { return window.dash_clientside.no_update; }
             const query = window.location.search || "";
+            const line = document.getElementById("div-message-download");
             let info;
             try {
                 const answer = await fetch("/download/check/grid.csv" + query,
@@ -148,16 +152,18 @@ def register(app: Dash, model: DashboardModel) -> GridExports:
             } catch (error) {
                 info = {ok: false, message: "The download could not start (" + error + ")."};
             }
-            if (!info.ok) { return info.message; }
-            const link = document.createElement("a");
-            link.href = "/download/grid.csv" + query;
-            link.download = "";
-            document.body.appendChild(link);
-            link.click();
-            link.remove();
-            return "";
+            if (line) { line.textContent = info.ok ? "" : info.message; }
+            if (info.ok) {
+                const link = document.createElement("a");
+                link.href = "/download/grid.csv" + query;
+                link.download = "";
+                document.body.appendChild(link);
+                link.click();
+                link.remove();
+            }
+            return "Every arc of the grid as CSV (the format of arcwindow grid --out)";
         }""",
-        Output("div-message-download", "children", allow_duplicate=True),
+        Output("button-download-grid-csv", "title"),
         Input("button-download-grid-csv", "n_clicks"),
         prevent_initial_call=True,
     )
