@@ -438,7 +438,7 @@ def arc_scene(case: Case, arc: Arc, bodies: CaseBodies | None = None) -> ArcScen
     bodies = bodies or CaseBodies.of(case)
     frame, plane_label, scale, unit = _display_frame(bodies)
     if arc.ok:
-        _, r_arc = sample_arc(arc.r1_km, arc.v1_km_s, arc.tof_days * SECONDS_PER_DAY, arc.mu_km3_s2)
+        _, r_arc = sample_arc(arc.r1_km, arc.v1_km_s, arc.flight_s, arc.mu_km3_s2)
         arc_xyz = rotate(r_arc, ICRF, frame) / scale
     else:
         arc_xyz = np.empty((0, 3))
@@ -501,7 +501,7 @@ def family_data(case: Case, arcs: list[Arc], selected: Arc, bodies: CaseBodies |
             arc.r1_km,
             arc.v1_km_s,
             arc.r2_km,
-            arc.tof_days * SECONDS_PER_DAY,
+            arc.flight_s,
             arc.mu_km3_s2,
             arc.revolutions,
         )

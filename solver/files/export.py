@@ -220,7 +220,7 @@ def arc_oem_text(
             f"{arc.revolutions} rev {arc.branch}",
             f"a solved arc (this one: {describe(arc.reason)})",
         )
-    tof_s = arc.tof_days * 86400.0
+    tof_s = arc.flight_s  # the TDB interval the epochs below are counted in
     t_s, _ = sample_arc(
         arc.r1_km,
         arc.v1_km_s,

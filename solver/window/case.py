@@ -57,7 +57,7 @@ from __future__ import annotations
 
 import math
 import tomllib
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -153,6 +153,39 @@ class Case:
             else:
                 raw.setdefault(section, {})[key] = value
         return case_from_dict(raw, source_path=self.source_path)
+
+
+def with_window(
+    case: Case,
+    departure: tuple[str, str, float],
+    arrival: tuple[str, str, float],
+) -> Case:
+    """A copy of a validated case with other date windows, each ``(start UTC, end UTC, step
+    days)``. Only the dates are parsed again: for windows inside the case's own (refinement's
+    nested grids), where nothing else can become invalid."""
+    (d0, d1, d_step), (a0, a1, a_step) = departure, arrival
+    jd = {
+        key: float(utc_to_jd_tdb(text, field=f"window.{key}"))
+        for key, text in (
+            ("departure_start", d0),
+            ("departure_end", d1),
+            ("arrival_start", a0),
+            ("arrival_end", a1),
+        )
+    }
+    return replace(
+        case,
+        departure_start=d0,
+        departure_end=d1,
+        departure_step_days=float(d_step),
+        arrival_start=a0,
+        arrival_end=a1,
+        arrival_step_days=float(a_step),
+        departure_start_jd_tdb=jd["departure_start"],
+        departure_end_jd_tdb=jd["departure_end"],
+        arrival_start_jd_tdb=jd["arrival_start"],
+        arrival_end_jd_tdb=jd["arrival_end"],
+    )
 
 
 # ---------------------------------------------------------------------------------------------
@@ -506,4 +539,5 @@ __all__ = [
     "load_case",
     "parse_case",
     "to_toml_dict",
+    "with_window",
 ]

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import math
 import os
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -18,6 +17,7 @@ from solver.reasons import Reason
 from solver.time_units import SECONDS_PER_DAY
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies, body_states, transfer_angle_deg
+from solver.window.dates import DateAxis, axis_count, date_axis, elapsed_days_between
 from solver.window.limits import within_limits
 from solver.window.metrics import METRICS, arc_metrics, ranking_values
 from solver.window.provenance import provenance, window_cache_key
@@ -169,17 +169,24 @@ class WindowGrid:
         return cls(case=case, arcs=arcs, provenance=dict(provenance), from_cache=True, **plain)
 
 
-def grid_axes(case: Case) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-    """Departure and arrival epochs (JD TDB): start, start + step, ... up to the end date."""
-
-    def axis(start, end, step):
-        n = math.floor((end - start) / step + 1e-9) + 1
-        return start + step * np.arange(n)
-
+def grid_dates(case: Case) -> tuple[DateAxis, DateAxis]:
+    """Departure and arrival dates of the case's grid (the rule: :mod:`solver.window.dates`)."""
     return (
-        axis(case.departure_start_jd_tdb, case.departure_end_jd_tdb, case.departure_step_days),
-        axis(case.arrival_start_jd_tdb, case.arrival_end_jd_tdb, case.arrival_step_days),
+        date_axis(
+            case.departure_start,
+            case.departure_end,
+            case.departure_step_days,
+            "window.departure",
+        ),
+        date_axis(case.arrival_start, case.arrival_end, case.arrival_step_days, "window.arrival"),
     )
+
+
+def grid_axes(case: Case) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Departure and arrival epochs (JD TDB): start, start + step, ... up to the end date,
+    counted in UTC (see :mod:`solver.window.dates`)."""
+    departures, arrivals = grid_dates(case)
+    return departures.jd_tdb, arrivals.jd_tdb
 
 
 def max_cell_arcs(value: int | None = None) -> int:
@@ -197,18 +204,23 @@ def max_cell_arcs(value: int | None = None) -> int:
 
 def check_grid_size(case: Case, cap: int | None = None) -> tuple[int, int, int]:
     """(n_dep, n_arr, slots) of the case's grid; InputError if it exceeds the cap."""
-    dep, arr = grid_axes(case)
+    n_dep = axis_count(
+        case.departure_start, case.departure_end, case.departure_step_days, "window.departure"
+    )
+    n_arr = axis_count(
+        case.arrival_start, case.arrival_end, case.arrival_step_days, "window.arrival"
+    )
     slots = 2 * case.max_revolutions + 1
-    total = len(dep) * len(arr) * slots
+    total = n_dep * n_arr * slots
     limit = max_cell_arcs(cap)
     if total > limit:
         raise InputError(
             "window",
-            f"{len(dep)} departure x {len(arr)} arrival dates x {slots} arcs = {total:,}",
+            f"{n_dep} departure x {n_arr} arrival dates x {slots} arcs = {total:,}",
             f"at most {limit:,} cell-arcs (raise the step days, narrow the dates, lower "
             f"max_revolutions, or set {ENV_MAX_CELL_ARCS})",
         )
-    return len(dep), len(arr), slots
+    return n_dep, n_arr, slots
 
 
 def compute_window(
@@ -251,11 +263,15 @@ def compute_window(
             return WindowGrid.from_arrays(case, hit.arrays, hit.metadata)
 
     bodies = CaseBodies.of(case)
-    dep_jd, arr_jd = grid_axes(case)
+    departures, arrivals = grid_dates(case)
+    dep_jd, arr_jd = departures.jd_tdb, arrivals.jd_tdb
     r_dep, v_dep = body_states(case, bodies, bodies.departure, dep_jd, "window.departure dates")
     r_arr, v_arr = body_states(case, bodies, bodies.target, arr_jd, "window.arrival dates")
 
-    tof_days = arr_jd[None, :] - dep_jd[:, None]
+    # Reported and limited: elapsed time between the UTC instants. Solved: the TDB interval
+    # between the epochs of the positions (they differ by milliseconds; solver.window.dates).
+    tof_days = elapsed_days_between(departures, arrivals)
+    flight_s = (arr_jd[None, :] - dep_jd[:, None]) * SECONDS_PER_DAY
     angle = transfer_angle_deg(
         r_dep[:, None, :], r_arr[None, :, :], bodies.pole_icrf, case.retrograde
     )
@@ -268,7 +284,7 @@ def compute_window(
     rows = max(1, _ROWS_PER_CHUNK_TARGET_ARCS // max(1, n_arr * slots))
     for start in range(0, n_dep, rows):
         sl = slice(start, min(n_dep, start + rows))
-        tof_s = tof_days[sl] * SECONDS_PER_DAY
+        tof_s = flight_s[sl]
         sol = solve_lambert(
             r_dep[sl, None, :],
             r_arr[None, :, :],
@@ -339,5 +355,6 @@ __all__ = [
     "check_grid_size",
     "compute_window",
     "grid_axes",
+    "grid_dates",
     "max_cell_arcs",
 ]

@@ -23,8 +23,9 @@ import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 from scipy.optimize import minimize_scalar
 
+from solver.ephemeris.timescales import round_to_utc_minute
 from solver.errors import InputError
-from solver.time_units import MINUTE_DAYS, round_to_minute_from
+from solver.time_units import MINUTE_DAYS
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, solve_cell
@@ -90,7 +91,7 @@ def _best_arrival(c3_of_arrival, grid_arrival_jd: float, step_days: float) -> fl
         method="bounded",
         options={"xatol": MINUTE_DAYS},
     )
-    arrival = round_to_minute_from(grid_arrival_jd, float(result.x))
+    arrival = round_to_utc_minute(float(result.x))
     return (
         arrival if c3_of_arrival(arrival) <= c3_of_arrival(grid_arrival_jd) else (grid_arrival_jd)
     )
