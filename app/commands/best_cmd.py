@@ -62,11 +62,14 @@ def run(args: argparse.Namespace) -> int:
         "grid_arrival_utc": utc(refined.grid_arc.arrival_jd_tdb),
         "evaluations": refined.evaluations,
         "message": refined.message,
+        "choice": refined.note or f"lowest {refined.metric} within limits",
     }
     if args.json:
         print(json.dumps(report, indent=2))
         return 0
     print(format_arc_report(report))
+    if refined.note:
+        print(f"  note: {refined.note}")
     ref = report["refinement"]
     print(
         f"  refined from the grid cell {ref['grid_departure_utc']} -> {ref['grid_arrival_utc']}"

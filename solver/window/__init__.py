@@ -47,6 +47,8 @@ __all__, __getattr__, __dir__ = lazy_api(
         "grid": [
             "DEFAULT_MAX_CELL_ARCS",
             "ENV_MAX_CELL_ARCS",
+            "TIE_BREAK",
+            "BestChoice",
             "Cancelled",
             "WindowGrid",
             "check_grid_size",
@@ -54,6 +56,8 @@ __all__, __getattr__, __dir__ = lazy_api(
             "grid_axes",
             "grid_dates",
             "max_cell_arcs",
+            "ranks_before",
+            "tie_tolerance",
         ],
         "cell": ["Arc", "select_arc", "solve_cell"],
         "dates": ["DateAxis", "axis_count", "date_axis", "elapsed_days_between", "utc_plus_days"],

@@ -36,7 +36,7 @@ from solver.window.best import slot_arc, slots_of
 from solver.window.case import Case, with_window
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, select_arc, solve_cell
-from solver.window.grid import WindowGrid, compute_window
+from solver.window.grid import WindowGrid, compute_window, ranks_before
 from solver.window.limits import margins
 from solver.window.metrics import METRICS, ranking_values
 
@@ -59,6 +59,7 @@ class RefinedArc:
     improvement: float  # grid value minus refined value, in the metric's unit
     evaluations: int  # cells or single arcs solved
     message: str
+    note: str = ""  # how the grid's best arc was chosen when the metric alone did not decide
 
 
 class _EnoughEvaluations(Exception):
@@ -111,19 +112,22 @@ def refine_best(
                 revolutions,
                 f"0 to {case.max_revolutions} (the case's max_revolutions)",
             )
-    best = grid.best_cell(metric, slots=slots)
-    if best is None:
+    choice = grid.best_choice(metric, slots=slots)
+    if choice is None:
         raise InputError(
             "limits",
             "no arc of the grid within limits",
             "a window or limits that leave at least one arc",
         )
     bodies = CaseBodies.of(case)
-    grid_arc = slot_arc(case, bodies, grid, *best)
+    grid_arc = slot_arc(case, bodies, grid, *choice.index)
     if method == "zoom":
         arc, evaluations, message = _zoom(case, bodies, grid_arc, metric, slots)
     else:
-        arc, evaluations, message = _slsqp(case, bodies, grid_arc, metric)
+        # A metric that is the same for every arc gives SLSQP nothing to descend: it follows
+        # the tie-break that chose the grid arc instead.
+        objective = metric if choice.separates or choice.decided_by is None else choice.decided_by
+        arc, evaluations, message = _slsqp(case, bodies, grid_arc, objective)
     return RefinedArc(
         arc=arc,
         metric=metric,
@@ -131,6 +135,7 @@ def refine_best(
         improvement=_value(grid_arc, metric) - _value(arc, metric),
         evaluations=evaluations,
         message=message,
+        note=choice.note,
     )
 
 
@@ -157,7 +162,7 @@ def _zoom(
         if cell is None:
             continue
         candidate = slot_arc(case, bodies, zoom, *cell)
-        if candidate.within and _value(candidate, metric) < _value(arc, metric):
+        if candidate.within and ranks_before(candidate.metrics, arc.metrics, metric):
             arc = candidate
             dep, arr = _utc(arc.departure_jd_tdb), _utc(arc.arrival_jd_tdb)
     # Report whole UTC minutes when that keeps the arc within limits and no worse than the grid
@@ -172,7 +177,7 @@ def _zoom(
         arc.revolutions,
         arc.branch,
     )
-    if candidate.within and _value(candidate, metric) <= _value(start, metric):
+    if candidate.within and not ranks_before(start.metrics, candidate.metrics, metric):
         arc = candidate
     return arc, cells, f"nested grids down to the minute ({cells} cells)"
 
