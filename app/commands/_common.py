@@ -29,10 +29,58 @@ def add_cache_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--no-cache", action="store_true", help="neither read nor write the cache")
     parser.add_argument(
         "--max-cells",
-        type=int,
+        type=positive_int,
         metavar="N",
         help="refuse grids above N cell-arcs (default: $ARCWINDOW_MAX_CELL_ARCS, else 20,000,000)",
     )
+
+
+def positive_int(text: str) -> int:
+    """argparse type: a whole number >= 1 (``--max-cells -5`` is refused, not obeyed)."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text}' is not a whole number >= 1") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"'{text}' is not accepted; expected a whole number >= 1")
+    return value
+
+
+def add_arc_choice(parser: argparse.ArgumentParser, revs_help: str) -> None:
+    """--revs and --branch, shared by best and arc (check them with :func:`check_arc_choice`)."""
+    parser.add_argument("--revs", type=int, metavar="N", help=revs_help)
+    parser.add_argument(
+        "--branch",
+        choices=["low", "high"],
+        help="branch of an N-revolution arc (with --revs N, N >= 1)",
+    )
+
+
+def check_arc_choice(args: argparse.Namespace, max_revolutions: int) -> None:
+    """--revs within the case's revolutions; --branch only with --revs N >= 1 (it was ignored)."""
+    from solver.errors import InputError
+
+    if args.revs is not None and not 0 <= args.revs <= max_revolutions:
+        raise InputError(
+            "--revs", args.revs, f"0 to {max_revolutions} (the case's transfer.max_revolutions)"
+        )
+    if args.branch is not None and args.revs is None:
+        raise InputError(
+            "--branch",
+            args.branch,
+            "--branch together with --revs N (N >= 1): the branch of an N-revolution arc",
+        )
+    if args.branch is not None and args.revs == 0:
+        raise InputError(
+            "--branch", args.branch, "no --branch with --revs 0 (a single-revolution arc has none)"
+        )
+
+
+def output_file(text: str, field: str, suffixes: tuple[str, ...] | None):
+    """An output file named on the command line, checked and its folder created up front."""
+    from solver.files.paths import prepare_output
+
+    return prepare_output(text, field=field, suffixes=suffixes)
 
 
 def compute_grid(args: argparse.Namespace, case):

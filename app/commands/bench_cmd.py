@@ -10,7 +10,6 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
 
     parser = subparsers.add_parser(
         "bench",
-        help="measure solver and dashboard speed against simple baselines",
         description="Speed figures, each beside a simple baseline measured in the same run.",
     )
     parser.add_argument(

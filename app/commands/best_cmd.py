@@ -6,8 +6,10 @@ import argparse
 
 from app.commands._common import (
     CAUTION,
+    add_arc_choice,
     add_cache_options,
     add_case_argument,
+    check_arc_choice,
     compute_grid,
     metric_choices,
     utc,
@@ -17,7 +19,6 @@ from app.commands._common import (
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "best",
-        help="the best arc within limits, refined to the minute",
         description="Solve the window, take its best arc within limits by a metric, and refine "
         "it over continuous departure and arrival times. " + CAUTION,
     )
@@ -28,8 +29,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         choices=metric_choices(),
         help="what 'best' minimizes (default c3_km2_s2; DLA by its magnitude)",
     )
-    parser.add_argument("--revs", type=int, metavar="N", help="only arcs of N revolutions")
-    parser.add_argument("--branch", choices=["low", "high"], help="branch of an N-revolution arc")
+    add_arc_choice(parser, "only arcs of N revolutions")
     parser.add_argument(
         "--refine",
         default="zoom",
@@ -49,6 +49,7 @@ def run(args: argparse.Namespace) -> int:
     from solver.window.refine import refine_best
 
     case = load(args.case)
+    check_arc_choice(args, case.max_revolutions)
     grid = compute_grid(args, case)
     refined = refine_best(
         case, grid, args.metric, revolutions=args.revs, branch=args.branch, method=args.refine

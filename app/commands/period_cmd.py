@@ -10,7 +10,6 @@ from app.commands._common import CAUTION, add_case_argument, utc
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "period",
-        help="place a launch period of L days to minimize its largest C3",
         description="Place a launch period of L consecutive departure days (and, with a fixed "
         "arrival, the arrival date) to minimize the largest C3 the launch vehicle "
         "must deliver. " + CAUTION,

@@ -8,7 +8,6 @@ import argparse
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "state",
-        help="position (km) and velocity (km/s) of a body at a UTC date",
         description=(
             "Position and velocity of BODY relative to a central body at a UTC date, from the "
             "JPL DE423 ephemeris (default) or the mean-element table."
@@ -51,10 +50,20 @@ def run(args: argparse.Namespace) -> int:
     from solver.ephemeris.element_input import read_element_csv
     from solver.ephemeris.states import states
     from solver.ephemeris.timescales import FUTURE_UTC_NOTE, LAST_LEAP_SECOND_UTC, utc_to_jd_tdb
+    from solver.errors import InputError
 
     registry = default_registry()
     if args.elements_csv:
         registry = registry.with_bodies(read_element_csv(args.elements_csv))
+    if (
+        registry.get(args.body, field="BODY").key
+        == registry.get(args.central, field="--central").key
+    ):
+        raise InputError(
+            "--central",
+            args.central,
+            f"a body other than BODY ({args.body}): a body's state about itself is zero",
+        )
     jd_tdb = float(utc_to_jd_tdb(args.utc, field="UTC"))
     r, v = states(
         args.body,

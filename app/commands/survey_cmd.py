@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from app.commands._common import CAUTION, metric_choices
+from app.commands._common import CAUTION, metric_choices, output_file, positive_int
 
 # Rows of the ranking printed at the end (the file holds every target).
 SHOWN_ROWS = 10
@@ -13,7 +13,6 @@ SHOWN_ROWS = 10
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "survey",
-        help="rank many targets by their best arcs over years (Dask)",
         description="Scan every target of an element CSV over each year of departures with the "
         "window engine (coarse grid, best arc refined), rank the targets by a metric within the "
         "base case's limits, and write one row per target. Runs on a local Dask cluster sized to "
@@ -99,7 +98,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     )
     parser.add_argument(
         "--max-cells",
-        type=int,
+        type=positive_int,
         metavar="N",
         help="refuse target-year grids above N cell-arcs (default: $ARCWINDOW_MAX_CELL_ARCS, "
         "else 20,000,000)",
@@ -130,7 +129,6 @@ def resolve_targets_path(argument: str):
 def run(args: argparse.Namespace) -> int:
     import sys
     import time
-    from pathlib import Path
 
     from app.samples import load
     from solver.ephemeris.element_input import read_element_csv
@@ -139,9 +137,7 @@ def run(args: argparse.Namespace) -> int:
     from solver.survey.scan import DEFAULT_TARGETS_PER_CHUNK, SurveySettings, plan_survey
     from solver.survey.store import chunk_folder
 
-    out = Path(args.out)
-    if out.suffix.lower() != ".parquet":
-        raise InputError("--out", args.out, "a file name ending in .parquet")
+    out = output_file(args.out, "--out", (".parquet",))
     if args.workers is not None and args.workers < 0:
         raise InputError("--workers", args.workers, ">= 0 (0 runs in this process)")
     if args.retries < 0:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import os
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
@@ -316,13 +317,18 @@ def grid_axes(case: Case) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
 def max_cell_arcs(value: int | None = None) -> int:
     """The cell-arc cap: argument, else ``ARCWINDOW_MAX_CELL_ARCS``, else the default."""
     if value is not None:
+        if isinstance(value, bool) or int(value) != value or value < 1:
+            raise InputError("max_cells", value, "a whole number of cell-arcs >= 1")
         return int(value)
     env = os.environ.get(ENV_MAX_CELL_ARCS)
     if env:
         try:
-            return int(float(env))
+            cap = float(env)
         except ValueError:
-            raise InputError(ENV_MAX_CELL_ARCS, env, "a positive integer") from None
+            cap = math.nan
+        if not (math.isfinite(cap) and cap >= 1):
+            raise InputError(ENV_MAX_CELL_ARCS, env, "a whole number of cell-arcs >= 1")
+        return int(cap)
     return DEFAULT_MAX_CELL_ARCS
 
 
