@@ -21,9 +21,9 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument(
         "--frame",
         default="icrf",
-        choices=["icrf", "ecliptic", "equator"],
-        help="axes: icrf (equatorial J2000, default), ecliptic (J2000) or the central body's "
-        "equator",
+        choices=["icrf", "ecliptic", "ecliptic_iau1976", "equator"],
+        help="axes: icrf (equatorial J2000, default), ecliptic (J2000, IAU 2006 obliquity), "
+        "ecliptic_iau1976 (J2000, IAU 1976 obliquity) or the central body's equator",
     )
     parser.add_argument(
         "--source",
@@ -32,9 +32,15 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         help="ephemeris for the Sun, planets and Moon (default: de423)",
     )
     parser.add_argument(
+        "--case",
+        metavar="CASE",
+        help="also know the bodies defined in this case (a TOML file or a sample case name)",
+    )
+    parser.add_argument(
         "--elements-csv",
         metavar="FILE",
-        help="also know the element bodies of this CSV (format: DEVELOPERS.md)",
+        help="also know the element bodies of this CSV (format: DEVELOPERS.md; rows in the "
+        "ecliptic read with the --case's ephemeris.ecliptic, else IAU 2006)",
     )
     parser.add_argument("--json", action="store_true", help="print machine-readable JSON")
     parser.set_defaults(run=run)
@@ -53,8 +59,16 @@ def run(args: argparse.Namespace) -> int:
     from solver.errors import InputError
 
     registry = default_registry()
+    ecliptic = "iau2006"
+    if args.case:
+        from app.samples import load
+
+        case = load(args.case)
+        registry, ecliptic = case.registry(), case.element_ecliptic
     if args.elements_csv:
-        registry = registry.with_bodies(read_element_csv(args.elements_csv))
+        registry = registry.with_bodies(
+            read_element_csv(args.elements_csv, registry=registry, ecliptic=ecliptic)
+        )
     if (
         registry.get(args.body, field="BODY").key
         == registry.get(args.central, field="--central").key
@@ -74,9 +88,10 @@ def run(args: argparse.Namespace) -> int:
         registry=registry,
         field="UTC",
     )
-    body = registry.get(args.body).name
+    entry = registry.get(args.body)
+    body = entry.name
     central = registry.get(args.central).name
-    source = args.source or registry.get(args.body).default_source
+    source = args.source or entry.default_source
     if args.json:
         print(
             json.dumps(
@@ -85,6 +100,7 @@ def run(args: argparse.Namespace) -> int:
                     "central": central,
                     "frame": args.frame,
                     "source": source,
+                    "elements_frame": None if entry.elements is None else entry.elements.frame,
                     "utc": args.utc,
                     "jd_tdb": jd_tdb,
                     "r_km": [float(x) for x in r],
@@ -96,6 +112,8 @@ def run(args: argparse.Namespace) -> int:
         return 0
     r_norm = float(np.linalg.norm(r))
     print(f"{body} relative to {central}, {args.frame} frame, source {source}")
+    if entry.elements is not None:
+        print(f"        {entry.note}")
     print(f"epoch   {args.utc} UTC = JD {jd_tdb:.9f} TDB")
     print(f"r_km    {r[0]:+.6e} {r[1]:+.6e} {r[2]:+.6e}   |r| = {r_norm:.6e} km "
           f"({r_norm / AU_KM:.6f} au)")  # fmt: skip

@@ -148,7 +148,9 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("--first", args.first, ">= 1 target")
     targets_path = resolve_targets_path(args.targets)
     base = load(args.case)
-    targets = list(read_element_csv(targets_path, registry=base.registry()))
+    targets = list(
+        read_element_csv(targets_path, registry=base.registry(), ecliptic=base.element_ecliptic)
+    )
     if args.first is not None:
         targets = targets[: args.first]
     settings = SurveySettings(
