@@ -62,13 +62,17 @@ class OneLineParser(argparse.ArgumentParser):
         self.exit(2, f"{self.prog}: error: {message} (see '{self.prog} --help')\n")
 
 
-def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+ALL = "*"
+
+
+def build_parser(command: str | None = ALL) -> argparse.ArgumentParser:
     """The parser: every subcommand listed, only ``command``'s own options built (its module
-    imported); with ``command`` None, no subcommand module is imported at all."""
+    imported); with ``command`` None no subcommand module is imported at all, with the default
+    every one is."""
     parser = OneLineParser(prog="arcwindow", description=DESCRIPTION)
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
     for name, (module_name, help_text) in SUBCOMMANDS.items():
-        if name == command:
+        if command in (name, ALL):
             importlib.import_module(module_name).add_parser(_WithHelp(subparsers, help_text))
         else:
             subparsers.add_parser(name, help=help_text)

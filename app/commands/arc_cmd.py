@@ -24,7 +24,10 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument("--arrive", required=True, metavar="UTC", help="arrival, ISO 8601 UTC")
     add_arc_choice(parser, "complete revolutions (default: the best arc by --metric)")
     parser.add_argument(
-        "--metric", default="c3_km2_s2", help="without --revs, the arc that minimizes this metric"
+        "--metric",
+        default=None,
+        help="without --revs, the arc that minimizes this metric (default: c3_km2_s2 for a "
+        "launch, dv_total_km_s for a transfer that starts with a burn)",
     )
     parser.add_argument("--oem", metavar="FILE", help="write the arc as a CCSDS OEM (KVN) file")
     parser.add_argument("--json", action="store_true", help="print JSON")
@@ -41,7 +44,7 @@ def run(args: argparse.Namespace) -> int:
     from solver.files.export import arc_json, arc_oem_text
     from solver.reasons import describe
     from solver.window.cell import select_arc, solve_cell
-    from solver.window.metrics import METRICS
+    from solver.window.outputs import case_outputs
 
     case = load(args.case)
     oem_path = output_file(args.oem, "--oem", None) if args.oem else None
@@ -50,10 +53,10 @@ def run(args: argparse.Namespace) -> int:
     if arrive <= depart:
         raise InputError("--arrive", args.arrive, f"a date after --depart ({args.depart})")
     check_arc_choice(args, case.max_revolutions)
-    if args.metric not in METRICS:
-        raise InputError("--metric", args.metric, "one of " + ", ".join(METRICS))
+    fit = case_outputs(case)
+    metric = fit.check_metric(args.metric) if args.metric else fit.default_metric
     arcs = solve_cell(case, depart, arrive)
-    arc = select_arc(arcs, args.revs, args.branch, args.metric)
+    arc = select_arc(arcs, args.revs, args.branch, metric)
     if not arc.ok:
         raise InputError(
             "--depart/--arrive",

@@ -25,9 +25,10 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     add_case_argument(parser)
     parser.add_argument(
         "--metric",
-        default="c3_km2_s2",
+        default=None,
         choices=metric_choices(),
-        help="what 'best' minimizes (default c3_km2_s2; DLA by its magnitude)",
+        help="what 'best' minimizes (default: c3_km2_s2 for a launch, dv_total_km_s for a "
+        "transfer that starts with a burn; DLA by its magnitude)",
     )
     add_arc_choice(parser, "only arcs of N revolutions")
     parser.add_argument(
@@ -46,13 +47,16 @@ def run(args: argparse.Namespace) -> int:
 
     from app.samples import load
     from solver.files.export import arc_json
+    from solver.window.outputs import case_outputs
     from solver.window.refine import refine_best
 
     case = load(args.case)
     check_arc_choice(args, case.max_revolutions)
+    fit = case_outputs(case)
+    metric = fit.check_metric(args.metric) if args.metric else fit.default_metric
     grid = compute_grid(args, case)
     refined = refine_best(
-        case, grid, args.metric, revolutions=args.revs, branch=args.branch, method=args.refine
+        case, grid, metric, revolutions=args.revs, branch=args.branch, method=args.refine
     )
     report = arc_json(case, refined.arc)
     report["refinement"] = {
@@ -81,24 +85,41 @@ def run(args: argparse.Namespace) -> int:
 
 
 def format_arc_report(report: dict) -> str:
-    """Plain-text summary of an arc (shared with ``arcwindow arc``)."""
+    """Plain-text summary of an arc (shared with ``arcwindow arc``): the numbers that fit the
+    case (solver.window.outputs): a launch's C3 and asymptote, or the burns and phasing of a
+    transfer that starts with a burn."""
     from solver.window.metrics import METRICS
 
     lines = [
         f"{report['case_title']}",
         f"  depart {report['departure_utc']}  arrive {report['arrival_utc']}  "
-        f"({report['metrics']['tof_days']:.3f} days)",
+        f"(transfer time {report['transfer_time']})",
         f"  {report['revolutions']} revolution(s), {report['branch']} branch; "
         f"Type {report['transfer_type']}; {report['family']}",
         f"  within limits: {'yes' if report['within_limits'] else 'no'}",
     ]
+    burns = report.get("burns")
+    if burns:
+        lines.append(f"    {'phase angle at departure':<28} {burns['phase_deg']:>14.6f} deg")
+        for end in ("departure", "arrival"):
+            burn = burns[end]
+            parts = burn["components_km_s"]
+            lines.append(
+                f"    {end + ' burn Δv':<28} {burn['dv_km_s']:>14.6f} km/s  (radial "
+                f"{parts['radial']:+.6f}, along-track {parts['along_track']:+.6f}, cross-track "
+                f"{parts['cross_track']:+.6f})"
+            )
+        lines.append(f"    {'total Δv':<28} {burns['total_dv_km_s']:>14.6f} km/s")
+    shown_by_burns = {"dv_departure_km_s", "dv_arrival_km_s", "dv_total_km_s"} if burns else set()
     for name, value in report["metrics"].items():
-        if name == "tof_days" or value is None:
+        if name == "tof_days" or value is None or name in shown_by_burns:
             continue
         meta = METRICS[name]
         lines.append(f"    {meta.label:<28} {value:>14.6f} {meta.unit}")
     prov = report["provenance"]
     lines.append(
-        f"  ephemeris {prov['ephemeris']}; {prov['engine']}; case hash {prov['case_hash']}"
+        f"  ephemeris: {prov['ephemeris']}; {prov['engine']}; case hash {prov['case_hash']}"
     )
+    if burns:
+        lines.append(f"  burn directions: {burns['frame']}")
     return "\n".join(lines)

@@ -63,6 +63,15 @@ __all__, __getattr__, __dir__ = lazy_api(
         "dates": ["DateAxis", "axis_count", "date_axis", "elapsed_days_between", "utc_plus_days"],
         "provenance": ["case_hash", "ephemeris_label", "provenance", "window_cache_key"],
         "refine": ["METHODS", "RefinedArc", "refine_best"],
+        "outputs": [
+            "BURN_COMPONENTS",
+            "Burns",
+            "CaseOutputs",
+            "arc_burns",
+            "case_outputs",
+            "phase_angles_deg",
+            "transfer_time_text",
+        ],
         "launch_period": ["STRATEGIES", "LaunchPeriod", "PeriodDay", "launch_period"],
     },
 )

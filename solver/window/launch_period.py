@@ -34,6 +34,7 @@ from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, solve_cell
 from solver.window.grid import compute_window
 from solver.window.limits import LIMIT_RULES
+from solver.window.outputs import case_outputs
 
 STRATEGIES = ("fixed-arrival", "free-arrival")
 _NO_ARC = 1e30
@@ -152,10 +153,12 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
     Raises
     ------
     InputError
-        Bad length or strategy, or no placement where every day has a feasible arc.
+        Bad length or strategy, a case without a launch (a transfer that starts with a burn:
+        :mod:`solver.window.outputs`), or no placement where every day has an arc within limits.
     """
     if strategy not in STRATEGIES:
         raise InputError("strategy", strategy, "'fixed-arrival' or 'free-arrival'")
+    case_outputs(case).check_launch_periods(case)
     feasible_case = _feasibility_case(case)
     grid = compute_window(feasible_case)
     n_days = len(grid.departure_jd_tdb)
