@@ -83,12 +83,44 @@ def output_file(text: str, field: str, suffixes: tuple[str, ...] | None):
     return prepare_output(text, field=field, suffixes=suffixes)
 
 
+PREPARING = (
+    "arcwindow: preparing the solver, once: compiling its kernels for this machine ({n} of "
+    "{total}; about 1-2 minutes, later runs load them in under a second)"
+)
+
+
+def prepare_solver(stream=None) -> bool:
+    """Compile the solver's kernels now if this machine has not yet, saying so with progress
+    (solver.mechanics.kernels); silent when they are compiled. Returns whether it compiled."""
+    from solver.mechanics.kernels import KERNELS, pending_kernels, prepare_kernels
+
+    stream = stream or sys.stderr
+    pending = pending_kernels()
+    if not pending:
+        return False
+    print(PREPARING.format(n=len(pending), total=len(KERNELS)), file=stream, flush=True)
+    from tqdm import tqdm
+
+    with tqdm(
+        total=len(KERNELS), unit="kernel", file=stream, desc="preparing the solver", leave=True
+    ) as bar:
+
+        def progress(done: int, total: int, name: str) -> None:
+            bar.update(done - bar.n)
+            bar.set_postfix_str(name, refresh=True)
+
+        prepare_kernels(progress)
+    print("arcwindow: solver ready", file=stream, flush=True)
+    return True
+
+
 def compute_grid(args: argparse.Namespace, case):
     """The case's grid, through the cache unless --no-cache, with a progress bar when long."""
     from solver.files.cache import GridCache
     from solver.window.grid import check_grid_size, compute_window
 
     n_dep, n_arr, slots = check_grid_size(case, args.max_cells)
+    prepare_solver()
     cache = None if args.no_cache else GridCache(args.cache_dir)
     if n_dep * n_arr * slots < PROGRESS_MIN_CELL_ARCS:
         return compute_window(case, cache=cache, max_cells=args.max_cells)

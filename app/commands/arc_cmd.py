@@ -10,6 +10,7 @@ from app.commands._common import (
     add_case_argument,
     check_arc_choice,
     output_file,
+    prepare_solver,
 )
 
 
@@ -55,6 +56,7 @@ def run(args: argparse.Namespace) -> int:
     check_arc_choice(args, case.max_revolutions)
     fit = case_outputs(case)
     metric = fit.check_metric(args.metric) if args.metric else fit.default_metric
+    prepare_solver()
     arcs = solve_cell(case, depart, arrive)
     arc = select_arc(arcs, args.revs, args.branch, metric)
     if not arc.ok:

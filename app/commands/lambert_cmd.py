@@ -100,6 +100,9 @@ def solve(args: argparse.Namespace) -> dict:
     if np.linalg.norm(r2) == 0.0:
         raise InputError("--r2-km", args.r2_km, "a non-zero position vector")
 
+    from app.commands._common import prepare_solver
+
+    prepare_solver()
     sol = solve_lambert(r1, r2, tof, mu, max_revs=max_revs, retrograde=args.retrograde)
     elements = state_to_elements(np.asarray(r1), sol.v1_km_s, mu)
     families = classify(np.asarray(r1), sol.v1_km_s, np.asarray(r2), tof, mu, sol.revolutions)

@@ -48,6 +48,7 @@ def run(args: argparse.Namespace) -> int:
 
     import waitress
 
+    from app.commands._common import prepare_solver
     from app.dashboard import create_app
     from solver.errors import InputError
 
@@ -57,8 +58,14 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("--threads", args.threads, "at least 1")
     # `kill -USR1 <pid>` prints every thread's stack to stderr: how to see what a stuck
     # request is waiting on, without stopping the session.
+    # Compile the kernels before serving, with progress here, rather than leaving the first
+    # viewer's map blank for the minutes it takes on a new machine.
+    prepare_solver()
     if hasattr(signal, "SIGUSR1"):
-        faulthandler.register(signal.SIGUSR1, file=sys.stderr, all_threads=True)
+        try:
+            faulthandler.register(signal.SIGUSR1, file=sys.stderr, all_threads=True)
+        except (OSError, ValueError):
+            pass  # a stderr without a file descriptor (captured, redirected): no stack dumps
     dash_app = create_app(
         cache_dir=args.cache_dir, data_dir=args.data_dir, surveys_dir=args.survey_dir
     )
