@@ -12,6 +12,7 @@ import datetime as dt
 import math
 import tracemalloc
 import warnings
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -213,3 +214,19 @@ def test_survey_spans_use_utc_calendar_days():
     assert math.isclose(
         _span_days("2031-01-01", utc_plus_days("2031-01-01", -1 / 1440)[:19]), -1 / 1440
     )
+
+
+def test_an_end_date_off_the_step_is_named_with_the_last_date_used(capsys, tmp_path):
+    """199 days at a 2-day step: the grid stops at 198 days and says so."""
+    from app.cli import main
+    from solver.window.grid import window_notes
+
+    case = load("orrery_jupiter_flyby").with_changes(**{"window.departure_end": "2034-09-30"})
+    (note,) = window_notes(case)
+    assert "departure_end 2034-09-30" in note and "2034-09-29T00:00:00Z" in note
+    assert window_notes(load("orrery_jupiter_flyby")) == []
+    path = tmp_path / "orrery.toml"
+    text = Path(load("orrery_jupiter_flyby").source_path).read_text()
+    path.write_text(text.replace('departure_end = "2034-10-01"', 'departure_end = "2034-09-30"'))
+    assert main(["grid", str(path), "--out", str(tmp_path / "g.parquet"), "--no-cache"]) == 0
+    assert "the last departure date is 2034-09-29" in capsys.readouterr().err

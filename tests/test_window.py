@@ -278,6 +278,21 @@ def test_cache_hit_is_bit_for_bit(tmp_path):
     assert not compute_window(other, cache=cache).from_cache
 
 
+def test_grids_cached_by_the_previous_engine_are_not_served(tmp_path, monkeypatch):
+    """Engine 0.1.0 counted grid dates in TDB and reported TDB intervals as TOF: its cached
+    grids hold other dates and numbers, so the current engine must not read them."""
+    import solver.window.provenance as provenance
+
+    case = load("kestrel_relay_leo")
+    cache = GridCache(tmp_path)
+    monkeypatch.setattr(provenance, "ENGINE_VERSION", "0.1.0")
+    old = compute_window(case, cache=cache)
+    assert compute_window(case, cache=cache).from_cache  # served to the same engine
+    monkeypatch.undo()
+    assert not old.from_cache
+    assert not compute_window(case, cache=cache).from_cache
+
+
 def test_cells_without_arcs_carry_reasons(vesper):
     _case, grid = vesper
     before = grid.tof_days <= 0

@@ -117,9 +117,11 @@ def prepare_solver(stream=None) -> bool:
 def compute_grid(args: argparse.Namespace, case):
     """The case's grid, through the cache unless --no-cache, with a progress bar when long."""
     from solver.files.cache import GridCache
-    from solver.window.grid import check_grid_size, compute_window
+    from solver.window.grid import check_grid_size, compute_window, window_notes
 
     n_dep, n_arr, slots = check_grid_size(case, args.max_cells)
+    for note in window_notes(case):
+        print(f"note: {note}", file=sys.stderr)
     prepare_solver()
     cache = None if args.no_cache else GridCache(args.cache_dir)
     if n_dep * n_arr * slots < PROGRESS_MIN_CELL_ARCS:

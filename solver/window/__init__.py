@@ -58,9 +58,17 @@ __all__, __getattr__, __dir__ = lazy_api(
             "max_cell_arcs",
             "ranks_before",
             "tie_tolerance",
+            "window_notes",
         ],
         "cell": ["Arc", "select_arc", "solve_cell"],
-        "dates": ["DateAxis", "axis_count", "date_axis", "elapsed_days_between", "utc_plus_days"],
+        "dates": [
+            "DateAxis",
+            "axis_count",
+            "date_axis",
+            "elapsed_days_between",
+            "end_note",
+            "utc_plus_days",
+        ],
         "provenance": ["case_hash", "ephemeris_label", "provenance", "window_cache_key"],
         "refine": ["METHODS", "RefinedArc", "refine_best"],
         "outputs": [

@@ -125,6 +125,22 @@ def elapsed_days_between(departures: DateAxis, arrivals: DateAxis) -> NDArray[np
     )
 
 
+def end_note(start_utc: str, end_utc: str, step_days: float, label: str = "window") -> str | None:
+    """One sentence when the step does not divide the window, naming the last date it reaches
+    instead of the end; None when the end date is a date of the axis."""
+    s1, s2 = _parse(start_utc, f"{label} start")
+    e1, e2 = _parse(end_utc, f"{label} end")
+    span = (e1 - s1) + (e2 - s2)
+    n = _count(span, float(step_days))
+    if n == 0 or span - (n - 1) * step_days <= STEP_TOLERANCE * step_days:
+        return None
+    last = utc_plus_days(start_utc, (n - 1) * step_days, digits=0)
+    return (
+        f"{label}_end {end_utc} is not a whole number of {step_days:g}-day steps after "
+        f"{label}_start {start_utc}: the last {label} date is {last}"
+    )
+
+
 def utc_plus_days(utc: str, days: float, *, field: str = "date", digits: int = 6) -> str:
     """An ISO 8601 UTC date plus a number of days (UTC calendar arithmetic), as ISO text.
 
@@ -141,5 +157,6 @@ __all__ = [
     "axis_count",
     "date_axis",
     "elapsed_days_between",
+    "end_note",
     "utc_plus_days",
 ]

@@ -18,7 +18,13 @@ from solver.reasons import Reason
 from solver.time_units import SECONDS_PER_DAY
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies, body_states, transfer_angle_deg
-from solver.window.dates import DateAxis, axis_count, date_axis, elapsed_days_between
+from solver.window.dates import (
+    DateAxis,
+    axis_count,
+    date_axis,
+    elapsed_days_between,
+    end_note,
+)
 from solver.window.limits import within_limits
 from solver.window.metrics import METRICS, arc_metrics, ranking_values
 from solver.window.provenance import provenance, window_cache_key
@@ -307,6 +313,16 @@ def grid_dates(case: Case) -> tuple[DateAxis, DateAxis]:
     )
 
 
+def window_notes(case: Case) -> list[str]:
+    """Sentences for windows whose end date is not a date of the grid (the step does not
+    divide them), so an analyst is told which last date was used."""
+    notes = [
+        end_note(case.departure_start, case.departure_end, case.departure_step_days, "departure"),
+        end_note(case.arrival_start, case.arrival_end, case.arrival_step_days, "arrival"),
+    ]
+    return [note for note in notes if note]
+
+
 def grid_axes(case: Case) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Departure and arrival epochs (JD TDB): start, start + step, ... up to the end date,
     counted in UTC (see :mod:`solver.window.dates`)."""
@@ -491,4 +507,5 @@ __all__ = [
     "max_cell_arcs",
     "ranks_before",
     "tie_tolerance",
+    "window_notes",
 ]
