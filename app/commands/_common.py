@@ -85,7 +85,7 @@ def output_file(text: str, field: str, suffixes: tuple[str, ...] | None):
 
 PREPARING = (
     "arcwindow: preparing the solver, once: compiling its kernels for this machine ({n} of "
-    "{total}; about 1-2 minutes, later runs load them in under a second)"
+    "{total}; up to a minute or two, once; later runs load them in under a second)"
 )
 
 
