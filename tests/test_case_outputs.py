@@ -94,6 +94,9 @@ def test_a_transfer_between_satellites_is_not_a_launch(hohmann):
         assert launch_metric not in fit.metrics and launch_metric not in fit.ranking_metrics
     vesper = case_outputs(load("vesper_venus_orbiter"))
     assert vesper.launch and not vesper.planet_centred and vesper.default_metric == "c3_km2_s2"
+    # a launch to a rendezvous with a body without mass keeps its arrival v∞ (a limit of Tallis)
+    tallis = case_outputs(load("tallis_rendezvous"))
+    assert tallis.launch and "vinf_arrival_km_s" in tallis.ranking_metrics
 
 
 def test_hohmann_burns_are_along_track_with_the_textbook_sizes(hohmann):

@@ -110,12 +110,14 @@ def case_outputs(case: Case, bodies: CaseBodies | None = None) -> CaseOutputs:
     launch = has_mass(bodies.departure)
     leave_out: set[str] = set()
     if not launch:
+        # No launch vehicle and no asymptote; meeting a body without mass, the arrival
+        # asymptote's direction means nothing either, and a rendezvous's arrival speed is its
+        # arrival burn, shown as such.
         leave_out.update(LAUNCH_ONLY)
-    if not has_mass(bodies.target):
-        leave_out.update(ASYMPTOTE_AT_ARRIVAL)
-        leave_out.add("entry_speed_km_s")
-        if case.arrival_mode == "rendezvous":
-            leave_out.add("vinf_arrival_km_s")  # the rendezvous burn itself
+        if not has_mass(bodies.target):
+            leave_out.update(ASYMPTOTE_AT_ARRIVAL)
+            if case.arrival_mode == "rendezvous":
+                leave_out.add("vinf_arrival_km_s")
     if case.entry_altitude_km is None:
         leave_out.add("entry_speed_km_s")
     metrics = tuple(m for m in METRICS if m not in leave_out)
