@@ -58,5 +58,6 @@ __all__, __getattr__, __dir__ = lazy_api(
             "grid_to_frame",
             "read_provenance",
         ],
+        "paths": ["prepare_output"],
     },
 )
