@@ -22,6 +22,7 @@ class Reason(IntEnum):
     NOT_REQUESTED = 7
     OUTSIDE_EPHEMERIS = 8
     ARRIVAL_NOT_AFTER_DEPARTURE = 9
+    RESONANT_RETURN = 10
 
     @property
     def description(self) -> str:
@@ -42,6 +43,10 @@ _DESCRIPTIONS = {
     Reason.NOT_REQUESTED: "not requested (more revolutions than asked for)",
     Reason.OUTSIDE_EPHEMERIS: "a date lies outside the ephemeris range",
     Reason.ARRIVAL_NOT_AFTER_DEPARTURE: "arrival is not after departure",
+    Reason.RESONANT_RETURN: (
+        "a resonant return: the leg comes back to the body it left with both positions on one "
+        "line through the central body, so the plane of the arc is undefined"
+    ),
 }
 
 
