@@ -20,6 +20,7 @@ SUBCOMMANDS: dict[str, str] = {
     "period": "app.commands.period_cmd",
     "arc": "app.commands.arc_cmd",
     "survey": "app.commands.survey_cmd",
+    "sequence": "app.commands.sequence_cmd",
     "serve": "app.commands.serve_cmd",
     "bench": "app.commands.bench_cmd",
 }

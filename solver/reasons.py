@@ -23,6 +23,7 @@ class Reason(IntEnum):
     OUTSIDE_EPHEMERIS = 8
     ARRIVAL_NOT_AFTER_DEPARTURE = 9
     RESONANT_RETURN = 10
+    NO_RESONANT_ORBIT = 11
 
     @property
     def description(self) -> str:
@@ -46,6 +47,9 @@ _DESCRIPTIONS = {
     Reason.RESONANT_RETURN: (
         "a resonant return: the leg comes back to the body it left with both positions on one "
         "line through the central body, so the plane of the arc is undefined"
+    ),
+    Reason.NO_RESONANT_ORBIT: (
+        "no orbit of the resonant period reaches the body's distance from the central body"
     ),
 }
 

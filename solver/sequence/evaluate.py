@@ -39,6 +39,7 @@ from solver.reasons import Reason
 from solver.sequence.flyby import largest_turn_deg, solve_flybys
 from solver.sequence.kernels import solve_batch
 from solver.sequence.limits import limit_value, rules_for, surface_violation
+from solver.sequence.resonance import miss_distance_km, resonant_velocity
 from solver.sequence.spec import Event, SequenceSpec
 from solver.time_units import SECONDS_PER_DAY
 from solver.window.case import Case
@@ -79,10 +80,17 @@ class LegArcs:
     tof_days: NDArray[np.float64]
     revolutions: NDArray[np.int64]
     branch: NDArray[np.int8]
+    miss_km: NDArray[np.float64] | None = None
+    angles_deg: NDArray[np.float64] | None = None
 
     @property
     def ok(self) -> NDArray[np.bool_]:
         return self.reason == Reason.OK
+
+    @property
+    def resonant(self) -> bool:
+        """Flown as a resonant return (one slot; ``miss_km`` and ``angles_deg`` set)."""
+        return self.miss_km is not None
 
 
 @dataclass
@@ -200,20 +208,76 @@ class SequenceModel:
             v[:, columns] = vv
         return r, v
 
-    def arcs(self, epochs: NDArray[np.float64], *, fast: bool = False) -> BatchArcs:
-        """Stage 1 for epochs of shape (N, E) (JD TDB, in the order of the spec's events)."""
+    def arcs(
+        self,
+        epochs: NDArray[np.float64],
+        angles: NDArray[np.float64] | None = None,
+        *,
+        fast: bool = False,
+    ) -> BatchArcs:
+        """Stage 1 for epochs of shape (N, E) (JD TDB, in the order of the spec's events) and,
+        for a sequence with resonant legs, their (pitch, clock) angles, shape (N, R, 2), deg."""
         epochs = np.ascontiguousarray(np.atleast_2d(np.asarray(epochs, dtype=float)))
         if epochs.shape[-1] != self.spec.n_epochs:
             raise ValueError(f"epochs of shape (N, {self.spec.n_epochs}) expected")
+        resonant = self.spec.resonant_legs
+        if resonant:
+            if angles is None:
+                raise ValueError("a sequence with resonant legs needs their angles")
+            angles = np.asarray(angles, dtype=float).reshape(len(epochs), len(resonant), 2)
         compiled = self.compiled() if fast else None
         if compiled is not None:
-            return self._arcs_compiled(compiled, epochs)
+            batch = self._arcs_compiled(compiled, epochs)
+        else:
+            batch = self._arcs_numpy(epochs, fast)
+        for j, k in enumerate(resonant):
+            assert angles is not None
+            batch.legs[k] = self._resonant_leg(k, batch, angles[:, j])
+        return batch
+
+    def _resonant_leg(self, k: int, batch: BatchArcs, angles: NDArray[np.float64]) -> LegArcs:
+        leg = self.spec.legs[k]
+        assert leg.resonance is not None
+        a, b = self.spec.leg_epochs(k)
+        epochs = batch.epochs
+        tof_days = epochs[:, b] - epochs[:, a]
+        r1 = batch.body_r_km[:, a]
+        v, ok = resonant_velocity(
+            r1,
+            batch.body_v_km_s[:, a],
+            tof_days,
+            leg.resonance[1],
+            self.mu,
+            angles[:, 0],
+            angles[:, 1],
+        )
+        reason = np.where(ok, np.int8(Reason.OK), np.int8(Reason.NO_RESONANT_ORBIT))
+        reason = np.where(tof_days > 0, reason, np.int8(Reason.ARRIVAL_NOT_AFTER_DEPARTURE))
+        v = np.where(reason[:, None] == Reason.OK, v, np.nan)
+        return LegArcs(
+            r1_km=r1,
+            r2_km=r1,  # the spacecraft is back where it left; the body is `miss_km` away
+            v1_km_s=v[:, None, :],
+            v2_km_s=v[:, None, :].copy(),
+            reason=reason.astype(np.int8)[:, None],
+            tof_days=tof_days,
+            revolutions=np.array([leg.resonance[1]], dtype=np.int64),
+            branch=np.zeros(1, dtype=np.int8),
+            miss_km=miss_distance_km(r1, batch.body_r_km[:, b]),
+            angles_deg=np.asarray(angles, dtype=float),
+        )
+
+    def _arcs_numpy(self, epochs: NDArray[np.float64], fast: bool) -> BatchArcs:
         r, v = self.body_states(epochs, fast=fast)
         legs: list[LegArcs | None] = [None] * len(self.spec.legs)
         if fast:
             # One Lambert call for every leg that shares its settings (usually all of them).
             groups: dict[tuple[int, float], list[int]] = {}
             for k, leg in enumerate(self.spec.legs):
+                if leg.resonance is not None:
+                    a, b = self.spec.leg_epochs(k)
+                    legs[k] = self._placeholder(k, r, epochs[:, b] - epochs[:, a])
+                    continue
                 groups.setdefault((leg.max_revolutions, self._angle_tol(k)), []).append(k)
             for (revs, tol), ks in groups.items():
                 ends = [self.spec.leg_epochs(k) for k in ks]
@@ -248,6 +312,9 @@ class SequenceModel:
             for k, leg in enumerate(self.spec.legs):
                 a, b = self.spec.leg_epochs(k)
                 tof_days = epochs[:, b] - epochs[:, a]
+                if leg.resonance is not None:
+                    legs[k] = self._placeholder(k, r, tof_days)
+                    continue
                 sol = solve_lambert(
                     r[:, a],
                     r[:, b],
@@ -281,7 +348,9 @@ class SequenceModel:
             np.array([compiled.index(b.name) for b in self.epoch_body], dtype=np.int64),
             np.array([a for a, _ in ends], dtype=np.int64),
             np.array([b for _, b in ends], dtype=np.int64),
-            np.array([leg.max_revolutions for leg in spec.legs], dtype=np.int64),
+            np.array(
+                [0 if leg.resonance else leg.max_revolutions for leg in spec.legs], dtype=np.int64
+            ),
             np.array([self._angle_tol(k) for k in range(len(spec.legs))]),
             self.mu,
             pole,
@@ -290,8 +359,9 @@ class SequenceModel:
         legs = []
         for k, leg in enumerate(spec.legs):
             a, b = ends[k]
-            slots = 2 * leg.max_revolutions + 1
-            revolutions, branch = slot_layout(leg.max_revolutions)
+            revs = 0 if leg.resonance else leg.max_revolutions
+            slots = 2 * revs + 1
+            revolutions, branch = slot_layout(revs)
             legs.append(
                 self._leg(
                     k,
@@ -306,6 +376,21 @@ class SequenceModel:
                 )
             )
         return BatchArcs(epochs, body_r, body_v, legs)
+
+    def _placeholder(self, k: int, r: NDArray, tof_days: NDArray) -> LegArcs:
+        """A resonant leg before its angles are applied (replaced by :meth:`_resonant_leg`)."""
+        a, b = self.spec.leg_epochs(k)
+        n = len(tof_days)
+        return LegArcs(
+            r[:, a],
+            r[:, b],
+            np.full((n, 1, 3), np.nan),
+            np.full((n, 1, 3), np.nan),
+            np.full((n, 1), np.int8(Reason.NOT_REQUESTED)),
+            tof_days,
+            np.zeros(1, dtype=np.int64),
+            np.zeros(1, dtype=np.int8),
+        )
 
     def _angle_tol(self, k: int) -> float:
         if self.spec.legs[k].returns:
@@ -396,6 +481,12 @@ class SequenceModel:
                 limit = limit_value(rule, case, spec, leg)
                 if limit is not None:
                     const_pen += rule.violation(arcs.legs[k].tof_days, limit)
+        for leg_arcs in arcs.legs:
+            if leg_arcs.miss_km is not None:
+                for rule in rules_for("resonance"):
+                    limit = limit_value(rule, case, spec)
+                    if limit is not None:
+                        const_pen += rule.violation(leg_arcs.miss_km, limit)
         duration = epochs[:, -1] - epochs[:, 0]
         for rule in rules_for("sequence"):
             limit = limit_value(rule, case, spec)
@@ -546,8 +637,9 @@ class SequenceModel:
 
     def score(self, variables: NDArray[np.float64]) -> NDArray[np.float64]:
         """Scores of candidates given as search variables, shape (M, D) -> (M,) (fast path)."""
-        epochs = self.spec.epochs(np.atleast_2d(variables))
-        return self.costs(self.arcs(epochs, fast=True)).score
+        x = np.atleast_2d(variables)
+        angles = self.spec.angles(x) if self.spec.resonant_legs else None
+        return self.costs(self.arcs(self.spec.epochs(x), angles, fast=True)).score
 
 
 def _best_path(

@@ -26,7 +26,7 @@ from solver.sequence.spec import LegSpec, SequenceSpec
 from solver.window.case import Case
 from solver.window.limits import LIMIT_RULES, SURFACE_RULE_TEXT, LimitRule
 
-Scope = Literal["departure", "arrival", "leg", "flyby", "stop", "sequence"]
+Scope = Literal["departure", "arrival", "leg", "flyby", "stop", "resonance", "sequence"]
 
 
 @dataclass(frozen=True)
@@ -41,9 +41,9 @@ class SequenceLimitRule:
     quantity : str
         The candidate's quantity it bounds (``"c3_km2_s2"``, ``"periapsis_altitude_km"``).
     bound : {"max", "min"}
-    scope : {"departure", "arrival", "leg", "flyby", "stop", "sequence"}
+    scope : {"departure", "arrival", "leg", "flyby", "stop", "resonance", "sequence"}
         Where it applies: once at the departure or arrival, on every leg, every flyby, every
-        stop, or once for the whole sequence.
+        stop, every resonant leg, or once for the whole sequence.
     label, unit : str
         For breach texts.
     scale : float
@@ -141,6 +141,15 @@ SEQUENCE_LIMIT_RULES: tuple[SequenceLimitRule, ...] = (
         "unpowered flyby | |v∞ out| - |v∞ in| |",
         "km/s",
         0.1,
+    ),
+    SequenceLimitRule(
+        "sequence.resonance_miss_max_km",
+        "miss_km",
+        "max",
+        "resonance",
+        "resonant return miss",
+        "km",
+        1.0e6,
     ),
     SequenceLimitRule(
         "sequence.duration_max_days", "duration_days", "max", "sequence", "duration", "days", 100.0

@@ -28,6 +28,7 @@ from solver.sequence.limits import (
     limit_value,
     rules_for,
 )
+from solver.sequence.polish import polish
 from solver.window.case_bodies import transfer_angle_deg
 
 
@@ -155,6 +156,7 @@ def evaluate_candidate(
     epochs_jd_tdb: Any,
     *,
     slots: list[int | None] | None = None,
+    angles_deg: Any = None,
 ) -> Candidate:
     """Everything about one candidate, by the exact path.
 
@@ -167,9 +169,19 @@ def evaluate_candidate(
         Pin the arc slot of some legs (slot 0 single revolution; 2N-1, 2N the N-revolution low
         and high branches); None leaves the choice to the evaluation (within limits first, then
         the objective).
+    angles_deg : array_like, shape (R, 2), optional
+        Each resonant leg's (pitch, clock), deg; None chooses them (the best for these dates,
+        :func:`best_resonance_angles`).
     """
     epochs = np.asarray(epochs_jd_tdb, dtype=float).reshape(1, -1)
-    arcs = model.arcs(epochs, fast=False)
+    angles = None
+    if model.spec.resonant_legs:
+        angles = (
+            best_resonance_angles(model, epochs[0])
+            if angles_deg is None
+            else np.asarray(angles_deg, dtype=float).reshape(1, -1, 2)
+        )
+    arcs = model.arcs(epochs, angles, fast=False)
     costs = model.costs(arcs, detail=True, pinned=slots)
     return candidate_from_batch(model, arcs, costs, 0)
 
@@ -189,6 +201,10 @@ def candidate_from_batch(
             name: float(np.asarray(array)[row, s]) for name, array in values["legs"][k].items()
         }
         metrics["tof_days"] = float(leg_arcs.tof_days[row])
+        if leg_arcs.miss_km is not None and leg_arcs.angles_deg is not None:
+            metrics["miss_km"] = float(leg_arcs.miss_km[row])
+            metrics["pitch_deg"] = float(leg_arcs.angles_deg[row, 0])
+            metrics["clock_deg"] = float(leg_arcs.angles_deg[row, 1])
         angle = float(
             transfer_angle_deg(
                 leg_arcs.r1_km[row], leg_arcs.r2_km[row], model.pole, case.retrograde
@@ -202,7 +218,7 @@ def candidate_from_batch(
                 departure_jd_tdb=float(epochs[spec.leg_epochs(k)[0]]),
                 arrival_jd_tdb=float(epochs[spec.leg_epochs(k)[1]]),
                 revolutions=int(leg_arcs.revolutions[s]),
-                branch=BRANCH_NAMES[int(leg_arcs.branch[s])],
+                branch="resonant" if leg_arcs.resonant else BRANCH_NAMES[int(leg_arcs.branch[s])],
                 slot=int(chosen[k]),
                 reason=int(leg_arcs.reason[row, s]),
                 transfer_angle_deg=angle,
@@ -368,6 +384,9 @@ def _breaches(model: SequenceModel, legs: list[LegResult], encounters: list[Enco
             check(rule, leg.tof_days, limit_value(rule, case, spec, spec.legs[k]), f"leg {k + 1}")
         if math.isfinite(radius) and not leg.metrics["periapsis_km"] > radius:
             out.append(f"leg {k + 1} {SURFACE_RULE_TEXT}")
+        if "miss_km" in leg.metrics:
+            for rule in rules_for("resonance"):
+                check(rule, leg.metrics["miss_km"], limit_value(rule, case, spec), f"leg {k + 1}")
     for event, encounter in zip(spec.events, encounters, strict=True):
         leg_spec = spec.legs[event.leg_in] if event.leg_in >= 0 else None
         where = f"{encounter.kind} {event.index} ({encounter.body})"
@@ -387,6 +406,29 @@ def _breaches(model: SequenceModel, legs: list[LegResult], encounters: list[Enco
     return out
 
 
+def best_resonance_angles(model: SequenceModel, epochs: Any) -> NDArray[np.float64]:
+    """The resonant legs' (pitch, clock) angles that score best for these dates, shape
+    (1, R, 2): a spread of starting directions, the best polished by a compass search."""
+    spec = model.spec
+    epochs = np.asarray(epochs, dtype=float).reshape(-1)
+    pitches = np.array([3.0, 8.0, 15.0, 25.0, 40.0])
+    clocks = np.arange(-180.0, 180.0, 30.0)
+    grid = np.array([(p, c) for p in pitches for c in clocks])
+    n_res = len(spec.resonant_legs)
+    # Every resonant leg takes each starting direction in turn (the same one for all of them).
+    starts = np.repeat(grid[:, None, :], n_res, axis=1)
+    variables = spec.variables(np.broadcast_to(epochs, (len(starts), len(epochs))), starts)
+    score = model.score(variables)
+    best = variables[np.argsort(score)[:4]]
+    bounds = spec.variable_bounds(model.case)
+    fixed = [i for i, name in enumerate(spec.variable_names) if not name.endswith("_deg")]
+    for i in fixed:  # the dates stay as given
+        bounds[i] = (float(best[0, i]), float(best[0, i]))
+    polished = polish(model, bounds, best, first_step_days=5.0, last_step_days=1e-6)
+    final = polished[np.argmin(model.score(polished))]
+    return spec.angles(final[None, :])
+
+
 def reason_text(candidate: Candidate) -> str:
     """Why a candidate has no arc (empty when it has)."""
     if candidate.ok:
@@ -400,6 +442,7 @@ __all__ = [
     "Candidate",
     "Encounter",
     "LegResult",
+    "best_resonance_angles",
     "candidate_from_batch",
     "evaluate_candidate",
     "reason_text",

@@ -32,11 +32,16 @@ from scipy.optimize import differential_evolution
 
 from solver.errors import InputError
 from solver.sequence.evaluate import MISSING, SequenceModel
+from solver.sequence.polish import polish
 from solver.sequence.result import Candidate, evaluate_candidate
 from solver.sequence.spec import SequenceCase, SequenceSpec
 from solver.window.case import Case
 
 Progress = Callable[[str], None]
+
+POLISH_SHARE_COMPLEMENT = 0.85
+"""Under a time limit, the global phase ends at this fraction of it; the polish and the exact
+evaluation of the candidates use the rest."""
 
 
 @dataclass(frozen=True)
@@ -211,25 +216,40 @@ def search_sequence(
     bounds = spec.variable_bounds(case)
     archive = _Archive(len(bounds))
     interrupted = False
+    # With a time limit, the global phase stops early enough to leave the polish and the exact
+    # evaluations their share of it.
+    global_deadline = None
+    if deadline is not None:
+        global_deadline = start + POLISH_SHARE_COMPLEMENT * (deadline - start)
     try:
         if settings.method == "scipy":
-            interrupted = _run_scipy(model, bounds, settings, archive, progress, deadline)
+            interrupted = _run_scipy(model, bounds, settings, archive, progress, global_deadline)
         else:
-            interrupted = _run_islands(model, bounds, settings, archive, progress, deadline)
+            interrupted = _run_islands(model, bounds, settings, archive, progress, global_deadline)
     except KeyboardInterrupt:
         interrupted = True
+    stopped_by_time = (
+        interrupted and deadline is not None and time.perf_counter() > (global_deadline or math.inf)
+    )
 
     points, scores = archive.arrays()
     chosen = distinct_best(spec, points, scores, 2 * settings.top, settings.distinct_days)
     final_points = points[chosen]
-    if settings.polish and not interrupted and len(chosen):
+    if settings.polish and (not interrupted or stopped_by_time) and len(chosen):
         try:
-            final_points = polish(model, bounds, final_points)
+            final_points = polish(model, bounds, final_points, deadline=deadline)
         except KeyboardInterrupt:
             interrupted = True
     final_scores = model.score(final_points) if len(final_points) else np.empty(0)
     keep = distinct_best(spec, final_points, final_scores, settings.top, settings.distinct_days)
-    candidates = [evaluate_candidate(model, spec.epochs(final_points[i])) for i in keep]
+    candidates = [
+        evaluate_candidate(
+            model,
+            spec.epochs(final_points[i]),
+            angles_deg=spec.angles(final_points[i]) if spec.resonant_legs else None,
+        )
+        for i in keep
+    ]
     return SearchResult(
         candidates=rank_candidates(candidates),
         evaluations=archive.count,
@@ -258,6 +278,23 @@ def _run_islands(model, bounds, settings, archive, progress, deadline) -> bool:
 
     pop = low + span * rng.random(shape)
     energy = score(pop)
+    try:
+        return _evolve(
+            model, settings, archive, progress, deadline, rng, pop, energy, score, low, span
+        )
+    except KeyboardInterrupt:
+        # Keep what the populations hold (a reseeded island was archived when it converged).
+        archive.add(pop.reshape(-1, n_var), energy.reshape(-1))
+        raise
+
+
+def _evolve(
+    model, settings, archive, progress, deadline, rng, pop, energy, score, low, span
+) -> bool:
+    """The generations of :func:`_run_islands`; ``pop`` and ``energy`` are updated in place so
+    that an interruption leaves the latest populations to the caller."""
+    n_islands, size, n_var = pop.shape
+    shape = pop.shape
     reseeds = 0
     rows = np.arange(n_islands)[:, None]
     for generation in range(1, settings.generations + 1):
@@ -273,8 +310,8 @@ def _run_islands(model, bounds, settings, archive, progress, deadline) -> bool:
         trial = np.where(outside, low + span * rng.random(shape), trial)
         trial_energy = score(trial)
         better = trial_energy <= energy
-        pop = np.where(better[..., None], trial, pop)
-        energy = np.where(better, trial_energy, energy)
+        pop[better] = trial[better]
+        energy[better] = trial_energy[better]
         # A population that has converged (or stalled in the no-arc plateau) is kept in the
         # archive and reseeded: the restarts, run inside the same batched calls.
         finite = np.where(energy < MISSING, energy, np.nan)
@@ -346,47 +383,6 @@ def _callback(spec, settings, restart, progress, deadline):
         return deadline is not None and time.perf_counter() > deadline
 
     return callback
-
-
-def polish(
-    model: SequenceModel,
-    bounds: list[tuple[float, float]],
-    points: NDArray[np.float64],
-    *,
-    first_step_days: float = 2.0,
-    last_step_days: float = 1e-4,
-) -> NDArray[np.float64]:
-    """Polish several points at once by a compass search (derivative free: the score has kinks
-    where a limit starts to bind or the best arc slot changes).
-
-    Each round scores every point moved by plus and minus the step along each variable, all
-    points in one batched call; a point moves to its best neighbour when that is better, and the
-    step of a point that found none is halved, down to ``last_step_days`` (9 s). Never worse
-    than the start.
-    """
-    low = np.array([b[0] for b in bounds])
-    high = np.array([b[1] for b in bounds])
-    x = np.array(points, dtype=float)
-    n, n_var = x.shape
-    value = model.score(x)
-    step = np.full(n, first_step_days)
-    directions = np.concatenate([np.eye(n_var), -np.eye(n_var)])  # (2D, D)
-    for _ in range(2000):
-        active = step >= last_step_days
-        if not active.any():
-            break
-        idx = np.nonzero(active)[0]
-        trial = x[idx, None, :] + step[idx, None, None] * directions[None]
-        trial = np.clip(trial, low, high)
-        scores = model.score(trial.reshape(-1, n_var)).reshape(len(idx), 2 * n_var)
-        pick = np.argmin(scores, axis=1)
-        best = scores[np.arange(len(idx)), pick]
-        improved = best < value[idx]
-        moved = idx[improved]
-        x[moved] = trial[improved, pick[improved]]
-        value[moved] = best[improved]
-        step[idx[~improved]] *= 0.5
-    return x
 
 
 def search_case(

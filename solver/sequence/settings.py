@@ -80,6 +80,17 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         description="Limit: largest periapsis burn of any one flyby.",
     ),
     Setting(
+        "sequence.resonance_miss_max_km",
+        "number",
+        "resonance miss max",
+        unit="km",
+        low=0.0,
+        high=1e9,
+        default=2.0e6,
+        description="Limit of a resonant return: the largest distance between the body's "
+        "positions at the two encounters (the model joins them as one point).",
+    ),
+    Setting(
         "sequence.resonance_angle_deg",
         "number",
         "resonance angle",
@@ -141,6 +152,14 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         high=20,
         description="Complete revolutions of the leg, 0 to 20, both branches (default: "
         "transfer.max_revolutions).",
+    ),
+    Setting(
+        "leg.resonance",
+        "text",
+        "resonance",
+        description="Fly a leg back to the body it left as a resonant return, 'N:M' (the body "
+        "makes N revolutions while the spacecraft makes M): the orbit whose period is TOF/M "
+        "leaves and rejoins the body at one point, its direction chosen by the search.",
     ),
     Setting(
         "leg.altitude_min_km",

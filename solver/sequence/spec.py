@@ -65,6 +65,9 @@ from solver.sequence.settings import (
 )
 from solver.window.case import Case, case_from_dict
 
+PITCH_BOUNDS_DEG = (0.0, 90.0)
+CLOCK_BOUNDS_DEG = (-180.0, 180.0)
+
 MAX_LEGS = 12
 """Legs a sequence may have (a guard against runaway tables, not a limit of the model)."""
 
@@ -106,6 +109,10 @@ class LegSpec:
         A stop's orbit: "capture" or "rendezvous".
     periapsis_altitude_km, apoapsis_altitude_km : float or None
         A capture stop's orbit.
+    resonance : (int, int) or None
+        A resonant return ``(body revolutions, spacecraft revolutions)``: the leg is flown on
+        the orbit whose period is the leg's TOF over the spacecraft's revolutions, leaving and
+        returning to the same point (see :mod:`solver.sequence.resonance`), not a Lambert arc.
     """
 
     from_body: str
@@ -122,6 +129,7 @@ class LegSpec:
     mode: str | None = None
     periapsis_altitude_km: float | None = None
     apoapsis_altitude_km: float | None = None
+    resonance: tuple[int, int] | None = None
 
     @property
     def returns(self) -> bool:
@@ -164,6 +172,8 @@ class SequenceSpec:
         Sequence limits.
     resonance_angle_deg : float
         Transfer-angle tolerance of legs that return to the body they left.
+    resonance_miss_max_km : float
+        Limit of a resonant return: the body's displacement between its two encounters.
     """
 
     name: str
@@ -175,6 +185,7 @@ class SequenceSpec:
     duration_max_days: float | None = None
     flyby_dv_max_km_s: float | None = None
     resonance_angle_deg: float = 0.1
+    resonance_miss_max_km: float = 2.0e6
     events: tuple[Event, ...] = field(default=(), compare=False)
 
     def __post_init__(self) -> None:
@@ -193,47 +204,63 @@ class SequenceSpec:
 
     @property
     def variable_names(self) -> tuple[str, ...]:
-        """The search's variables: departure date, then each leg's TOF and each stop's stay."""
+        """The search's variables: departure date, then each leg's TOF (and a resonant leg's two
+        direction angles) and each stop's stay."""
         names = ["departure_jd_tdb"]
         for k, leg in enumerate(self.legs, start=1):
             names.append(f"leg{k}_tof_days")
+            if leg.resonance is not None:
+                names.extend([f"leg{k}_pitch_deg", f"leg{k}_clock_deg"])
             if leg.kind == "stop":
                 names.append(f"stop{k}_stay_days")
         return tuple(names)
 
+    @property
+    def resonant_legs(self) -> tuple[int, ...]:
+        """Indices of the legs flown as resonant returns."""
+        return tuple(k for k, leg in enumerate(self.legs) if leg.resonance is not None)
+
     def variable_bounds(self, case: Case) -> list[tuple[float, float]]:
-        """Bounds of each variable: the departure window, the TOF and stay bounds."""
+        """Bounds of each variable: the departure window, the TOF and stay bounds, and a
+        resonant leg's pitch (0 to 90 deg) and clock (-180 to 180 deg) angles."""
         bounds = [(case.departure_start_jd_tdb, case.departure_end_jd_tdb)]
         for leg in self.legs:
             bounds.append((leg.tof_min_days, leg.tof_max_days))
+            if leg.resonance is not None:
+                bounds.extend([PITCH_BOUNDS_DEG, CLOCK_BOUNDS_DEG])
             if leg.kind == "stop":
                 assert leg.stay_min_days is not None and leg.stay_max_days is not None
                 bounds.append((leg.stay_min_days, leg.stay_max_days))
         return bounds
 
+    def _date_columns(self) -> list[int]:
+        """Columns of the variables that are dates or durations (not angles)."""
+        return [i for i, name in enumerate(self.variable_names) if not name.endswith("_deg")]
+
     def epochs(self, variables: NDArray[np.float64]) -> NDArray[np.float64]:
         """Encounter dates (JD TDB), shape (..., n_epochs), from variables of shape (..., D)."""
-        x = np.asarray(variables, dtype=float)
-        out = np.empty((*x.shape[:-1], self.n_epochs))
-        out[..., 0] = x[..., 0]
-        column = 1
-        epoch = 0
-        for leg in self.legs:
-            out[..., epoch + 1] = out[..., epoch] + x[..., column]
-            epoch += 1
-            column += 1
-            if leg.kind == "stop":
-                out[..., epoch + 1] = out[..., epoch] + x[..., column]
-                epoch += 1
-                column += 1
-        return out
+        x = np.asarray(variables, dtype=float)[..., self._date_columns()]
+        return np.cumsum(x, axis=-1)
 
-    def variables(self, epochs: NDArray[np.float64]) -> NDArray[np.float64]:
-        """The inverse of :meth:`epochs`."""
+    def angles(self, variables: NDArray[np.float64]) -> NDArray[np.float64]:
+        """Resonant legs' (pitch, clock) angles, deg, shape (..., n_resonant, 2)."""
+        x = np.asarray(variables, dtype=float)
+        columns = [i for i, name in enumerate(self.variable_names) if name.endswith("_deg")]
+        return x[..., columns].reshape(*x.shape[:-1], len(self.resonant_legs), 2)
+
+    def variables(
+        self, epochs: NDArray[np.float64], angles: NDArray[np.float64] | None = None
+    ) -> NDArray[np.float64]:
+        """The inverse of :meth:`epochs` (and :meth:`angles`; zeros where none are given)."""
         e = np.asarray(epochs, dtype=float)
-        out = np.empty((*e.shape[:-1], len(self.variable_names)))
-        out[..., 0] = e[..., 0]
-        out[..., 1:] = np.diff(e, axis=-1)
+        out = np.zeros((*e.shape[:-1], len(self.variable_names)))
+        dates = np.empty_like(e)
+        dates[..., 0] = e[..., 0]
+        dates[..., 1:] = np.diff(e, axis=-1)
+        out[..., self._date_columns()] = dates
+        if angles is not None and self.resonant_legs:
+            columns = [i for i, name in enumerate(self.variable_names) if name.endswith("_deg")]
+            out[..., columns] = np.asarray(angles, dtype=float).reshape(*e.shape[:-1], -1)
         return out
 
     def leg_epochs(self, k: int) -> tuple[int, int]:
@@ -480,6 +507,15 @@ def _sequence(case: Case, registry: BodyRegistry, table: Any, where: str) -> Seq
         revs = default_revs if revs is None else int(revs)
 
         fields: dict[str, Any] = {}
+        resonance = read_setting_at("leg.resonance", leg_table, at)
+        if resonance is not None:
+            if body.key != previous.key:
+                raise InputError(
+                    f"{at}.resonance",
+                    resonance,
+                    f"only on a leg back to the body it left ({previous.name})",
+                )
+            fields["resonance"] = _ratio(resonance, f"{at}.resonance")
         if kind == "flyby":
             if not has_mass(body):
                 raise InputError(
@@ -524,9 +560,24 @@ def _sequence(case: Case, registry: BodyRegistry, table: Any, where: str) -> Seq
         duration_max_days=read_setting_at("sequence.duration_max_days", table, where),
         flyby_dv_max_km_s=read_setting_at("sequence.flyby_dv_max_km_s", table, where),
         resonance_angle_deg=read_setting_at("sequence.resonance_angle_deg", table, where),
+        resonance_miss_max_km=read_setting_at("sequence.resonance_miss_max_km", table, where),
     )
     _check_dates(case, registry, spec, where)
     return spec
+
+
+def _ratio(text: str, key: str) -> tuple[int, int]:
+    accepted = (
+        "'N:M', N revolutions of the body while the spacecraft makes M (whole numbers >= 1), "
+        "e.g. '2:1'"
+    )
+    parts = text.replace(" ", "").split(":")
+    if len(parts) != 2 or not all(p.isdigit() for p in parts):
+        raise InputError(key, text, accepted)
+    n, m = int(parts[0]), int(parts[1])
+    if n < 1 or m < 1 or n > 100 or m > 100:
+        raise InputError(key, text, accepted)
+    return n, m
 
 
 def _stop(body: Body, table: dict[str, Any], at: str) -> dict[str, Any]:
@@ -599,7 +650,9 @@ def _check_dates(case: Case, registry: BodyRegistry, spec: SequenceSpec, where: 
 
 
 __all__ = [
+    "CLOCK_BOUNDS_DEG",
     "MAX_LEGS",
+    "PITCH_BOUNDS_DEG",
     "Event",
     "LegSpec",
     "SequenceCase",
