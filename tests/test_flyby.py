@@ -70,7 +70,7 @@ def _asymptote(r0, v0, mu, forward: bool):
         return np.concatenate([y[3:], -r / np.linalg.norm(r) ** 3])
 
     velocities = []
-    for radius in (2.0e4, 4.0e4):
+    for radius in (1.0e5, 2.0e5):
 
         def reached(_t, y, radius=radius):
             return np.linalg.norm(y[:3]) - radius

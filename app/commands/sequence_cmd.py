@@ -76,16 +76,16 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument(
         "--restarts",
         type=int,
-        default=4,
+        default=8,
         metavar="N",
-        help="populations searched together (default 4)",
+        help="populations searched together (default 8)",
     )
     parser.add_argument(
         "--population",
         type=int,
-        default=40,
+        default=20,
         metavar="N",
-        help="population per variable (default 40)",
+        help="population per variable (default 20)",
     )
     parser.add_argument(
         "--generations", type=int, default=300, metavar="N", help="generations (default 300)"

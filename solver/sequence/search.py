@@ -42,6 +42,8 @@ Progress = Callable[[str], None]
 POLISH_SHARE_COMPLEMENT = 0.85
 """Under a time limit, the global phase ends at this fraction of it; the polish and the exact
 evaluation of the candidates use the rest."""
+POLISH_DEADLINE_SHARE = 0.95
+"""...and the polish stops at this fraction, leaving the rest to the exact evaluations."""
 
 
 @dataclass(frozen=True)
@@ -72,8 +74,8 @@ class SearchSettings:
 
     top: int = 5
     seed: int = 0
-    restarts: int = 4
-    population: int = 40
+    restarts: int = 8
+    population: int = 20
     generations: int = 300
     distinct_days: float = 5.0
     polish: bool = True
@@ -237,7 +239,10 @@ def search_sequence(
     final_points = points[chosen]
     if settings.polish and (not interrupted or stopped_by_time) and len(chosen):
         try:
-            final_points = polish(model, bounds, final_points, deadline=deadline)
+            polish_deadline = (
+                None if deadline is None else start + POLISH_DEADLINE_SHARE * (deadline - start)
+            )
+            final_points = polish(model, bounds, final_points, deadline=polish_deadline)
         except KeyboardInterrupt:
             interrupted = True
     final_scores = model.score(final_points) if len(final_points) else np.empty(0)

@@ -66,8 +66,8 @@ class SequenceSurveySettings:
     """
 
     seed: int = 0
-    restarts: int = 4
-    population: int = 40
+    restarts: int = 8
+    population: int = 20
     generations: int = 300
     time_limit_s: float | None = None
     method: str = "islands"
@@ -298,7 +298,7 @@ def run_sequence_survey(
         client.submit(scan_sequence_task, dict(task), retries=retries, pure=False) for task in tasks
     ]
     try:
-        for future in as_completed(futures):
+        for future in as_completed(list(futures), loop=client.loop):
             try:
                 rows.append(future.result())
             except Exception as exc:  # a task that failed after its retries keeps its row
