@@ -322,3 +322,19 @@ def test_a_link_reopens_the_same_candidate_and_the_record_is_plain_data():
     record = candidate_record(sequence_case, candidate, case_id="upload-abc")
     assert json.loads(json.dumps(record)) == record
     assert record["link"] == params and record["encounters"][1]["kind"] == "stop"
+
+
+def test_a_link_carries_a_resonant_legs_angles():
+    sequence_case = _sample("harrow_jupiter_veega")
+    spec = sequence_case.sequences[0]
+    model = SequenceModel(sequence_case.case, spec)
+    bounds = np.array(spec.variable_bounds(sequence_case.case))
+    x = bounds[:, 0] + 0.4 * np.ptp(bounds, 1)
+    candidate = evaluate_candidate(model, spec.epochs(x), angles_deg=spec.angles(x))
+    params = link_parameters(candidate, "sample")
+    assert params["arcs"].split(".")[2] == "*" and "/" in params["res"]
+    again = candidate_from_link(sequence_case, params)
+    assert again.legs[2].metrics["pitch_deg"] == pytest.approx(
+        candidate.legs[2].metrics["pitch_deg"], abs=1e-6
+    )
+    assert again.dv_total_km_s == pytest.approx(candidate.dv_total_km_s, rel=1e-6)

@@ -52,6 +52,12 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         "or Nh (N revolutions, low or high branch), * (the best); default: the best of each",
     )
     parser.add_argument(
+        "--resonance",
+        metavar="PITCH/CLOCK,...",
+        help="with --evaluate: each resonant leg's pitch and clock angles, deg (default: the "
+        "best for the dates)",
+    )
+    parser.add_argument(
         "--sequence",
         action="append",
         metavar="NAME",
@@ -245,10 +251,14 @@ def _evaluate(sequence_case, args):
     parameters = {"seq": names[0], "at": args.evaluate.replace(",", "~")}
     if args.arcs:
         parameters["arcs"] = args.arcs
+    if args.resonance:
+        parameters["res"] = args.resonance
     try:
         return candidate_from_link(sequence_case, parameters)
     except InputError as exc:
-        field = {"at": "--evaluate", "arcs": "--arcs"}.get(exc.field, exc.field)
+        field = {"at": "--evaluate", "arcs": "--arcs", "res": "--resonance"}.get(
+            exc.field, exc.field
+        )
         raise InputError(field, exc.value, exc.accepted) from None
 
 

@@ -26,8 +26,9 @@ from solver.sequence.spec import SequenceCase, SequenceSpec
 from solver.window.provenance import case_hash
 
 DATE_SEPARATOR = "~"
-LINK_KEYS = ("case", "seq", "at", "arcs")
-"""The link parameters of a sequence candidate (``case`` is the dashboard's case id)."""
+LINK_KEYS = ("case", "seq", "at", "arcs", "res")
+"""The link parameters of a sequence candidate (``case`` is the dashboard's case id; ``res``
+each resonant leg's pitch/clock angles in degrees, joined by ',')."""
 
 
 def _utc(jd_tdb: float) -> str:
@@ -59,12 +60,23 @@ def _slot_of(text: str, field: str) -> int | None:
 
 def link_parameters(candidate: Candidate, case_id: str) -> dict[str, str]:
     """The URL query parameters that reopen ``candidate`` (``case`` = the dashboard's case id)."""
-    return {
+    out = {
         "case": case_id,
         "seq": candidate.sequence,
         "at": DATE_SEPARATOR.join(_utc(jd) for jd in candidate.epochs_jd_tdb),
-        "arcs": ".".join(_slot_text(leg.revolutions, leg.branch) for leg in candidate.legs),
+        "arcs": ".".join(
+            "*" if leg.branch == "resonant" else _slot_text(leg.revolutions, leg.branch)
+            for leg in candidate.legs
+        ),
     }
+    angles = [
+        f"{leg.metrics['pitch_deg']:.6f}/{leg.metrics['clock_deg']:.6f}"
+        for leg in candidate.legs
+        if leg.branch == "resonant"
+    ]
+    if angles:
+        out["res"] = ",".join(angles)
+    return out
 
 
 def link_query(candidate: Candidate, case_id: str) -> str:
@@ -94,7 +106,34 @@ def candidate_from_link(sequence_case: SequenceCase, parameters: Mapping[str, st
                     parts[k],
                     f"at most {leg.max_revolutions} revolutions on leg {k + 1}",
                 )
-    return evaluate_candidate(SequenceModel(sequence_case.case, spec), epochs, slots=slots)
+    angles = None
+    res = parameters.get("res")
+    if res:
+        angles = parse_resonance_angles(spec, res, "res")
+    model = SequenceModel(sequence_case.case, spec)
+    return evaluate_candidate(model, epochs, slots=slots, angles_deg=angles)
+
+
+def parse_resonance_angles(spec: SequenceSpec, text: str, field: str) -> list[list[float]]:
+    """``"12.5/40,8/-90"`` -> [[12.5, 40.0], [8.0, -90.0]]: each resonant leg's pitch and
+    clock angles, deg, in leg order."""
+    accepted = (
+        f"{len(spec.resonant_legs)} PITCH/CLOCK pairs in degrees joined by ',', one per "
+        "resonant leg, e.g. 12.5/40"
+    )
+    pairs = [p for p in text.split(",") if p.strip()]
+    if len(pairs) != len(spec.resonant_legs):
+        raise InputError(field, text, accepted)
+    out = []
+    for pair in pairs:
+        try:
+            pitch, clock = (float(x) for x in pair.split("/"))
+        except ValueError:
+            raise InputError(field, text, accepted) from None
+        if not (0.0 <= pitch <= 90.0 and -180.0 <= clock <= 180.0):
+            raise InputError(field, text, "pitch 0 to 90 deg, clock -180 to 180 deg")
+        out.append([pitch, clock])
+    return out
 
 
 def parse_encounter_dates(spec: SequenceSpec, texts: list[str], field: str) -> list[float]:
@@ -179,4 +218,5 @@ __all__ = [
     "link_parameters",
     "link_query",
     "parse_encounter_dates",
+    "parse_resonance_angles",
 ]
