@@ -106,7 +106,7 @@ def _flyby_case(speed_in, speed_out, turn_deg, seed=0):
     ],
 )
 def test_unpowered_flyby_propagated_from_its_periapsis_leaves_along_vinf_out(
-    speed_km_s, turn_deg, mu
+    speed_km_s, turn_deg, mu, validation
 ):
     v_in, v_out = _flyby_case(speed_km_s, speed_km_s, turn_deg)
     flyby = solve_flybys(v_in, v_out, mu)
@@ -118,6 +118,15 @@ def test_unpowered_flyby_propagated_from_its_periapsis_leaves_along_vinf_out(
     back = _asymptote(rp * radial, speed_p * along, mu, forward=False)
     assert np.linalg.norm(out - v_out) <= 1e-6 * speed_km_s
     assert np.linalg.norm(back - v_in) <= 1e-6 * speed_km_s
+    validation.record(
+        f"unpowered flyby (v∞ {speed_km_s} km/s, turn {turn_deg} deg) propagated from the "
+        "computed periapsis: asymptotes against v∞ in and out",
+        source="scipy.integrate.solve_ivp, DOP853 (docs/references.md 9)",
+        tag="independent library",
+        measured=max(np.linalg.norm(out - v_out), np.linalg.norm(back - v_in)) / speed_km_s,
+        tolerance=1e-6,
+        unit="relative",
+    )
 
 
 @pytest.mark.parametrize(
@@ -129,7 +138,7 @@ def test_unpowered_flyby_propagated_from_its_periapsis_leaves_along_vinf_out(
     ],
 )
 def test_powered_flyby_with_its_periapsis_burn_joins_both_asymptotes(
-    speed_in, speed_out, turn_deg, mu
+    speed_in, speed_out, turn_deg, mu, validation
 ):
     v_in, v_out = _flyby_case(speed_in, speed_out, turn_deg, seed=3)
     flyby = solve_flybys(v_in, v_out, mu)
@@ -142,10 +151,21 @@ def test_powered_flyby_with_its_periapsis_burn_joins_both_asymptotes(
     out = _asymptote(rp * radial, speed_p_out * along, mu, forward=True)
     assert np.linalg.norm(back - v_in) <= 1e-6 * speed_in
     assert np.linalg.norm(out - v_out) <= 1e-6 * speed_out
+    validation.record(
+        f"powered flyby (v∞ {speed_in} -> {speed_out} km/s, turn {turn_deg} deg), the burn at "
+        "periapsis: both asymptotes",
+        source="scipy.integrate.solve_ivp, DOP853 (docs/references.md 9)",
+        tag="independent library",
+        measured=max(
+            np.linalg.norm(back - v_in) / speed_in, np.linalg.norm(out - v_out) / speed_out
+        ),
+        tolerance=1e-6,
+        unit="relative",
+    )
     assert float(flyby.dv_km_s) == pytest.approx(abs(speed_p_out - speed_p_in), rel=1e-12)
 
 
-def test_the_textbook_venus_flyby():
+def test_the_textbook_venus_flyby(validation):
     """Curtis ch. 8 worked example (docs/references.md 8.1), the Venus flyby at 300 km.
 
     Statement (from memory): the spacecraft leaves the Earth's orbit (radius 149.6e6 km) at the
@@ -182,6 +202,21 @@ def test_the_textbook_venus_flyby():
     )
     assert float(flyby.turn_angle_deg) == pytest.approx(turn, abs=1e-10)
     assert float(flyby.dv_km_s) == pytest.approx(0.0, abs=1e-15)
+    for check, measured, tolerance, unit in (
+        ("Curtis ch. 8 Venus flyby: v∞", abs(speed - 3.733), 0.0015, "km/s"),
+        ("Curtis ch. 8 Venus flyby: hyperbola eccentricity", abs(e_hyperbola - 1.272), 0.001, ""),
+        ("Curtis ch. 8 Venus flyby: turn angle", abs(turn - 103.6), 0.06, "deg"),
+    ):
+        validation.record(
+            check,
+            source="Curtis, Orbital Mechanics for Engineering Students, ch. 8 (docs/references.md "
+            "8.1)",
+            tag="MEMORY",
+            measured=measured,
+            tolerance=tolerance,
+            unit=unit,
+            note="printed to 4 digits; recomputed from the statement",
+        )
 
 
 speeds = st.floats(0.2, 40.0)

@@ -124,7 +124,7 @@ tof_max_days = 400
 
 
 @pytest.mark.slow
-def test_the_flown_1989_venus_earth_earth_sequence_is_rediscovered():
+def test_the_flown_1989_venus_earth_earth_sequence_is_rediscovered(validation):
     """Dates within 15 days for the launch and the three flybys.
 
     What the model leaves out of the flown mission: the trajectory correction manoeuvres, the
@@ -146,6 +146,21 @@ def test_the_flown_1989_venus_earth_earth_sequence_is_rediscovered():
     misses = [abs(a - b) for a, b in zip(best.epochs_jd_tdb, flown, strict=True)]
     assert max(misses[:4]) <= 15.0, misses
     assert misses[4] <= 31.0, misses
+    for name, miss, tolerance in zip(
+        ("launch", "Venus flyby", "first Earth flyby", "second Earth flyby", "Jupiter arrival"),
+        misses,
+        (15.0, 15.0, 15.0, 15.0, 31.0),
+        strict=True,
+    ):
+        validation.record(
+            f"flown 1989 Venus-Earth-Earth sequence rediscovered: {name} date",
+            source="the flown mission's dates (docs/references.md 8.4)",
+            tag="MEMORY",
+            measured=miss,
+            tolerance=tolerance,
+            unit="days",
+            note="search over the 1989 launch year, minimum C3, unpowered flybys",
+        )
     assert best.epochs_jd_tdb[4] <= sequence_case.case.arrival_end_jd_tdb
     # Launch energy of the flown mission: C3 about 15-17 km²/s² [MEMORY]; Venus flyby at about
     # 16,000 km altitude [MEMORY]; the second Earth flyby at about 300 km [MEMORY].
@@ -162,7 +177,7 @@ def test_the_flown_1989_venus_earth_earth_sequence_is_rediscovered():
 
 
 @pytest.mark.slow
-def test_mars_round_trips_show_the_long_and_short_stay_classes():
+def test_mars_round_trips_show_the_long_and_short_stay_classes(validation):
     """Common practice (docs/references.md 8.5): the conjunction (long-stay) class stays about
     450-550 days and takes about 900-1000 days in all at the lowest Δv; the opposition
     (short-stay) class stays 30-90 days, takes about 400-650 days, and costs markedly more.
@@ -181,3 +196,21 @@ def test_mars_round_trips_show_the_long_and_short_stay_classes():
     assert short_stay.duration_days <= 650.0
     assert 30.0 <= short_stay.encounters[1].stay_days <= 90.0
     assert short_stay.dv_total_km_s >= long_stay.dv_total_km_s + 1.0
+    validation.record(
+        "Mars round trip, long-stay class: total duration (900-1000 days)",
+        source="docs/references.md 8.5",
+        tag="common practice",
+        measured=long_stay.duration_days,
+        tolerance=1020.0,
+        unit="days",
+        note=f"stay {long_stay.encounters[1].stay_days:.0f} d, {long_stay.dv_total_km_s:.2f} km/s",
+    )
+    validation.record(
+        "Mars round trip, short-stay class: Δv above the long stay's",
+        source="docs/references.md 8.5",
+        tag="common practice",
+        measured=short_stay.dv_total_km_s - long_stay.dv_total_km_s,
+        tolerance=1.0,
+        unit="km/s",
+        note=f"{short_stay.duration_days:.0f} days in all (at least 1 km/s more required)",
+    )

@@ -294,3 +294,16 @@ def test_one_bad_value_is_refused_naming_its_key(table, data, key, value):
     assert info.value.field.endswith((key, "tof_max_days", "stay_max_days", "kind")), (
         info.value.field
     )
+
+
+def test_every_sequence_setting_and_default_altitude_is_documented():
+    from pathlib import Path
+
+    from solver.sequence.settings import FLYBY_ALTITUDE_MIN_KM, SEQUENCE_SETTINGS
+
+    text = (Path(__file__).resolve().parents[1] / "docs" / "case-format.md").read_text()
+    assert "## [sequence]" in text and "## [[sequence.legs]]" in text
+    for setting in SEQUENCE_SETTINGS:
+        assert f"`{setting.name}`" in text, setting.key
+    for body in FLYBY_ALTITUDE_MIN_KM:
+        assert f"| {body} |" in text, body

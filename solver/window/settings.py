@@ -126,7 +126,11 @@ class Setting:
 
 
 def _g(value: float | None) -> str:
-    return "any" if value is None else f"{value:g}"
+    if value is None:
+        return "any"
+    if float(value).is_integer() and abs(value) >= 1e4:
+        return f"{int(value)}"
+    return f"{value:g}"
 
 
 _STEP = {
