@@ -67,7 +67,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument(
         "--grid",
         action="store_true",
-        help="search a coarse grid of dates with pruning instead (repeatable, no randomness)",
+        help="search a coarse grid of dates with pruning instead (the same result every run)",
     )
     parser.add_argument(
         "--beam",
