@@ -72,9 +72,10 @@ def periapsis_for_turn(turn_rad: float, vin: float, vout: float, mu: float) -> f
     inf for no turn; 0 for a turn of π or more (no periapsis can make it); NaN for bad input.
 
     Newton's iteration on w = 1/r_p: the turn, atan(w/sqrt(a² + 2aw)) summed over both
-    hyperbolas (a = v∞²/μ), is increasing and concave in w, so from the left end of the bracket
-    (the smaller of the two unpowered half-turn values of w, where the turn is short of δ) every
-    step stays short of the root and the iterates rise to it monotonically, in 4-8 steps.
+    hyperbolas (a = v∞²/μ), is increasing and concave in w, so from any point left of the root
+    (where the turn is short of δ; the smaller of the two unpowered half-turn values of w is
+    one) every step stays short of the root and the iterates rise to it monotonically, in 3-5
+    steps.
     """
     if not (math.isfinite(turn_rad) and vin > 0.0 and vout > 0.0 and mu > 0.0):
         return math.nan
@@ -86,7 +87,18 @@ def periapsis_for_turn(turn_rad: float, vin: float, vout: float, mu: float) -> f
     b = vout * vout / mu
     # Unpowered flybys turning δ/2 each: e = 1/sin(δ/2), w = 1/r_p = (v∞²/μ) / (e - 1).
     e_half_minus_one = 1.0 / math.sin(0.5 * turn_rad) - 1.0
-    w = min(a, b) / e_half_minus_one
+    lo = min(a, b) / e_half_minus_one
+    # One Newton step from the mean speed's unpowered value (at or right of the root, and close
+    # to it for similar speeds) lands just left of the root; from there the iterates rise. The
+    # step saves one evaluation on average; the bracket's left end is the fallback.
+    w = 0.5 * (a + b) / e_half_minus_one
+    f = _half_turn_of_w(w, a) + _half_turn_of_w(w, b) - turn_rad
+    slope = a / ((a + w) * math.sqrt(a * a + 2.0 * a * w)) + b / (
+        (b + w) * math.sqrt(b * b + 2.0 * b * w)
+    )
+    w = w - f / slope
+    if not w > lo:
+        w = lo
     for _ in range(_MAX_ITERATIONS):
         f = _half_turn_of_w(w, a) + _half_turn_of_w(w, b) - turn_rad
         slope = a / ((a + w) * math.sqrt(a * a + 2.0 * a * w)) + b / (
