@@ -46,6 +46,13 @@ OBLIQUITY_J2000_ARCSEC = 84381.406
 OBLIQUITY_J2000_DEG = OBLIQUITY_J2000_ARCSEC / 3600.0
 OBLIQUITY_J2000_RAD = math.radians(OBLIQUITY_J2000_DEG)
 
+OBLIQUITY_J2000_IAU1976_ARCSEC = 84381.448
+"""Obliquity of the ecliptic at J2000, IAU 1976 (Lieske et al. 1977) [FOUND: docs/references.md
+4.4]. The J2000 ecliptic of small-body element lists is commonly defined with this value (common
+practice); it differs from the IAU 2006 value by 0.042 arcsec, which turns a body at 2.8 au by
+up to ~85 km."""
+OBLIQUITY_J2000_IAU1976_RAD = math.radians(OBLIQUITY_J2000_IAU1976_ARCSEC / 3600.0)
+
 # ---------------------------------------------------------------------------------------------
 # GM, km^3/s^2, from the DE423 header: GM[au^3/d^2] * DE423_AU_KM**3 / 86400**2
 # (header name in brackets). Outer planets (and Mars) are SYSTEM values, planet plus moons,

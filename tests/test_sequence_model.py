@@ -246,7 +246,7 @@ def test_a_resonant_return_comes_back_to_where_it_left():
 
     sol = solve_ivp(
         rhs,
-        (0.0, leg.tof_days * 86400.0),
+        (0.0, leg.flight_s),
         np.concatenate([leg.r1_km, leg.v1_km_s]),
         method="DOP853",
         rtol=1e-12,

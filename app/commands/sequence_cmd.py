@@ -20,7 +20,6 @@ from app.commands._common import CAUTION
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "sequence",
-        help="search flyby sequences, round trips and tours (multi-leg arcs)",
         description="Search the encounter dates of a case's sequences (departure, flybys and "
         "stops, target), rank the K best distinct candidates within limits, or evaluate one set "
         "of dates. A case without a [sequence] section is a sequence of one leg. " + CAUTION,
@@ -155,6 +154,7 @@ def run(args: argparse.Namespace) -> int:
     from solver.sequence.spec import load_sequence_case
 
     sequence_case = load_sequence_case(resolve_sequence_case_path(args.case))
+    prepare_sequence_solver()
     if args.years or args.targets:
         from app.commands.sequence_survey import run_survey
 
@@ -239,6 +239,29 @@ def run(args: argparse.Namespace) -> int:
         print(format_report(sequence_case, candidates, notes))
         print(CAUTION)
     return 130 if interrupted else 0
+
+
+def prepare_sequence_solver() -> None:
+    """The engine's kernels and the sequence search's own, compiled now if this machine has not
+    yet (said on stderr, with progress); silent when they are."""
+    from app.commands._common import prepare_solver
+    from solver.mechanics.kernels import is_compiled_here
+    from solver.sequence.kernels import sequence_kernels
+
+    prepare_solver()
+    kernels = sequence_kernels()
+    pending = [k for k in kernels if not is_compiled_here(k.dispatcher)]
+    if not pending:
+        return
+    print(
+        f"arcwindow: preparing the sequence search, once: compiling {len(pending)} kernels "
+        "for this machine (up to a minute; later runs load them in under a second)",
+        file=sys.stderr,
+        flush=True,
+    )
+    for kernel in kernels:
+        kernel.warm()
+    print("arcwindow: sequence search ready", file=sys.stderr, flush=True)
 
 
 def _evaluate(sequence_case, args):

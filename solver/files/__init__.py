@@ -52,5 +52,6 @@ __all__, __getattr__, __dir__ = lazy_api(
             "candidates_frame",
             "write_candidates",
         ],
+        "paths": ["prepare_output"],
     },
 )

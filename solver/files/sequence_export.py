@@ -246,7 +246,7 @@ def candidate_oem_text(
     spec = sequence_case.sequence(candidate.sequence)
     segments = []
     for leg in candidate.legs:
-        tof_s = leg.tof_days * SECONDS_PER_DAY
+        tof_s = leg.flight_s
         t_s, _ = sample_arc(
             leg.r1_km,
             leg.v1_km_s,

@@ -34,6 +34,7 @@ from numpy.typing import NDArray
 from solver.ephemeris.bodies import Body
 from solver.ephemeris.compiled import CompiledStates, compile_states
 from solver.ephemeris.states import states
+from solver.ephemeris.timescales import elapsed_days
 from solver.mechanics.lambert import DEFAULT_ANGLE_TOL_RAD, slot_layout, solve_lambert
 from solver.reasons import Reason
 from solver.sequence.flyby import largest_turn_deg, solve_flybys
@@ -233,6 +234,15 @@ class SequenceModel:
         for j, k in enumerate(resonant):
             assert angles is not None
             batch.legs[k] = self._resonant_leg(k, batch, angles[:, j])
+        if not fast:
+            # As the window engine reports it: the elapsed time a clock on the ground counts
+            # (TT), while the arcs fly the TDB interval; they differ by ms (solver.ephemeris.
+            # timescales.elapsed_days). The search works with the TDB interval.
+            for k, leg_arcs in enumerate(batch.legs):
+                a, b = self.spec.leg_epochs(k)
+                leg_arcs.tof_days = np.asarray(
+                    elapsed_days(epochs[:, a], epochs[:, b]), dtype=float
+                ).reshape(-1)
         return batch
 
     def _resonant_leg(self, k: int, batch: BatchArcs, angles: NDArray[np.float64]) -> LegArcs:

@@ -284,4 +284,70 @@ def solve_batch(
     return body_r, body_v, v1, v2, reason
 
 
-__all__ = ["solve_batch"]
+def _warm_batch(n: int):
+    def call() -> object:
+        from solver.ephemeris.bodies import default_registry
+        from solver.ephemeris.compiled import compile_states
+
+        compiled = compile_states(["earth", "venus"], "sun", default_registry(), 2462000, 2462400)
+        assert compiled is not None
+        epochs = np.empty((n, 2))
+        epochs[:, 0] = 2462100.0
+        epochs[:, 1] = 2462250.0
+        return solve_batch(
+            compiled,
+            epochs,
+            np.array([0, 1]),
+            np.array([0]),
+            np.array([1]),
+            np.array([0]),
+            np.array([1e-7]),
+            1.32712440018e11,
+            np.array([0.0, 0.0, 1.0]),
+            False,
+        )
+
+    return call
+
+
+def _warm_states(n: int):
+    def call() -> object:
+        from solver.ephemeris.bodies import default_registry
+        from solver.ephemeris.compiled import compile_states
+
+        compiled = compile_states(["earth"], "sun", default_registry(), 2462000, 2462400)
+        assert compiled is not None
+        return compiled.states(np.zeros(n, dtype=np.int64), np.full(n, 2462100.0))
+
+    return call
+
+
+def _warm_flybys(n: int):
+    def call() -> object:
+        from solver.sequence.flyby import solve_flybys
+
+        return solve_flybys(
+            np.tile([5.0, 0.0, 0.0], (n, 1)), np.tile([4.0, 3.0, 0.0], (n, 1)), 3.2e5
+        )
+
+    return call
+
+
+def sequence_kernels() -> tuple:
+    """The sequence search's compiled entry points, as :data:`solver.mechanics.kernels.KERNELS`
+    lists the engine's (the command line compiles both up front and says so)."""
+    from solver.ephemeris import compiled as compiled_states
+    from solver.mechanics.kernels import Kernel
+    from solver.sequence import flyby
+
+    return (
+        Kernel("sequence legs, small batches", _kernel_serial, _warm_batch(4)),
+        Kernel("sequence legs, populations", _kernel, _warm_batch(_PARALLEL_MIN)),
+        Kernel("flybys, small batches", flyby._flyby_kernel_serial, _warm_flybys(4)),
+        Kernel("flybys, populations", flyby._flyby_kernel, _warm_flybys(flyby._PARALLEL_MIN)),
+        Kernel("compiled states, few", compiled_states._states_kernel_serial, _warm_states(4)),
+        Kernel("compiled states, many", compiled_states._states_kernel, _warm_states(1024)),
+    )
+
+
+__all__ = ["sequence_kernels", "solve_batch"]

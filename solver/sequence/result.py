@@ -29,6 +29,7 @@ from solver.sequence.limits import (
     rules_for,
 )
 from solver.sequence.polish import polish
+from solver.time_units import SECONDS_PER_DAY
 from solver.window.case_bodies import transfer_angle_deg
 
 
@@ -88,7 +89,13 @@ class LegResult:
 
     @property
     def tof_days(self) -> float:
-        return self.arrival_jd_tdb - self.departure_jd_tdb
+        """Elapsed time of the leg, days (TT, as the window engine reports a TOF)."""
+        return self.metrics["tof_days"]
+
+    @property
+    def flight_s(self) -> float:
+        """The TDB interval the arc flies, s (what propagation of the leg uses)."""
+        return (self.arrival_jd_tdb - self.departure_jd_tdb) * SECONDS_PER_DAY
 
     @property
     def ok(self) -> bool:
