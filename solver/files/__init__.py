@@ -48,7 +48,9 @@ __all__, __getattr__, __dir__ = lazy_api(
             "OEM_VERSION",
             "REF_FRAMES",
             "TIME_SYSTEMS",
+            "OemSegment",
             "format_oem",
+            "format_oem_segments",
             "write_oem",
         ],
         "export": [
@@ -57,6 +59,13 @@ __all__, __getattr__, __dir__ = lazy_api(
             "arc_oem_text",
             "grid_to_frame",
             "read_provenance",
+        ],
+        "sequence_export": [
+            "ENCOUNTER_FIELDS",
+            "candidate_json",
+            "candidate_oem_text",
+            "candidates_frame",
+            "write_candidates",
         ],
         "paths": ["prepare_output"],
     },
