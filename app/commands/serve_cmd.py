@@ -118,7 +118,7 @@ def run(args: argparse.Namespace) -> int:
     print(f"  {budget.describe()}", flush=True)
     if policy.token is not None:
         print(f"  access token required; share this link with the team: {link}", flush=True)
-    for problem in dash_app.server.config.get("ARCWINDOW_STARTUP_NOTES", []):
+    for problem in getattr(dash_app.server, "config", {}).get("ARCWINDOW_STARTUP_NOTES", []):
         print(f"  note: {problem}", flush=True)
     if args.open:
         webbrowser.open(link)

@@ -381,7 +381,7 @@ def check_grid_size(case: Case, cap: int | None = None) -> tuple[int, int, int]:
     if total > limit:
         raise InputError(
             "window",
-            f"{n_dep:,} departure x {n_arr:,} arrival dates x {slots} arcs = {total:,} "
+            f"{n_dep} departure x {n_arr} arrival dates x {slots} arcs = {total:,} "
             f"(about {_gigabytes(estimated_grid_bytes(n_dep, n_arr, slots))})",
             f"at most {limit:,} cell-arcs (about {_gigabytes(limit * (BYTES_PER_CELL_ARC + 16))}; "
             "raise the step days, narrow the dates, lower max_revolutions, or set "
