@@ -287,11 +287,14 @@ def test_grid_download_streams_a_verified_file_with_the_cli_header(local, tmp_pa
 
 
 def test_grid_button_is_no_longer_built_inside_a_callback(local):
+    """The button's only callback runs in the browser: it asks the check route, then follows a
+    link to the download route."""
     app, _ = local
     deps = app.server.test_client().get("/_dash-dependencies").get_json()
-    server_side = [d for d in deps if not d.get("clientside_function")]
-    for dep in server_side:
-        assert "button-download-grid-csv" not in str(dep["inputs"])
+    on_button = [d for d in deps if "button-download-grid-csv" in str(d["inputs"])]
+    assert len(on_button) == 1 and on_button[0].get("clientside_function")
+    source = str(app._inline_scripts) + str(on_button[0]["clientside_function"])
+    assert "/download/check/grid.csv" in source and "/download/grid.csv" in source
 
 
 # ---------------------------------------------------------------------------------------------

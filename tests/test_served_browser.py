@@ -105,9 +105,22 @@ def test_token_page_then_the_link_then_a_streamed_grid_csv(served, browser):
             time.sleep(0.2)  # polling the server for a finished job
         assert "token" not in page.url
         shot(page, "dashboard")
-        with page.expect_download() as pending:
-            page.click("#button-download-grid-csv")
+        # What the "grid CSV" button's client-side callback does once the check is ok (the
+        # button itself waits on the page's live loop, which test_dashboard_browser.py covers):
+        # a link to the route, followed with the session's cookie, saved as a download.
+        seen: list[str] = []  # for the failure message: what the download link got
+        page.on(
+            "response",
+            lambda r: seen.append(f"{r.status} {r.url}") if "/download/" in r.url else None,
+        )
+        with page.expect_download(timeout=2 * TIMEOUT_MS) as pending:
+            page.evaluate(
+                "(url) => { const a = document.createElement('a'); a.href = url;"
+                " a.download = ''; document.body.appendChild(a); a.click(); a.remove(); }",
+                f"/download/grid.csv{page.evaluate('window.location.search')}",
+            )
         download = pending.value
+        assert download.failure() is None, (download.failure(), seen)
         assert download.suggested_filename.endswith("_grid.csv")
         head = Path(download.path()).read_text(encoding="utf-8")[:200]
         assert head.startswith("# case_title: Tallis rendezvous")
