@@ -27,6 +27,8 @@ from solver.window.case import Case
 from solver.window.grid import Cancelled, WindowGrid, compute_window
 from solver.window.provenance import window_cache_key
 
+from .slowdown import Slowdown
+
 DEFAULT_MEMORY_GRIDS = 8
 DEFAULT_MEMORY_BYTES = 2 * 1024**3
 """In-memory LRU bounds: a 1000 x 1000 single-revolution grid holds about 0.15 GB of arrays, a
@@ -91,7 +93,9 @@ class GridStore:
         max_grids: int = DEFAULT_MEMORY_GRIDS,
         max_bytes: int = DEFAULT_MEMORY_BYTES,
         compute: Callable[..., WindowGrid] = compute_window,
+        slowdown: Slowdown | None = None,
     ) -> None:
+        self.slowdown = slowdown or Slowdown.from_environment()
         self.cache = cache
         self.max_grids = max_grids
         self.max_bytes = max_bytes
@@ -170,7 +174,12 @@ class GridStore:
             if job.cancel_event.is_set():
                 raise Cancelled()
 
+        def check() -> None:
+            if job.cancel_event.is_set():
+                raise Cancelled()
+
         try:
+            self.slowdown.grid_pause(check)
             grid = self._compute(case, cache=self.cache, progress=progress)
         except Cancelled:
             job.state, job.message = "cancelled", "Computation cancelled."

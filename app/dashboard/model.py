@@ -50,6 +50,7 @@ from .prepare import (
     utc_text,
 )
 from .shortlist import Shortlist
+from .slowdown import Slowdown
 from .state import (
     LAUNCH_METRICS,
     ViewState,
@@ -145,6 +146,7 @@ class BestArcs:
         self._pending: dict[tuple, Future] = {}
         self._lock = threading.Lock()
         self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="arcwindow-refine")
+        self._slowdown = Slowdown.from_environment()
 
     def get(self, case, grid, metric, arcs, bodies) -> tuple[Arc | None, bool]:
         """(best arc, refined?) now; starts the refinement if it has not started."""
@@ -168,6 +170,7 @@ class BestArcs:
         from solver.window.refine import refine_best  # scipy.optimize: imported when first needed
 
         revolutions, branch = parse_arcs(arcs)
+        self._slowdown.refine_pause()
         try:
             arc = refine_best(case, grid, metric, revolutions=revolutions, branch=branch).arc
         except InputError:
