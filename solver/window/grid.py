@@ -169,12 +169,20 @@ class WindowGrid:
         return cls(case=case, arcs=arcs, provenance=dict(provenance), from_cache=True, **plain)
 
 
+def axis_length(start_jd: float, end_jd: float, step_days: float) -> int:
+    """Number of grid dates from ``start_jd`` to ``end_jd`` at ``step_days``, by arithmetic alone
+    (no axis is built, so a size check costs nothing however large the request)."""
+    span = (end_jd - start_jd) / step_days
+    if not math.isfinite(span) or span < 0:
+        return 1
+    return math.floor(span + 1e-9) + 1
+
+
 def grid_axes(case: Case) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Departure and arrival epochs (JD TDB): start, start + step, ... up to the end date."""
 
     def axis(start, end, step):
-        n = math.floor((end - start) / step + 1e-9) + 1
-        return start + step * np.arange(n)
+        return start + step * np.arange(axis_length(start, end, step))
 
     return (
         axis(case.departure_start_jd_tdb, case.departure_end_jd_tdb, case.departure_step_days),
@@ -196,19 +204,25 @@ def max_cell_arcs(value: int | None = None) -> int:
 
 
 def check_grid_size(case: Case, cap: int | None = None) -> tuple[int, int, int]:
-    """(n_dep, n_arr, slots) of the case's grid; InputError if it exceeds the cap."""
-    dep, arr = grid_axes(case)
+    """(n_dep, n_arr, slots) of the case's grid; InputError if it exceeds the cap.
+
+    Computed from the windows and steps alone, before anything is allocated.
+    """
+    n_dep = axis_length(
+        case.departure_start_jd_tdb, case.departure_end_jd_tdb, case.departure_step_days
+    )
+    n_arr = axis_length(case.arrival_start_jd_tdb, case.arrival_end_jd_tdb, case.arrival_step_days)
     slots = 2 * case.max_revolutions + 1
-    total = len(dep) * len(arr) * slots
+    total = n_dep * n_arr * slots
     limit = max_cell_arcs(cap)
     if total > limit:
         raise InputError(
             "window",
-            f"{len(dep)} departure x {len(arr)} arrival dates x {slots} arcs = {total:,}",
+            f"{n_dep} departure x {n_arr} arrival dates x {slots} arcs = {total:,}",
             f"at most {limit:,} cell-arcs (raise the step days, narrow the dates, lower "
             f"max_revolutions, or set {ENV_MAX_CELL_ARCS})",
         )
-    return len(dep), len(arr), slots
+    return n_dep, n_arr, slots
 
 
 def compute_window(
@@ -336,6 +350,7 @@ __all__ = [
     "ENV_MAX_CELL_ARCS",
     "Cancelled",
     "WindowGrid",
+    "axis_length",
     "check_grid_size",
     "compute_window",
     "grid_axes",
