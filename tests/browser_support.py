@@ -298,6 +298,9 @@ _MAP_DIFFERENCE_JS = """
   if (off(y[0], want.y[0]) || off(y[y.length - 1], want.y[1]))
     return `arrivals from ${new Date(y[0]).toISOString()}, `
       + `want ${new Date(want.y[0]).toISOString()}`;
+  if (!want.cells.length) {  // the view has no such arc anywhere: every cell must be empty
+    for (const row of z) for (const v of row) if (Number.isFinite(v)) return `a cell shows ${v}`;
+  }
   for (const [i, j, v] of want.cells) {
     const got = z[j][i];
     if (!(Math.abs(got - v) <= 1e-5 * Math.max(1, Math.abs(v))))

@@ -5,9 +5,9 @@ from __future__ import annotations
 import pytest
 from small_survey import write_small_survey
 
-from app.dashboard.cases import CaseCatalogue
-from app.dashboard.state import from_query
+from app.dashboard.case_catalogue import CaseCatalogue
 from app.dashboard.surveys import SurveyShelf
+from app.dashboard.view_state import from_query
 from app.samples import SAMPLE_DIR
 from solver.ephemeris.timescales import utc_to_jd_tdb
 from solver.errors import InputError

@@ -18,8 +18,8 @@ import pandas as pd
 
 from solver.errors import InputError
 
-from .cases import CaseCatalogue
-from .state import MAP_METRICS
+from .case_catalogue import CaseCatalogue
+from .view_state import MAP_METRICS
 
 _NAME_RE = re.compile(r"[A-Za-z0-9_.-]{1,120}")
 TABLE_ROWS = 200
@@ -69,13 +69,15 @@ class SurveyShelf:
         return [p.stem for p in files if _NAME_RE.fullmatch(p.stem)]
 
     def path(self, name: str) -> Path:
+        """The file of a results name, found in a listing of the shelf (never built from the
+        name a page sent)."""
         if not isinstance(name, str) or not _NAME_RE.fullmatch(name):
             raise InputError("results", str(name)[:60], "the name of a results file on the shelf")
-        path = self.folder / f"{name}.parquet"
-        if not path.is_file():
-            shown = ", ".join(self.names()[:20]) or f"none yet in {self.folder}"
-            raise InputError("results", name, f"a results file on the shelf: {shown}")
-        return path
+        for listed in self.folder.glob("*.parquet") if self.folder.is_dir() else []:
+            if listed.stem == name and listed.is_file():
+                return listed
+        shown = ", ".join(self.names()[:20]) or "none yet"
+        raise InputError("results", name, f"a results file on the shelf: {shown}")
 
     def table(self, name: str) -> SurveyTable:
         """The ranked rows of a results file (read again when the file changes)."""
