@@ -260,7 +260,7 @@ def _interaction_lines(case_id: str, label: str, clicks: int, folder: Path) -> l
     client.settle(300.0)
     client.open_page(search)
     client.settle(300.0)
-    cells = _cells(service, search, clicks)
+    cells = _cells(service, search, 2 * clicks)
 
     def without_map(action):
         # The same requests from a page that has no map to patch: the map is resent whole.
@@ -268,10 +268,10 @@ def _interaction_lines(case_id: str, label: str, clicks: int, folder: Path) -> l
         return action()
 
     ours, naive = [], []
-    for x, y in cells:
+    for (x, y), (u, v) in zip(cells[::2], cells[1::2], strict=True):
         ours.append(_timed(lambda x=x, y=y: client.click(x, y) + client.statuses[-2:]))
         naive.append(
-            _timed(lambda x=x, y=y: without_map(lambda: client.click(x, y) + client.statuses[-2:]))
+            _timed(lambda u=u, v=v: without_map(lambda: client.click(u, v) + client.statuses[-2:]))
         )
     click_ms, naive_ms = 1e3 * statistics.median(ours), 1e3 * statistics.median(naive)
 

@@ -26,9 +26,9 @@ from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc
 from solver.window.grid import WindowGrid
-from solver.window.provenance import window_cache_key
 
 from .display_data import shown_slot
+from .grid_jobs import grid_key
 from .slowdown import Slowdown
 from .view_state import parse_arcs
 
@@ -90,7 +90,7 @@ class BestArcs:
 
     @staticmethod
     def key(grid: WindowGrid, metric: str, arcs: str) -> tuple:
-        return (window_cache_key(grid.case), metric, arcs)
+        return (grid_key(grid.case), metric, arcs)
 
     def node(self, case, grid, metric, arcs, bodies) -> Arc | None:
         """The best arc at its grid node (computed once per key)."""

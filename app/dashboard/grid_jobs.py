@@ -33,6 +33,7 @@ when the engine reports progress.
 
 from __future__ import annotations
 
+import functools
 import logging
 import threading
 import time
@@ -129,6 +130,13 @@ class _Job:
         return self.state in ("queued", "running")
 
 
+@functools.lru_cache(maxsize=1024)
+def grid_key(case: Case) -> str:
+    """The grid's cache key (``window_cache_key``: a SHA-256 of the normalized case), computed
+    once per case (cases are frozen and hashable; a view's case is the same object each time)."""
+    return window_cache_key(case)
+
+
 def grid_nbytes(grid: WindowGrid) -> int:
     return sum(a.nbytes for a in grid.to_arrays().values())
 
@@ -218,7 +226,7 @@ class GridJobs:
         The viewer stops waiting for any other grid. Raises InputError when the grid is over the
         cell-arc cap, or when this address or the whole queue already holds too many jobs.
         """
-        key = window_cache_key(case)
+        key = grid_key(case)
         now = self._clock()
         with self._lock:
             self._expire_leases(now)
@@ -457,5 +465,6 @@ __all__ = [
     "STALL_S",
     "GridJobs",
     "Ticket",
+    "grid_key",
     "grid_nbytes",
 ]

@@ -8,6 +8,7 @@ grid tickets, arcs and figures; the branching of what to do when is in ``view_ch
 
 from __future__ import annotations
 
+import functools
 import math
 import threading
 from collections import OrderedDict
@@ -27,7 +28,7 @@ from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, select_arc, solve_cell
 from solver.window.grid import WindowGrid, grid_axes
 from solver.window.metrics import METRICS
-from solver.window.provenance import case_hash, window_cache_key
+from solver.window.provenance import case_hash
 
 from . import figures
 from .best_arcs import BestArcs
@@ -49,7 +50,7 @@ from .display_data import (
     map_point,
     utc_text,
 )
-from .grid_jobs import GridJobs, Ticket
+from .grid_jobs import GridJobs, Ticket, grid_key
 from .shortlist import Shortlist
 from .slowdown import Slowdown
 from .view_state import (
@@ -115,6 +116,13 @@ def _snap(jd_tdb: float, axis: np.ndarray) -> float:
     """
     k = int(np.argmin(np.abs(axis - jd_tdb)))
     return float(axis[k]) if abs(axis[k] - jd_tdb) < SECOND_DAYS else jd_tdb
+
+
+@functools.lru_cache(maxsize=64)
+def _display_axes(case: Case) -> tuple[np.ndarray, np.ndarray]:
+    """The plot coordinates of a case's grid dates (computed once per case; read only)."""
+    dep_jd, arr_jd = grid_axes(case)
+    return display_ms(dep_jd), display_ms(arr_jd)
 
 
 class WindowService:
@@ -202,8 +210,9 @@ class WindowService:
         x_ms, y_ms = plot_x_to_unix_ms(x), plot_x_to_unix_ms(y)
         if not (math.isfinite(x_ms) and math.isfinite(y_ms)):
             raise ValueError("coordinates are not dates")
-        i = int(np.argmin(np.abs(display_ms(dep_jd) - x_ms)))
-        j = int(np.argmin(np.abs(display_ms(arr_jd) - y_ms)))
+        dep_ms, arr_ms = _display_axes(case)
+        i = int(np.argmin(np.abs(dep_ms - x_ms)))
+        j = int(np.argmin(np.abs(arr_ms - y_ms)))
         return replace(view, selected=(utc_text(dep_jd[i]), utc_text(arr_jd[j])))
 
     def case(self, view: ViewState) -> Case:
@@ -229,7 +238,7 @@ class WindowService:
         return self.grids.ticket(key, viewer)
 
     def grid(self, case: Case) -> WindowGrid | None:
-        return self.grids.memory_get(window_cache_key(case))
+        return self.grids.memory_get(grid_key(case))
 
     def best_state(self, view: ViewState, case: Case, grid: WindowGrid | None) -> str:
         """ "refined", "refining" or "none" for the view's best arc; "lost" without its grid."""
@@ -331,7 +340,7 @@ class WindowService:
         return star, selected
 
     def _map_data(self, view: ViewState, case: Case, grid: WindowGrid):
-        key = (window_cache_key(grid.case), view.metric, view.arcs)
+        key = (grid_key(grid.case), view.metric, view.arcs)
         data = self._map.get(key)
         if data is None:
             data = self._map.put(

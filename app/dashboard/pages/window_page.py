@@ -39,13 +39,13 @@ from flask import request
 
 from solver.errors import InputError
 from solver.time_units import MINUTE_DAYS, MINUTES_PER_DAY
-from solver.window.provenance import window_cache_key
 
 from .. import theme
 from ..case_catalogue import MAX_UPLOAD_BYTES, clean_filename, forget, my_case_ids, remember
 from ..controls import CONTROL_IDS, CONTROLS, ERROR_TARGETS, SLIDER_IDS, SLIDERS
 from ..display_data import display_name
 from ..exports import arc_json, arc_oem, figure_html, grid_csv_bytes, view_stem
+from ..grid_jobs import grid_key
 from ..map_loop import (
     GridStatus,
     Progress,
@@ -192,7 +192,7 @@ def grid_status(
     service: WindowService, view: ViewState, case, viewer: str, restarts: int = 0
 ) -> tuple[GridStatus, Progress]:
     """Ask for a view's grid (start or join its job) and make the view's first status."""
-    key = window_cache_key(case)
+    key = grid_key(case)
     query = to_query(view)
     slots = 2 * case.max_revolutions + 1
     try:
