@@ -265,3 +265,40 @@ def test_bw08_survey_page_lists_targets_and_opens_one(server, server_folder, tab
         "() => (document.querySelector('#div-message-view') || {}).innerText?.includes('target')"
     )
     tab.shot("unknown_target")
+
+
+def test_bw09_downloads_are_named_after_the_view_and_carry_the_caution(server, tabs):
+    """Figure downloads are named after the case and the view; the PNG carries the caution
+    (printed under the figure by the page) and the grid CSV the command line's provenance."""
+    tab = tabs()
+    page = tab.page
+    page.goto(server + "?case=tallis_rendezvous&sel=2036-03-01T00:00:00Z~2036-09-01T00:00:00Z")
+    wait_views_drawn(page)
+    # Record what the page asks plotly to draw into the image.
+    page.evaluate(
+        "() => { const draw = Plotly.toImage; Plotly.toImage = (fig, opts) => {"
+        " window.imageTexts = (fig.layout.annotations || []).map(a => String(a.text));"
+        " return draw(fig, opts); }; }"
+    )
+    with page.expect_download() as info:
+        page.click("#button-png-map")
+    download = info.value
+    texts = page.evaluate("() => window.imageTexts")
+    assert any("high-fidelity" in t and "Caution" in t for t in texts), texts
+    assert download.suggested_filename == (
+        "Tallis_rendezvous_2036_opportunity_c3_N0_2036-03-01_2036-09-01_window_map.png"
+    )
+    png = Path(download.path()).read_bytes()
+    assert png.startswith(b"\x89PNG") and len(png) > 10_000
+    caution = page.evaluate(
+        "() => { const gd = " + GRAPH.format("graph-window-map") + ";"
+        " return gd.layout.annotations.some(a => String(a.text).includes('high-fidelity'));"
+        " }"
+    )
+    assert caution is False  # the caution is added to the image only, not to the live map
+    with page.expect_download() as info:
+        page.click("#button-download-grid-csv")
+    text = Path(info.value.path()).read_text()
+    assert info.value.suggested_filename.endswith("_2036-03-01_2036-09-01_grid.csv")
+    assert text.startswith("# case_title: Tallis rendezvous") and "# caution: " in text
+    tab.shot("downloaded")

@@ -767,4 +767,11 @@ def test_upload_over_http_joins_the_viewers_list_and_is_shown(tmp_path):
     client.values["store-upload.data"] = {"contents": big, "filename": "big.toml"}
     status, reply = client.call("div-message-upload.children", ["store-upload.data"])
     assert status == 200 and "under 256 KiB" in json.dumps(reply)
+    # the viewer removes it from its own list; the picker goes back to the default case
+    client.values["dropdown-case.value"] = case_id
+    client.values["button-case-remove.n_clicks"] = 1
+    status, reply = client.call("dropdown-case.options", ["button-case-remove.n_clicks"])
+    assert status == 200 and client.values["store-my-cases.data"] == []
+    assert reply["response"]["dropdown-case"]["value"] == "tallis_rendezvous"
+    assert all(o["value"] != case_id for o in client.values["dropdown-case.options"])
     service.shutdown()

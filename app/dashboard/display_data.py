@@ -705,11 +705,17 @@ class LimitsBlock:
     excluded_by : list of (str, int)
         Each limit in force with the number of arcs that lifting it alone would admit, most
         first (limits whose lifting admits nothing are left out).
+    breaking : list of (str, int)
+        Each limit in force with the number of arcs that break it, most first.
+    arcs : int
+        Arcs of the kind shown in the grid.
     """
 
     closest: Arc | None
     breaches: list[str]
     excluded_by: list[tuple[str, int]]
+    breaking: list[tuple[str, int]] = field(default_factory=list)
+    arcs: int = 0
 
 
 def limits_block(
@@ -751,10 +757,12 @@ def limits_block(
         if admitted:
             excluded.append((label, admitted))
     excluded.sort(key=lambda item: -item[1])
+    breaking = [(label, int((exists & ~ok).sum())) for label, ok in meets]
+    breaking = sorted([b for b in breaking if b[1]], key=lambda item: -item[1])
     closest_breaches = []
     if closest is not None:
         closest_breaches = limit_breaches(case, closest, bodies)
-    return LimitsBlock(closest, closest_breaches, excluded)
+    return LimitsBlock(closest, closest_breaches, excluded, breaking, int(exists.sum()))
 
 
 __all__ = [

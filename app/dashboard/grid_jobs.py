@@ -62,7 +62,7 @@ LEASE_S = 30.0
 """A waiter that has not polled for this long is dropped (the page polls every 2 s at most)."""
 STALL_S = 120.0
 """A running job that has reported no progress for this long is reported as stalled."""
-MAX_JOBS_PER_ADDRESS = 4
+MAX_JOBS_PER_ADDRESS = 8
 MAX_QUEUED_JOBS = 24
 _FINISHED_JOBS_KEPT = 64
 

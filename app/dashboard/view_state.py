@@ -27,6 +27,7 @@ from typing import Any
 from urllib.parse import parse_qsl, quote
 
 from solver.errors import InputError
+from solver.mechanics.lambert import BRANCH_HIGH, BRANCH_LOW, BRANCH_NAMES, BRANCH_SINGLE
 from solver.time_units import MINUTES_PER_DAY, MS_PER_DAY, SECONDS_PER_DAY
 from solver.window.case import Case, to_toml_dict
 from solver.window.metrics import METRICS
@@ -364,18 +365,22 @@ def arc_choices(max_revolutions: int) -> list[tuple[str, str]]:
     return [(v, arcs_label(v)) for v in values]
 
 
+_SINGLE, _LOW, _HIGH = (BRANCH_NAMES[k] for k in (BRANCH_SINGLE, BRANCH_LOW, BRANCH_HIGH))
+
+
 def parse_arcs(arcs: str) -> tuple[int | None, str | None]:
-    """(revolutions, branch) of an arcs choice; (None, None) for the best arc of each cell."""
+    """(revolutions, branch name) of an arcs choice; (None, None) for the best arc of each cell.
+    Branch names are ``solver.mechanics.lambert.BRANCH_NAMES``; ``L``/``H`` in links."""
     if arcs == "best":
         return None, None
     if arcs == "0":
-        return 0, "single"
-    return int(arcs[:-1]), "low" if arcs.endswith("L") else "high"
+        return 0, _SINGLE
+    return int(arcs[:-1]), _LOW if arcs.endswith("L") else _HIGH
 
 
 def arcs_value(revolutions: int, branch: str) -> str:
     """Inverse of :func:`parse_arcs` for one arc."""
-    return "0" if revolutions == 0 else f"{revolutions}{'L' if branch == 'low' else 'H'}"
+    return "0" if revolutions == 0 else f"{revolutions}{'L' if branch == _LOW else 'H'}"
 
 
 def fit_arcs(arcs: str, max_revolutions: int) -> str:

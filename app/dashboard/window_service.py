@@ -425,6 +425,20 @@ class WindowService:
         )
         return figures.window_map_figure(data)
 
+    def closest_figures(self, view: ViewState, case: Case, grid: WindowGrid, arc: Arc):
+        """(arc view, family chart, details sections) of an arc the limits exclude."""
+        bodies = self.bodies(case)
+        arcs = solve_cell(case, arc.departure_jd_tdb, arc.arrival_jd_tdb, bodies)
+        chosen = next(
+            (a for a in arcs if (a.revolutions, a.branch) == (arc.revolutions, arc.branch)), None
+        )
+        if chosen is None:
+            return None
+        scene = arc_scene(case, chosen, bodies)
+        fam = family_data(case, arcs, chosen, bodies)
+        details = arc_details(case, chosen, grid.provenance, bodies)
+        return figures.arc_view_figure(scene), figures.family_chart_figure(fam), details
+
     def selection_figures(
         self, view: ViewState, case: Case, grid: WindowGrid | None, best: str = "node"
     ):

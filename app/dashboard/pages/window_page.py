@@ -645,19 +645,37 @@ def _register_selection(app, service: WindowService) -> None:
 
 
 def _no_arc_within_limits(service: WindowService, view: ViewState, case, grid, drawn):
-    """The panels of a view with no arc within the limits: which limits exclude the arcs, and
-    the closest arc they exclude."""
-    block = service.limits_block(view, case, grid)
-    lines = [html.Div("No arc within the limits.", className="aw-details-note aw-small")]
-    if block.closest is not None:
-        from ..display_data import utc_text
+    """The panels of a view with no arc within the limits: which limits exclude the arcs and
+    how many each breaks, and the closest arc they exclude, drawn in the arc view, the family
+    chart and the details like any arc."""
+    from ..view_state import arcs_label
 
-        arc = block.closest
+    block = service.limits_block(view, case, grid)
+    if block.closest is None:
+        what = "arc" if view.arcs == "best" else f"{arcs_label(view.arcs)} arc"
+        text = f"No {what} in this window."
+        lines = [
+            html.Div(text, className="aw-details-note aw-small"),
+            html.P(
+                "Change the dates, or the arcs shown (the maximum revolutions and branch).",
+                className="aw-small",
+            ),
+        ]
+        fig = theme.empty_figure(text)
+        return fig, fig, lines, drawn
+    lines = [
+        html.Div(
+            "No arc within the limits. Shown: the closest arc by the map's metric, which breaks "
+            + ("; ".join(block.breaches) or "no single limit (a combination)")
+            + ".",
+            className="aw-details-note aw-small",
+        )
+    ]
+    if block.breaking:
         lines.append(
             html.P(
-                f"Closest arc by the map's metric: departure {utc_text(arc.departure_jd_tdb)}, "
-                f"arrival {utc_text(arc.arrival_jd_tdb)}; it breaks: "
-                + ("; ".join(block.breaches) or "no single limit (a combination)")
+                f"Of the {block.arcs:,} arcs of this window, "
+                + "; ".join(f"{n:,} break {label}" for label, n in block.breaking)
                 + ".",
                 className="aw-small",
             )
@@ -671,25 +689,19 @@ def _no_arc_within_limits(service: WindowService, view: ViewState, case, grid, d
                 className="aw-small",
             )
         )
-    elif block.closest is None:
-        from ..view_state import arcs_label
-
-        what = "arc" if view.arcs == "best" else f"{arcs_label(view.arcs)} arc"
-        lines[0] = html.Div(f"No {what} in this window.", className="aw-details-note aw-small")
-        lines.append(
-            html.P(
-                "Change the dates, or the arcs shown (the maximum revolutions and branch).",
-                className="aw-small",
-            )
-        )
     else:
         lines.append(
             html.P(
-                "No single limit excludes them all; several bind together.", className="aw-small"
+                "No single limit excludes them all; several bind together.",
+                className="aw-small",
             )
         )
-    fig = theme.empty_figure(lines[0].children)
-    return fig, fig, lines, drawn
+    closest = service.closest_figures(view, case, grid, block.closest)
+    if closest is None:
+        fig = theme.empty_figure("No arc within the limits.")
+        return fig, fig, lines, drawn
+    arc_fig, family_fig, details = closest
+    return arc_fig, family_fig, lines + layout.details_children(details), drawn
 
 
 # ---------------------------------------------------------------------------------------------
