@@ -39,7 +39,7 @@ def test_earth_moon_split_and_header_scalars():
 
 @pytest.mark.parametrize("body", sorted(c.GM_DE440_KM3_S2))
 def test_gm_close_to_de440(body):
-    # DE440 values [FOUND: REFERENCES.md 4.1]; ephemerides a decade apart agree to a few ppm
+    # DE440 values [FOUND: docs/references.md 4.1]; ephemerides a decade apart agree to a few ppm
     # (largest: Uranus 1.3e-6, Neptune 1.2e-6, Pluto system 1.5e-3, a poorly known mass then).
     ours = {
         "sun": c.GM_SUN_KM3_S2, "mercury": c.GM_MERCURY_KM3_S2, "venus": c.GM_VENUS_KM3_S2,
@@ -53,8 +53,8 @@ def test_gm_close_to_de440(body):
 
 
 def test_published_scalars():
-    assert c.AU_KM == 149_597_870.7  # IAU 2012 B2, exact [FOUND: REFERENCES.md 4.2]
+    assert c.AU_KM == 149_597_870.7  # IAU 2012 B2, exact [FOUND: docs/references.md 4.2]
     assert c.AU_KM - c.DE423_AU_KM == pytest.approx(0.0004, abs=0.0001)  # fitted au, 0.4 m off
-    # IAU 2015 B3 nominal GM_sun 1.3271244e20 m^3/s^2 [FOUND: REFERENCES.md 4.2]: 8 digits.
+    # IAU 2015 B3 nominal GM_sun 1.3271244e20 m^3/s^2 [FOUND: docs/references.md 4.2]: 8 digits.
     assert c.GM_SUN_KM3_S2 == pytest.approx(1.3271244e11, rel=1e-8)
-    assert c.RADIUS_EARTH_KM == pytest.approx(6378.1366)  # [FOUND: REFERENCES.md 4.3]
+    assert c.RADIUS_EARTH_KM == pytest.approx(6378.1366)  # [FOUND: docs/references.md 4.3]

@@ -23,12 +23,12 @@ def _dec_ra_deg(v):
 
 
 def test_obliquity_is_iau_2006():
-    # 84381.406 arcsec [FOUND: REFERENCES.md 4.4, SOFA obl06] = 23.4392794 deg.
+    # 84381.406 arcsec [FOUND: docs/references.md 4.4, SOFA obl06] = 23.4392794 deg.
     assert OBLIQUITY_J2000_DEG == pytest.approx(23.4392794, abs=1e-7)
 
 
 def test_ecliptic_pole_and_y_axis_in_icrf():
-    # REFERENCES.md 6 [MEMORY, geometry]: a vector along ecliptic +z has declination 90 - eps;
+    # docs/references.md 6 [MEMORY, geometry]: a vector along ecliptic +z has declination 90 - eps;
     # along ecliptic +y, declination eps and right ascension 90 deg.
     dec, _ = _dec_ra_deg(rotate([0.0, 0.0, 1.0], "ecliptic", "icrf"))
     assert dec == pytest.approx(90.0 - OBLIQUITY_J2000_DEG, abs=1e-12)

@@ -108,7 +108,7 @@ def test_propagate_round_trip_and_shapes():
 def test_curtis_example_elements():
     """Curtis, Orbital Mechanics for Engineering Students, Example 5.3 (elements of the
     Example 5.2 arc). [MEMORY] book values h ≈ 80470 km²/s, e = 0.4335, i = 30.19°,
-    Ω = 44.60°, ω = 30.71°, θ1 = 350.8°; [COMPUTED] a = 20003 km (REFERENCES.md 1.1).
+    Ω = 44.60°, ω = 30.71°, θ1 = 350.8°; [COMPUTED] a = 20003 km (docs/references.md 1.1).
     Tolerances follow the printed digits."""
     r1 = np.array([5000.0, 10000.0, 2100.0])
     sol = solve_lambert(r1, [-14600.0, 2500.0, 7000.0], 3600.0, 398600.0)

@@ -114,8 +114,8 @@ def test_target_case_needs_a_tof_bound():
 
 
 def _venus_like(epoch: str) -> ElementBody:
-    """An element body on Venus's mean orbit at the epoch (Standish Table 1 [FOUND: REFERENCES.md
-    2.1], J2000 values plus rates, as in solver/ephemeris/mean_elements.py)."""
+    """An element body on Venus's mean orbit at the epoch (Standish Table 1 [FOUND:
+    docs/references.md 2.1], J2000 values plus rates, as in solver/ephemeris/mean_elements.py)."""
     row = TABLE_1["venus"]
     t_cy = (float(utc_to_jd_tdb(epoch)) - 2451545.0) / 36525.0
     longitude = row.mean_longitude_deg + row.mean_longitude_deg_per_cy * t_cy
@@ -138,7 +138,7 @@ def test_venus_like_target_reaches_the_handbook_minimum_c3(reference_data):
     Publication 82-43's 1999 Earth-Venus opportunity (5.946 km²/s² [SECONDARY], 2% tolerance
     for the handbook, see tests/reference_data/venus_minimum_c3.csv) within 3%: 2% for the
     handbook plus 1% for fixed mean elements instead of DE423 (Standish's stated error for
-    Venus, 20" and 4000 km [FOUND: REFERENCES.md 2.2], moves C3 by well under 1%).
+    Venus, 20" and 4000 km [FOUND: docs/references.md 2.2], moves C3 by well under 1%).
     The zoom refinement and SLSQP (solver.window.refine) reach the same minimum to 1e-5."""
     with open(reference_data / "venus_minimum_c3.csv", newline="") as handle:
         row = next(r for r in csv.DictReader(handle) if r["opportunity"] == "1999")

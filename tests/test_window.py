@@ -159,7 +159,7 @@ def test_venus_best_c3_dates_near_flown_missions(reference_data):
 def test_curtis_earth_mars_example_with_mean_elements():
     """Curtis, Example 8.8 (edition-dependent numbering) [MEMORY]: Earth 1996-11-07 to Mars
     1997-09-12, v∞ 3.1651 km/s leaving and 2.8852 km/s arriving with the book's mean elements;
-    with the Standish 1800-2050 set we use [COMPUTED in REFERENCES.md 1.2] 3.16566 and 2.88519.
+    with the Standish 1800-2050 set we use [COMPUTED in docs/references.md 1.2] 3.16566 and 2.88519.
     Tolerance 1e-3 km/s: the two element sets differ by about 0.5 m/s here."""
     case = parse_case("""
 [case]
@@ -255,7 +255,8 @@ def test_arc_end_points_are_the_bodies(vesper):
     r_v, _ = states("venus", arc.arrival_jd_tdb, central="sun", registry=reg)
     np.testing.assert_array_equal(arc.r1_km, r_e)
     np.testing.assert_array_equal(arc.r2_km, r_v)
-    r_end, _ = propagate(arc.r1_km, arc.v1_km_s, arc.tof_days * 86400.0, arc.mu_km3_s2)
+    # propagated over the TDB interval of the epochs (tof_days is elapsed UTC time, ms apart)
+    r_end, _ = propagate(arc.r1_km, arc.v1_km_s, arc.flight_s, arc.mu_km3_s2)
     assert np.linalg.norm(r_end - r_v) <= 1e-10 * np.linalg.norm(r_v)
     np.testing.assert_allclose(arc.v1_km_s - v_e, arc.v1_km_s - arc.departure_body_v_km_s, atol=0)
 
@@ -275,6 +276,21 @@ def test_cache_hit_is_bit_for_bit(tmp_path):
     # a different case is a different entry
     other = case.with_changes(**{"limits.tof_min_days": 0.02})
     assert not compute_window(other, cache=cache).from_cache
+
+
+def test_grids_cached_by_the_previous_engine_are_not_served(tmp_path, monkeypatch):
+    """Engine 0.1.0 counted grid dates in TDB and reported TDB intervals as TOF: its cached
+    grids hold other dates and numbers, so the current engine must not read them."""
+    import solver.window.provenance as provenance
+
+    case = load("kestrel_relay_leo")
+    cache = GridCache(tmp_path)
+    monkeypatch.setattr(provenance, "ENGINE_VERSION", "0.1.0")
+    old = compute_window(case, cache=cache)
+    assert compute_window(case, cache=cache).from_cache  # served to the same engine
+    monkeypatch.undo()
+    assert not old.from_cache
+    assert not compute_window(case, cache=cache).from_cache
 
 
 def test_cells_without_arcs_carry_reasons(vesper):
@@ -337,7 +353,7 @@ def test_metrics_physics_spot_checks(vesper):
     assert arc.metrics["entry_speed_km_s"] == pytest.approx(
         math.sqrt(va**2 + 2 * venus.gm_km3_s2 / (venus.radius_km + 125.0)), rel=1e-12
     )
-    # DLA of an asymptote along the ecliptic pole is 90° - ε (REFERENCES.md 6 [MEMORY])
+    # DLA of an asymptote along the ecliptic pole is 90° - ε (docs/references.md 6 [MEMORY])
     from solver.window.case_bodies import CaseBodies
     from solver.window.metrics import arc_metrics
 

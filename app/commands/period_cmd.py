@@ -4,13 +4,12 @@ from __future__ import annotations
 
 import argparse
 
-from app.commands._common import CAUTION, add_case_argument, utc
+from app.commands._common import CAUTION, add_case_argument, prepare_solver, utc
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "period",
-        help="place a launch period of L days to minimize its largest C3",
         description="Place a launch period of L consecutive departure days (and, with a fixed "
         "arrival, the arrival date) to minimize the largest C3 the launch vehicle "
         "must deliver. " + CAUTION,
@@ -35,9 +34,12 @@ def run(args: argparse.Namespace) -> int:
 
     from app.samples import load
     from solver.window.launch_period import launch_period
+    from solver.window.outputs import case_outputs
     from solver.window.provenance import provenance
 
     case = load(args.case)
+    case_outputs(case).check_launch_periods(case)
+    prepare_solver()
     period = launch_period(case, args.days, args.strategy)
     days = [
         dict(asdict(d), departure_utc=utc(d.departure_jd_tdb), arrival_utc=utc(d.arrival_jd_tdb))

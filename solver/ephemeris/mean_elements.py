@@ -2,12 +2,13 @@
 
 Source: E. M. Standish, "Keplerian Elements for Approximate Positions of the Major Planets"
 (JPL Solar System Dynamics), Table 1: elements and rates per Julian century TDB, mean ecliptic
-and equinox of J2000, fitted for 1800 AD - 2050 AD [FOUND: REFERENCES.md 2.1]. The stated errors
-in heliocentric longitude, latitude and distance over that interval [FOUND: REFERENCES.md 2.2] sit
-beside each row (:data:`ERROR_BOUNDS`). "The elements are not valid outside the given
-time-interval over which they were fit", so this source refuses dates outside 1800-2050.
+and equinox of J2000, fitted for 1800 AD - 2050 AD [FOUND: docs/references.md 2.1]. The stated
+errors in heliocentric longitude, latitude and distance over that interval [FOUND:
+docs/references.md 2.2] sit beside each row (:data:`ERROR_BOUNDS`). "The elements are not valid
+outside the given time-interval over which they were fit", so this source refuses dates outside
+1800-2050.
 
-Method (REFERENCES.md 2.3): each element is value + rate * T, T = (JD TDB - 2451545)/36525;
+Method (docs/references.md 2.3): each element is value + rate * T, T = (JD TDB - 2451545)/36525;
 ω = ϖ - Ω, M = L - ϖ; Kepler's equation solved by
 ``solver.mechanics.kepler.mean_to_true_anomaly``; the position is placed by
 ``solver.mechanics.kepler.elements_to_state`` in the J2000 ecliptic frame.
@@ -65,7 +66,7 @@ class ErrorBound(NamedTuple):
     distance_km: float
 
 
-# Standish Table 1 [FOUND: REFERENCES.md 2.1, three copies agree]. Order as in MeanElementRow.
+# Standish Table 1 [FOUND: docs/references.md 2.1, three copies agree]. Order as in MeanElementRow.
 TABLE_1: dict[str, MeanElementRow] = {
     "mercury": MeanElementRow(
         0.38709927, 0.20563593, 7.00497902, 252.25032350, 77.45779628, 48.33076593,
@@ -105,7 +106,7 @@ TABLE_1: dict[str, MeanElementRow] = {
     ),
 }  # fmt: skip
 
-# Stated errors, 1800-2050 [FOUND: ssd.jpl.nasa.gov/planets/approx_pos.html, REFERENCES.md 2.2;
+# Stated errors, 1800-2050 [FOUND: ssd.jpl.nasa.gov/planets/approx_pos.html, docs/references.md 2.2;
 # Pluto from the older page only].
 ERROR_BOUNDS: dict[str, ErrorBound] = {
     "mercury": ErrorBound(15.0, 1.0, 1_000.0),

@@ -10,8 +10,11 @@ largest C3 over the period is as small as possible:
   the grid, then refined continuously.
 * ``"free-arrival"``: each day flies its own best arrival date.
 
-Each day's arc must meet the case's other limits (TOF, arrival v∞, clearing the central body);
-the C3 and DLA the period needs are reported and compared with the C3 and DLA limits.
+Every day's arc meets every limit of the case (the limits table of
+:mod:`solver.window.limits`: C3, |DLA|, arrival v∞, TOF, clearing the central body), so the period
+is flyable on each of its days; the largest C3 and |DLA| over the period are reported. When no
+placement of L days has an arc within limits on every day, the error says how long the longest
+such run of days is.
 """
 
 from __future__ import annotations
@@ -23,14 +26,18 @@ import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 from scipy.optimize import minimize_scalar
 
+from solver.ephemeris.timescales import round_to_utc_minute
 from solver.errors import InputError
-from solver.time_units import MINUTE_DAYS, round_to_minute_from
+from solver.time_units import MINUTE_DAYS
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, solve_cell
 from solver.window.grid import compute_window
+from solver.window.limits import LIMIT_RULES
+from solver.window.outputs import case_outputs
 
 STRATEGIES = ("fixed-arrival", "free-arrival")
+_NO_ARC = 1e30
 
 
 @dataclass(frozen=True)
@@ -65,14 +72,27 @@ class LaunchPeriod:
 
 
 def _feasibility_case(case: Case) -> Case:
-    """The case with daily departures and without the C3 and DLA limits (they are outputs)."""
-    return case.with_changes(
-        **{
-            "window.departure_step_days": 1.0,
-            "limits.c3_max_km2_s2": None,
-            "limits.dla_max_deg": None,
-        }
-    )
+    """The case with daily departures (every limit kept: each day must meet all of them)."""
+    return case.with_changes(**{"window.departure_step_days": 1.0})
+
+
+def _longest_run(feasible: np.ndarray) -> int:
+    """Length of the longest run of True in a 1-D boolean array."""
+    best = run = 0
+    for ok in feasible:
+        run = run + 1 if ok else 0
+        best = max(best, run)
+    return best
+
+
+def _limits_text(case: Case) -> str:
+    rules = [
+        f"{rule.label} {'<=' if rule.bound == 'max' else '>='} {rule.limit(case.limits):g}"
+        + (f" {rule.unit}" if rule.unit else "")
+        for rule in LIMIT_RULES
+        if rule.limit(case.limits) is not None
+    ]
+    return ", ".join(rules) if rules else "no limits but clearing the central body"
 
 
 def _best_arc(arcs: list[Arc]) -> Arc | None:
@@ -84,13 +104,19 @@ def _best_arc(arcs: list[Arc]) -> Arc | None:
 def _best_arrival(c3_of_arrival, grid_arrival_jd: float, step_days: float) -> float:
     """The arrival date, to the minute, within a grid step of ``grid_arrival_jd`` that minimizes
     ``c3_of_arrival``; the grid date itself if the continuous search does not beat it."""
+
+    def bounded(arrival: float) -> float:
+        # No arc within limits on some day: a large finite value steers the search away
+        # (infinities give the bounded search inf - inf).
+        return min(c3_of_arrival(arrival), _NO_ARC)
+
     result = minimize_scalar(
-        c3_of_arrival,
+        bounded,
         bounds=(grid_arrival_jd - step_days, grid_arrival_jd + step_days),
         method="bounded",
         options={"xatol": MINUTE_DAYS},
     )
-    arrival = round_to_minute_from(grid_arrival_jd, float(result.x))
+    arrival = round_to_utc_minute(float(result.x))
     return (
         arrival if c3_of_arrival(arrival) <= c3_of_arrival(grid_arrival_jd) else (grid_arrival_jd)
     )
@@ -127,10 +153,12 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
     Raises
     ------
     InputError
-        Bad length or strategy, or no placement where every day has a feasible arc.
+        Bad length or strategy, a case without a launch (a transfer that starts with a burn:
+        :mod:`solver.window.outputs`), or no placement where every day has an arc within limits.
     """
     if strategy not in STRATEGIES:
         raise InputError("strategy", strategy, "'fixed-arrival' or 'free-arrival'")
+    case_outputs(case).check_launch_periods(case)
     feasible_case = _feasibility_case(case)
     grid = compute_window(feasible_case)
     n_days = len(grid.departure_jd_tdb)
@@ -151,11 +179,12 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
     if strategy == "fixed-arrival":
         worst = sliding_window_view(c3, length_days, axis=0).max(axis=-1)  # (starts, n_arr)
         if not np.isfinite(worst).any():
+            longest = max(_longest_run(np.isfinite(c3[:, j])) for j in range(c3.shape[1]))
             raise InputError(
                 "--days",
                 length_days,
-                "a period length for which one arrival date serves every day "
-                "within the case's TOF and arrival limits",
+                f"at most {longest} days: the longest run of departure days that one arrival "
+                f"date serves within every limit of the case ({_limits_text(case)})",
             )
         start, j = (int(k) for k in np.unravel_index(int(np.argmin(worst)), worst.shape))
         dep = grid.departure_jd_tdb[start : start + length_days]
@@ -175,8 +204,9 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
             raise InputError(
                 "--days",
                 length_days,
-                "a period length for which every day has an arc within the "
-                "case's TOF and arrival limits",
+                f"at most {_longest_run(np.isfinite(per_day))} days: the longest run of "
+                f"departure days with an arc within every limit of the case "
+                f"({_limits_text(case)})",
             )
         start = int(np.argmin(worst))
         dep = grid.departure_jd_tdb[start : start + length_days]
@@ -193,6 +223,10 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
             arcs.append(_best_arc(solve_cell(feasible_case, d, arrival, bodies)))
         fixed_arrival = None
 
+    # Every day flies an arc within every limit: the grid placed the period on such days and
+    # the continuous arrival search only moves where that still holds (infinite C3 otherwise).
+    if any(a is None or not a.within for a in arcs):
+        raise RuntimeError("launch period: a day without an arc within limits was placed")
     days = tuple(_day(a) for a in arcs if a is not None)
     max_c3 = max(d.c3_km2_s2 for d in days)
     max_dla = max(abs(d.dla_deg) for d in days)

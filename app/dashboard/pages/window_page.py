@@ -247,6 +247,7 @@ def _register_view(app, service: WindowService) -> None:
         "description": Output("text-case-description", "children"),
         "central": Output("text-central-body", "children"),
         "metric": Output("dropdown-metric", "value"),
+        "metric_options": Output("dropdown-metric", "options"),
         "arc_options": Output("dropdown-arc-slot", "options"),
         "arc_value": Output("dropdown-arc-slot", "value"),
         "errors": Output("store-control-errors", "data"),
@@ -377,6 +378,7 @@ def _fill_controls(out: dict, service: WindowService, view: ViewState, case, my_
     out["case_value"] = view.case
     out["remove_style"] = {} if view.case.startswith("upload-") else {"display": "none"}
     out["metric"] = view.metric
+    out["metric_options"] = service.metric_options(case)
     out["arc_options"] = _arc_options(case.max_revolutions)
     out["arc_value"] = view.arcs
     out["title"] = case.title
