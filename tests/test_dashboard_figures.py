@@ -351,3 +351,16 @@ def test_large_responses_are_compressed(tmp_path):
     packed = client.get("/_dash-layout", headers={"Accept-Encoding": "gzip"})
     assert packed.headers.get("Content-Encoding") == "gzip"
     assert len(packed.data) < len(plain.data) / 3
+
+
+def test_an_arc_the_grid_does_not_hold_is_never_drawn_from_another_slot(tallis):
+    """A grid of single-revolution arcs has no "N = 2, high branch" slot: the map refuses to draw
+    it (it once fell back to slot 0 and showed the N = 0 map under the N = 2 label)."""
+    from app.dashboard.display_data import any_arc_shown, shown_slot
+    from solver.errors import InputError
+
+    _, grid = tallis
+    assert shown_slot(grid, "0") == 0 and shown_slot(grid, "best") is None
+    assert shown_slot(grid, "2H") == -1 and not any_arc_shown(grid, "2H")
+    with pytest.raises(InputError, match="arcs = '2H'"):
+        map_data(grid, "c3_km2_s2", "2H")
