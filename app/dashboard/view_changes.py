@@ -182,7 +182,7 @@ def apply_controls(
             try:
                 trial_case = cases.effective(trial)
             except InputError as exc:
-                errors[where] = short(f"Not applied: {exc}")
+                errors[where] = short(f"Not applied{_which(where, changes, exc)}: {exc}")
                 continue
             applied = with_unit(applied, changes)
             view, case = trial, trial_case
@@ -192,6 +192,17 @@ def apply_controls(
     selected = view.selected if inside(view.selected, case) else None
     view = replace(view, arcs=fit_arcs(view.arcs, case.max_revolutions), selected=selected)
     return view, case, errors
+
+
+def _which(where: str, changes: dict[str, Any], exc: InputError) -> str:
+    """When the case refuses a change because of another setting (a TOF minimum above the TOF
+    maximum), say which change it was: `` (TOF min = 500)``."""
+    if exc.field in changes:
+        return ""
+    control = CONTROL_BY_KEY.get(where)
+    if control is not None:
+        return f" ({control.label} = {changes[where]})"
+    return " (" + ", ".join(f"{k.split('.', 1)[1]} = {v}" for k, v in changes.items()) + ")"
 
 
 def _fired_keys(fired: Iterable[str]) -> list[str]:
