@@ -12,14 +12,16 @@ import re
 import threading
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 from urllib.parse import quote
-
-import pandas as pd
 
 from solver.errors import InputError
 
 from .case_catalogue import CaseCatalogue
 from .view_state import MAP_METRICS
+
+if TYPE_CHECKING:  # pandas is imported when a results file is first read (a faster start)
+    import pandas as pd
 
 _NAME_RE = re.compile(r"[A-Za-z0-9_.-]{1,120}")
 TABLE_ROWS = 200
@@ -121,6 +123,8 @@ class SurveyShelf:
         if rows.empty:
             raise InputError("target", str(target)[:60], f"a target of the survey '{name}'")
         row = rows.iloc[0]
+        import pandas as pd
+
         if pd.isna(row["departure_jd_tdb"]):
             raise InputError("target", target, f"a target with an arc ({row['reason']})")
         case = case_for_target(
@@ -137,5 +141,7 @@ class SurveyShelf:
 
 def _minute(utc: str) -> str:
     """``2032-06-24T00:08:47Z`` -> ``2032-06-24T00:09Z`` (the page's selection format)."""
+    import pandas as pd
+
     stamp = pd.Timestamp(str(utc).rstrip("Z")).round("min")
     return stamp.strftime("%Y-%m-%dT%H:%MZ")
