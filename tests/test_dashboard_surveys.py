@@ -56,3 +56,23 @@ def test_bad_results_names_are_refused(shelf, name):
 def test_unknown_target_is_refused(shelf):
     with pytest.raises(InputError, match="target"):
         shelf.open_target("small", "nobody")
+
+
+def test_a_damaged_results_file_is_reported_on_the_page_not_a_server_error(tmp_path):
+    from app.bench.dashboard_bench import DashClient, _test_client_transport
+    from app.dashboard import create_app
+
+    surveys = tmp_path / "surveys"
+    surveys.mkdir()
+    (surveys / "broken.parquet").write_bytes(b"PAR1 this is not a parquet file")
+    app = create_app(cache_dir=tmp_path / "c", data_dir=tmp_path / "d", surveys_dir=surveys)
+    deps = app.server.test_client().get("/_dash-dependencies").get_json()
+    client = DashClient(_test_client_transport(app), deps)
+    client.values["store-survey-query.data"] = "?results=broken"
+    status, _ = client.call("dropdown-survey-file.options", ["store-survey-query.data"])
+    assert status == 200
+    assert "could not be read" in client.values["div-survey-message.children"]
+    client.values["store-page-query.data"] = "?survey=broken&target=x"
+    assert client.sync("store-page-query.data") == 200
+    assert "could not be read" in str(client.values["div-message-view.children"])
+    app.server.config["ARCWINDOW_SERVICE"].shutdown()

@@ -91,8 +91,13 @@ class SurveyShelf:
             hit = self._loaded.get(name)
             if hit and hit[0] == mtime:
                 return hit[1]
-        frame = load_results(path)
-        meta = read_survey_metadata(path)
+        try:
+            frame = load_results(path)
+            meta = read_survey_metadata(path)
+        except Exception:  # the engine's message names the server's path: not for the page
+            raise InputError(
+                "results", name, "a readable survey results file (this one could not be read)"
+            ) from None
         years = tuple(meta.get("years") or (0, 0))
         engines = sorted(set(frame["engine_version"].astype(str)))
         table = SurveyTable(

@@ -9,6 +9,7 @@ grid tickets, arcs and figures; the branching of what to do when is in ``view_ch
 from __future__ import annotations
 
 import functools
+import logging
 import math
 import threading
 from collections import OrderedDict
@@ -68,6 +69,7 @@ from .view_state import (
 )
 
 _MEMO_SIZE = 32
+_LOG = logging.getLogger(__name__)
 
 
 class _Memo:
@@ -184,6 +186,10 @@ class WindowService:
         except InputError as exc:
             view, case, notes = self.view_from_url("")
             return view, case, [f"survey: {exc}", *notes]
+        except Exception:  # a damaged results file: say so, keep serving
+            _LOG.exception("survey target %s of %s could not be opened", target[:40], name[:40])
+            view, case, notes = self.view_from_url("")
+            return view, case, [f"survey: the results file '{name[:60]}' could not be read"]
         view, case, notes = self.view_from_url(query)
         return view, case, notes
 

@@ -9,6 +9,7 @@ best arc selected. The browser's Back button returns here.
 
 from __future__ import annotations
 
+import logging
 import math
 from urllib.parse import parse_qsl, quote, urlencode
 
@@ -20,6 +21,8 @@ from solver.errors import InputError
 from ..surveys import TABLE_ROWS, SurveyShelf, SurveyTable
 from ..view_changes import short
 from .window_layout import brand
+
+_LOG = logging.getLogger(__name__)
 
 PATH = "/survey"
 TITLE = "arcwindow survey"
@@ -127,6 +130,10 @@ def register_callbacks(app, shelf: SurveyShelf) -> None:
             table = shelf.table(name)
         except InputError as exc:
             return new_options, None, "", "", short(str(exc)), no_update
+        except Exception:  # a damaged file: say so, keep serving
+            _LOG.exception("survey results %s could not be read", name)
+            text = f"The results file '{name}' could not be read (damaged or not a survey)."
+            return new_options, None, "", "", text, no_update
         return (
             new_options,
             name,
