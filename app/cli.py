@@ -38,6 +38,10 @@ SUBCOMMANDS: dict[str, tuple[str, str]] = {
     ),
     "arc": ("app.commands.arc_cmd", "one arc between two dates (OEM and JSON exports)"),
     "survey": ("app.commands.survey_cmd", "rank many targets by their best arcs over years (Dask)"),
+    "sequence": (
+        "app.commands.sequence_cmd",
+        "search flyby sequences, round trips and tours (multi-leg arcs)",
+    ),
     "serve": (
         "app.commands.serve_cmd",
         "serve the dashboard (localhost only unless --host says otherwise)",

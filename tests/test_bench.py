@@ -39,3 +39,24 @@ def test_lambert_baseline_solves_the_same_problem():
         v1, v2 = baseline_lambert(r1[i], r2[i], tof[i], mu[i])
         assert np.linalg.norm(v1 - sol.v1_km_s[i, 0]) <= 1e-9 * np.linalg.norm(v1)
         assert np.linalg.norm(v2 - sol.v2_km_s[i, 0]) <= 1e-9 * np.linalg.norm(v2)
+
+
+def test_sequence_bench_baseline_scores_the_same_candidates():
+    """The loop baseline of the sequence section evaluates the same numbers as the batched
+    call (the exact path against the compiled one), or its ratio means nothing."""
+    import numpy as np
+
+    from app.bench.sequence_bench import _five_leg
+
+    model, spec, bounds = _five_leg()
+    x = bounds[:, 0] + np.random.default_rng(2).uniform(size=(40, len(bounds))) * np.ptp(bounds, 1)
+    batched = model.score(x)
+    one_by_one = [model.costs(model.arcs(spec.epochs(row[None, :]))).score[0] for row in x]
+    assert np.allclose(batched, one_by_one, rtol=1e-9, atol=1e-9)
+
+
+def test_quick_sequence_evaluation_line_reports_a_ratio():
+    from app.bench.sequence_bench import evaluation_lines
+
+    (line,) = evaluation_lines("quick")
+    assert line.value > 0 and line.baseline_value and line.ratio > 1

@@ -229,9 +229,11 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
             if not isinstance(value, list):
                 raise InputError("bodies", value, "an array of tables ([[bodies]])")
             continue
+        if key == "sequence":  # multi-leg sequences: validated by solver.sequence.spec
+            continue
         if key not in _SECTIONS:
             raise InputError(
-                key, "(section)", "one of " + ", ".join(sorted([*_SECTIONS, "bodies"]))
+                key, "(section)", "one of " + ", ".join(sorted([*_SECTIONS, "bodies", "sequence"]))
             )
         if not isinstance(value, dict):
             raise InputError(key, value, f"a [{key}] table")
@@ -262,7 +264,7 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
     central = _body(registry, "case.central_body", setting("case.central_body"))
     departure = _body(registry, "case.departure_body", setting("case.departure_body"))
     target = _body(registry, "case.target_body", setting("case.target_body"))
-    if departure.key == target.key:
+    if departure.key == target.key and "sequence" not in raw:  # a sequence may return home
         raise InputError(
             "case.target_body", case["target_body"], "a body other than the departure body"
         )
