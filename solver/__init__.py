@@ -4,4 +4,4 @@ Numbers only: no plotting or web imports. Public functions take and return numpy
 names carry their units (``r_km``, ``tof_s``, ``c3_km2_s2``).
 """
 
-ENGINE_VERSION = "0.1.0"
+ENGINE_VERSION = "0.2.0"

@@ -22,10 +22,13 @@ from solver.files.oem import format_oem
 from solver.mechanics.families import Family, family_label
 from solver.mechanics.kepler import propagate, sample_arc, state_to_elements
 from solver.mechanics.lambert import BRANCH_NAMES
-from solver.reasons import Reason, describe
+from solver.reasons import MassReason, Reason, describe, describe_mass
+from solver.window.arc_launch import arc_launch_window, mass_budget, vehicle_comparison
 from solver.window.case import Case
+from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc
 from solver.window.grid import WindowGrid
+from solver.window.mass import mass_reasons
 from solver.window.metrics import METRICS
 from solver.window.provenance import provenance
 
@@ -53,8 +56,14 @@ GRID_COLUMNS = (
     "apoapsis_km",
     "a_km",
     "e",
+    "injected_mass_kg",
+    "propellant_departure_kg",
+    "propellant_arrival_kg",
+    "delivered_mass_kg",
+    "mass_margin_kg",
     "within_limits",
     "reason",
+    "mass_reason",
     "departure_jd_tdb",
     "arrival_jd_tdb",
 )
@@ -100,6 +109,17 @@ def grid_to_frame(grid: WindowGrid) -> pd.DataFrame:
     columns["transfer_angle_deg"] = grid.transfer_angle_deg[i, j]
     columns["within_limits"] = grid.within[i, j, k]
     columns["reason"] = categorical(reasons, reason_names)
+    arcs = grid.arcs
+    mass_codes = mass_reasons(
+        grid.case,
+        CaseBodies.of(grid.case),
+        arcs["c3_km2_s2"][i, j, k],
+        arcs["dv_departure_km_s"][i, j, k],
+        arcs["dv_arrival_km_s"][i, j, k],
+    )
+    columns["mass_reason"] = categorical(
+        mass_codes, [describe_mass(code) for code in range(max(MassReason) + 1)]
+    )
     columns["departure_jd_tdb"] = grid.departure_jd_tdb[i]
     columns["arrival_jd_tdb"] = grid.arrival_jd_tdb[j]
     return pd.DataFrame({name: columns[name] for name in GRID_COLUMNS})
@@ -172,6 +192,8 @@ def arc_json(case: Case, arc: Arc) -> dict[str, Any]:
     def clean(value: float) -> float | None:
         return float(value) if math.isfinite(value) else None
 
+    bodies = CaseBodies.of(case)
+    budget = mass_budget(case, arc, bodies=bodies)
     return {
         "case_title": case.title,
         "departure_utc": str(jd_tdb_to_utc(arc.departure_jd_tdb, digits=0)),
@@ -191,6 +213,10 @@ def arc_json(case: Case, arc: Arc) -> dict[str, Any]:
         "within_limits": arc.within,
         "metrics": {name: clean(value) for name, value in arc.metrics.items()},
         "units": {name: METRICS[name].unit for name in arc.metrics if name in METRICS},
+        "mass_reason": budget.reason or describe_mass(MassReason.OK),
+        "mass_budget": budget.as_dict(),
+        "vehicles": [b.as_dict() for b in vehicle_comparison(case, arc, bodies)],
+        "launch_window": arc_launch_window(case, arc, bodies).as_dict(),
         "frame": "ICRF",
         "r1_km": arc.r1_km.tolist(),
         "v1_km_s": arc.v1_km_s.tolist(),
