@@ -19,6 +19,7 @@ SUBCOMMANDS: dict[str, str] = {
     "best": "app.commands.best_cmd",
     "period": "app.commands.period_cmd",
     "arc": "app.commands.arc_cmd",
+    "launch": "app.commands.launch_cmd",
     "survey": "app.commands.survey_cmd",
     "serve": "app.commands.serve_cmd",
     "bench": "app.commands.bench_cmd",

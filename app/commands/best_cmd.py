@@ -26,7 +26,8 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         "--metric",
         default="c3_km2_s2",
         choices=metric_choices(),
-        help="what 'best' minimizes (default c3_km2_s2; DLA by its magnitude)",
+        help="what 'best' optimizes (default c3_km2_s2; DLA by its magnitude; masses are "
+        "maximized)",
     )
     parser.add_argument("--revs", type=int, metavar="N", help="only arcs of N revolutions")
     parser.add_argument("--branch", choices=["low", "high"], help="branch of an N-revolution arc")
@@ -78,6 +79,7 @@ def run(args: argparse.Namespace) -> int:
 
 def format_arc_report(report: dict) -> str:
     """Plain-text summary of an arc (shared with ``arcwindow arc``)."""
+    from app.commands._mass_text import mass_lines, window_lines
     from solver.window.metrics import METRICS
 
     lines = [
@@ -93,6 +95,12 @@ def format_arc_report(report: dict) -> str:
             continue
         meta = METRICS[name]
         lines.append(f"    {meta.label:<28} {value:>14.6f} {meta.unit}")
+    if report["mass_budget"]["injected_mass_kg"] is not None or report["vehicles"]:
+        lines.extend(mass_lines(report["mass_budget"], report["vehicles"]))
+    else:
+        lines.append(f"  mass: none ({report['mass_reason']})")
+    if report["launch_window"]["site"] is not None:
+        lines.extend(window_lines(report["launch_window"]))
     prov = report["provenance"]
     lines.append(
         f"  ephemeris {prov['ephemeris']}; {prov['engine']}; case hash {prov['case_hash']}"
