@@ -69,6 +69,16 @@ def test_best_by_delivered_mass_and_arc_print_the_budget(capsys):
     assert "daily launch window" in out
 
 
+def test_ranking_by_mass_needs_a_mass(capsys):
+    for argv in (
+        ["best", "survey_base", "--metric", "delivered_mass_kg", "--no-cache"],
+        ["period", "survey_base", "--days", "3", "--metric", "delivered_mass_kg"],
+    ):
+        assert main(argv) == 2
+        err = capsys.readouterr().err
+        assert "--metric" in err and "wet_mass_max_kg" in err
+
+
 def test_launch_needs_a_site(capsys):
     assert main(["launch", "kestrel_relay_leo", "--depart", "2031-03-01T01:00"]) == 2
     err = capsys.readouterr().err

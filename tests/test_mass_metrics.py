@@ -180,6 +180,11 @@ def test_launch_period_can_maximize_its_smallest_delivered_mass():
     assert by_c3.max_c3_km2_s2 <= by_mass.max_c3_km2_s2 + 1e-9
     with pytest.raises(InputError):
         launch_period(case, 7, "fixed-arrival", "colour")
+    free = launch_period(case, 7, "free-arrival", "delivered_mass_kg")
+    assert free.arrival_jd_tdb is None and len(free.days) == 7
+    # Each day free to pick its arrival does no worse than one arrival for all (to within the
+    # minute-level refinement of each, a fraction of a kilogram).
+    assert free.min_delivered_mass_kg >= by_mass.min_delivered_mass_kg - 1.0
 
 
 def test_spacecraft_departure_burn_reads_the_curve_at_the_parking_orbit():

@@ -47,9 +47,11 @@ def run(args: argparse.Namespace) -> int:
 
     from app.samples import load
     from solver.files.export import arc_json
+    from solver.window.mass import check_mass_metric
     from solver.window.refine import refine_best
 
     case = load(args.case)
+    check_mass_metric(case, args.metric, "--metric")
     grid = compute_grid(args, case)
     refined = refine_best(
         case, grid, args.metric, revolutions=args.revs, branch=args.branch, method=args.refine

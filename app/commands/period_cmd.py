@@ -48,12 +48,14 @@ def run(args: argparse.Namespace) -> int:
     from solver.errors import InputError
     from solver.window.arc_launch import launch_windows
     from solver.window.launch_period import launch_period
+    from solver.window.mass import check_mass_metric
     from solver.window.metrics import RANKING_METRICS
     from solver.window.provenance import provenance
 
     if args.metric not in RANKING_METRICS:
         raise InputError("--metric", args.metric, "one of " + ", ".join(RANKING_METRICS))
     case = load(args.case)
+    check_mass_metric(case, args.metric, "--metric")
     period = launch_period(case, args.days, args.strategy, args.metric)
     windows = (
         launch_windows(

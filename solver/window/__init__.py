@@ -62,6 +62,7 @@ __all__, __getattr__, __dir__ = lazy_api(
         "case_launch": ["MassModel", "launch_toml", "read_launch_site", "read_mass_model"],
         "mass": [
             "MASS_METRICS",
+            "check_mass_metric",
             "mass_metrics",
             "mass_notes",
             "mass_reasons",

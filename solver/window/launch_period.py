@@ -33,6 +33,7 @@ from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, solve_cell
 from solver.window.grid import compute_window
+from solver.window.mass import check_mass_metric
 from solver.window.metrics import RANKING_METRICS, ranking_values
 
 STRATEGIES = ("fixed-arrival", "free-arrival")
@@ -164,6 +165,7 @@ def launch_period(
         raise InputError("strategy", strategy, "'fixed-arrival' or 'free-arrival'")
     if metric not in RANKING_METRICS:
         raise InputError("metric", metric, "one of " + ", ".join(RANKING_METRICS))
+    check_mass_metric(case, metric)
     feasible_case = _feasibility_case(case)
     grid = compute_window(feasible_case)
     n_days = len(grid.departure_jd_tdb)

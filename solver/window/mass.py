@@ -28,6 +28,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from solver.ephemeris.bodies import has_mass
+from solver.errors import InputError
 from solver.launch.rocket import burn_sequence_kg
 from solver.launch.vehicle import LaunchVehicle
 from solver.reasons import MassReason
@@ -154,6 +155,25 @@ def mass_reasons(
     return np.where(np.isnan(c3), MassReason.NO_ARC, code).astype(np.int8)
 
 
+def check_mass_metric(case: Case, metric: str, field: str = "metric") -> None:
+    """Refuse to rank or optimize by a mass metric the case cannot compute (all NaN), naming
+    what it lacks, instead of reporting that no arc qualifies."""
+    if metric not in MASS_METRICS:
+        return
+    if not case.mass.gives_mass:
+        raise InputError(
+            field,
+            metric,
+            "a metric this case computes: mass needs [[vehicles]] or spacecraft.wet_mass_max_kg",
+        )
+    if metric == "mass_margin_kg" and case.mass.required_delivered_mass_kg is None:
+        raise InputError(
+            field,
+            metric,
+            "a metric this case computes: the margin needs spacecraft.required_delivered_mass_kg",
+        )
+
+
 def mass_notes(case: Case, bodies: CaseBodies) -> dict[str, str]:
     """How this case's mass metrics are counted, in words (for provenance and outputs)."""
     model = case.mass
@@ -199,6 +219,7 @@ def mass_notes(case: Case, bodies: CaseBodies) -> dict[str, str]:
 
 __all__ = [
     "MASS_METRICS",
+    "check_mass_metric",
     "mass_metrics",
     "mass_notes",
     "mass_reasons",
