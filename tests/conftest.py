@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import os
 from pathlib import Path
 
@@ -9,6 +10,7 @@ import pytest
 from hypothesis import settings
 
 REFERENCE_DATA = Path(__file__).parent / "reference_data"
+VALIDATION_RECORD = Path(__file__).resolve().parents[1] / "test-artifacts" / "validation.json"
 
 
 @pytest.fixture
@@ -46,3 +48,83 @@ def _stage(item: pytest.Item) -> int:
 
 def pytest_collection_modifyitems(config: pytest.Config, items: list[pytest.Item]) -> None:
     items.sort(key=_stage)  # stable: each stage keeps the files' own order
+
+
+class ValidationRecord:
+    """What the checks against outside sources measured, for the validation report.
+
+    A test calls ``validation.record(...)`` beside its assertion; at the end of the run the rows
+    go to ``test-artifacts/validation.json``, from which ``python docs/make_docs.py
+    --validation`` writes ``docs/validation.md``. Only passing checks are written (a row is kept
+    when the test that recorded it passed).
+    """
+
+    def __init__(self) -> None:
+        self.rows: list[dict] = []
+        self._pending: dict[str, list[dict]] = {}
+
+    def record(
+        self,
+        check: str,
+        *,
+        source: str,
+        tag: str,
+        measured: float,
+        tolerance: float,
+        unit: str = "",
+        note: str = "",
+        test: str = "",
+    ) -> None:
+        self._pending.setdefault(test, []).append(
+            {
+                "check": check,
+                "source": source,
+                "tag": tag,
+                "measured": float(measured),
+                "tolerance": float(tolerance),
+                "unit": unit,
+                "note": note,
+                "test": test,
+            }
+        )
+
+    def passed(self, test: str) -> None:
+        self.rows.extend(self._pending.pop(test, []))
+
+
+_VALIDATION = ValidationRecord()
+
+
+@pytest.fixture
+def validation(request):
+    """Record one measured agreement with an outside source (see :class:`ValidationRecord`)."""
+    test = request.node.nodeid
+
+    class _Bound:
+        def record(self, check: str, **kwargs) -> None:
+            _VALIDATION.record(check, test=test, **kwargs)
+
+    yield _Bound()
+    report = getattr(request.node, "rep_call", None)
+    if report is not None and report.passed:
+        _VALIDATION.passed(test)
+
+
+def pytest_sessionfinish(session, exitstatus) -> None:
+    if not _VALIDATION.rows:
+        return
+    from solver import ENGINE_VERSION
+
+    # A partial run updates the checks it ran and keeps the others of the last whole run.
+    rows = {row["check"]: row for row in _VALIDATION.rows}
+    if VALIDATION_RECORD.exists():
+        try:
+            old = json.loads(VALIDATION_RECORD.read_text())
+        except ValueError:
+            old = {}
+        if old.get("engine_version") == ENGINE_VERSION:
+            rows = {row["check"]: row for row in old.get("checks", [])} | rows
+    VALIDATION_RECORD.parent.mkdir(parents=True, exist_ok=True)
+    VALIDATION_RECORD.write_text(
+        json.dumps({"engine_version": ENGINE_VERSION, "checks": list(rows.values())}, indent=1)
+    )

@@ -1,6 +1,6 @@
 """The rocket equation and launch vehicle performance tables (solver.launch.rocket, .vehicle).
 
-Checks against hand-computed values (docs/references.md 9.1, 9.2) and against scipy's PCHIP used
+Checks against hand-computed values (docs/references.md 10.1, 10.2) and against scipy's PCHIP used
 directly; the parser of ``[[vehicles]]`` tables with hypothesis.
 """
 
@@ -25,11 +25,11 @@ from solver.launch.rocket import (
 from solver.launch.vehicle import LaunchVehicle, vehicles_from_toml
 from solver.reasons import MassReason
 
-G0_KM_S2 = 9.80665e-3  # standard gravity, exact by definition (docs/references.md 9.1)
+G0_KM_S2 = 9.80665e-3  # standard gravity, exact by definition (docs/references.md 10.1)
 
 
 # ---------------------------------------------------------------------------------------------
-# Rocket equation, Δv = Isp·g0·ln(m0/m1) [MEMORY, common practice; docs/references.md 9.1]
+# Rocket equation, Δv = Isp·g0·ln(m0/m1) [MEMORY, common practice; docs/references.md 10.1]
 
 
 def test_a_burn_of_isp_times_g0_leaves_m0_over_e():
@@ -38,11 +38,19 @@ def test_a_burn_of_isp_times_g0_leaves_m0_over_e():
     assert propellant_kg(1000.0, 2.941995, 300.0) == pytest.approx(632.120559, rel=1e-9)
 
 
-def test_a_burn_of_isp_g0_ln2_halves_the_mass():
+def test_a_burn_of_isp_g0_ln2_halves_the_mass(validation):
     # By hand: Δv = 300 × 9.80665 × ln 2 = 2941.995 × 0.693147 = 2039.2355 m/s halves the mass.
     dv = 300.0 * 9.80665 * 0.6931471805599453 / 1000.0
     assert dv == pytest.approx(2.0392355, abs=1e-7)
     assert mass_after_burn_kg(1000.0, dv, 300.0) == pytest.approx(500.0, rel=1e-12)
+    validation.record(
+        "rocket equation: a burn of Isp·g0·ln 2 halves the mass",
+        source="Tsiolkovsky's rocket equation, g0 = 9.80665 m/s² (docs/references.md 10.1)",
+        tag="MEMORY; common practice",
+        measured=abs(float(mass_after_burn_kg(1000.0, dv, 300.0)) - 500.0),
+        tolerance=5e-10,
+        unit="kg",
+    )
     assert dv_for_mass_ratio_km_s(2.0, 300.0) == pytest.approx(dv, rel=1e-15)
 
 
@@ -70,19 +78,28 @@ def test_a_burn_nobody_makes_has_no_mass_unless_it_is_zero():
 
 
 # ---------------------------------------------------------------------------------------------
-# Vehicle tables: PCHIP between points, nothing outside (docs/references.md 9.2)
+# Vehicle tables: PCHIP between points, nothing outside (docs/references.md 10.2)
 
 HAND = LaunchVehicle("hand", (0.0, 10.0, 20.0), (1000.0, 800.0, 700.0))
 
 
-def test_pchip_against_hand_computed_values():
+def test_pchip_against_hand_computed_values(validation):
     # By hand (Fritsch-Carlson derivatives as scipy documents them): secants -20 and -10 per
     # km²/s²; interior derivative, equal steps: 60 / (30/-20 + 30/-10) = -40/3; end derivatives
     # ((2h1 + h2)m1 - h1 m2)/(h1 + h2) = (30·-20 - 10·-10)/20 = -25 and (30·-10 - 10·-20)/20 = -5.
     # Cubic Hermite at mid-interval (h = 10): (y0 + y1)/2 + h(d0 - d1)/8.
     #   at 5:  900 + 10·(-25 + 40/3)/8 = 885.416667;  at 15: 750 + 10·(-40/3 + 5)/8 = 739.583333
     values = HAND.curve_mass_kg([0.0, 5.0, 10.0, 15.0, 20.0])
-    np.testing.assert_allclose(values, [1000.0, 885.4166667, 800.0, 739.5833333, 700.0], rtol=1e-9)
+    expected = [1000.0, 885.4166667, 800.0, 739.5833333, 700.0]
+    np.testing.assert_allclose(values, expected, rtol=1e-9)
+    validation.record(
+        "launch vehicle table, PCHIP interpolation: largest difference from hand-computed values",
+        source="Fritsch-Carlson derivatives as scipy documents them (docs/references.md 10.2)",
+        tag="COMPUTED by hand",
+        measured=float(np.abs(values - expected).max()),
+        tolerance=1e-6,
+        unit="kg",
+    )
 
 
 def test_deductions_margin_then_adapter():

@@ -1,7 +1,7 @@
 """Launch sites: reachable inclinations and asymptotes (solver.launch.site).
 
 The rule cos i = cos φ · sin Az against a textbook worked example (tests/reference_data/
-launch_azimuth_examples.csv; docs/references.md 9.3, from memory / secondary) and against an
+launch_azimuth_examples.csv; docs/references.md 10.3, from memory / secondary) and against an
 independent vector construction; the reachable inclination and DLA ranges against a sweep of
 azimuths.
 """
@@ -29,7 +29,7 @@ def _examples(reference_data_dir):
         return list(csv.DictReader(line for line in handle if not line.startswith("#")))
 
 
-def test_worked_examples(reference_data):
+def test_worked_examples(reference_data, validation):
     rows = _examples(reference_data)
     assert {r["id"] for r in rows} >= {"curtis_example_6_10"}
     for row in rows:
@@ -40,6 +40,16 @@ def test_worked_examples(reference_data):
         found = azimuths_for_inclination_deg(lat, inc)
         assert found is not None, row["id"]
         assert sorted(found) == pytest.approx(expected, abs=tol), f"{row['id']} ({row['tag']})"
+        validation.record(
+            f"launch azimuths for inclination {inc:g} deg from latitude {lat:g} deg "
+            f"({row['id']}): largest difference",
+            source=row["source"],
+            tag=row["tag"],
+            measured=float(np.abs(np.subtract(sorted(found), expected)).max()),
+            tolerance=tol,
+            unit="deg",
+            note=row["tolerance_reason"],
+        )
         for az in found:  # and back: each azimuth gives the inclination
             assert float(inclination_deg(lat, az)) == pytest.approx(inc, abs=1e-9), row["id"]
 

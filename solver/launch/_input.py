@@ -49,8 +49,7 @@ def number(
     unit: str = "",
 ) -> float:
     """A finite number within bounds (``low`` exclusive when ``low_open``), or InputError."""
-    lo = "any" if low is None else f"{low:g}"
-    hi = "any" if high is None else f"{high:g}"
+    lo, hi = _g(low), _g(high)
     accepted = (
         f"a number {'above' if low_open else 'from'} {lo} {'and up to' if low_open else 'to'} {hi}"
     )
@@ -65,6 +64,14 @@ def number(
     if high is not None and x > high:
         raise InputError(key, value, accepted)
     return x
+
+
+def _g(value: float | None) -> str:
+    if value is None:
+        return "any"
+    if float(value).is_integer() and abs(value) >= 1e4:
+        return f"{int(value)}"  # 10000000, not 1e+07
+    return f"{value:g}"
 
 
 def text(key: str, value: Any) -> str:

@@ -126,7 +126,11 @@ class Setting:
 
 
 def _g(value: float | None) -> str:
-    return "any" if value is None else f"{value:g}"
+    if value is None:
+        return "any"
+    if float(value).is_integer() and abs(value) >= 1e4:
+        return f"{int(value)}"
+    return f"{value:g}"
 
 
 _STEP = {
@@ -415,8 +419,9 @@ SETTINGS: tuple[Setting, ...] = (
         unit="deg",
         low=0.0,
         high=720.0,
-        description="... to this, above azimuth_min_deg and at most 360 past it (a range "
-        "through north is written past 360: 340 to 380); required with [launch_site].",
+        description="Where the allowed azimuths end, clockwise from azimuth_min_deg: above it "
+        "and at most 360 past it (a range through north is written past 360: 340 to 380); "
+        "required with [launch_site].",
     ),
     # [spacecraft]: optional (with [[vehicles]] and [[propulsion]], see solver.window.mass)
     Setting(
