@@ -46,6 +46,13 @@ OBLIQUITY_J2000_ARCSEC = 84381.406
 OBLIQUITY_J2000_DEG = OBLIQUITY_J2000_ARCSEC / 3600.0
 OBLIQUITY_J2000_RAD = math.radians(OBLIQUITY_J2000_DEG)
 
+OBLIQUITY_J2000_IAU1976_ARCSEC = 84381.448
+"""Obliquity of the ecliptic at J2000, IAU 1976 (Lieske et al. 1977) [FOUND: docs/references.md
+4.4]. The J2000 ecliptic of small-body element lists is commonly defined with this value (common
+practice); it differs from the IAU 2006 value by 0.042 arcsec, which turns a body at 2.8 au by
+up to ~85 km."""
+OBLIQUITY_J2000_IAU1976_RAD = math.radians(OBLIQUITY_J2000_IAU1976_ARCSEC / 3600.0)
+
 # ---------------------------------------------------------------------------------------------
 # GM, km^3/s^2, from the DE423 header: GM[au^3/d^2] * DE423_AU_KM**3 / 86400**2
 # (header name in brackets). Outer planets (and Mars) are SYSTEM values, planet plus moons,
@@ -112,10 +119,10 @@ RADIUS_MEAN_KM: dict[str, float] = {
 # ---------------------------------------------------------------------------------------------
 STANDARD_GRAVITY_M_S2 = 9.80665
 """Standard acceleration of gravity g0, m/s², exact by definition (3rd CGPM, 1901); the g0 of
-the rocket equation Δv = Isp·g0·ln(m0/m1) [MEMORY, docs/references.md 10.1]."""
+the rocket equation Δv = Isp·g0·ln(m0/m1) [MEMORY, docs/references.md 11.1]."""
 STANDARD_GRAVITY_KM_S2 = STANDARD_GRAVITY_M_S2 / 1000.0
 
 EARTH_ROTATION_TURNS_PER_UT1_DAY = 1.00273781191135448
 """Rate of the Earth Rotation Angle, turns per UT1 day (IAU 2000 Resolution B1.8; the rate in
 ERFA's ``era00``) [MEMORY; checked against ERFA era00 by tests/test_daily_window.py;
-docs/references.md 10.4]."""
+docs/references.md 11.4]."""

@@ -38,15 +38,6 @@ def unix_ms_to_jd(ms: ArrayLike) -> NDArray[np.float64]:
     return np.asarray(ms, dtype=float) / MS_PER_DAY + JD_UNIX_EPOCH
 
 
-def round_to_minute_from(origin_jd: float, jd: float) -> float:
-    """``jd`` moved to a whole number of minutes from ``origin_jd``.
-
-    Grid dates are whole UTC minutes (or days); a refined date rounded this way is too, so it
-    prints as ``hh:mm:00`` (to within the ~ms TDB-UTC drift over the interval).
-    """
-    return origin_jd + round((jd - origin_jd) / MINUTE_DAYS) * MINUTE_DAYS
-
-
 __all__ = [
     "DAYS_PER_JULIAN_CENTURY",
     "JD_J2000_TDB",
@@ -57,6 +48,5 @@ __all__ = [
     "SECONDS_PER_DAY",
     "SECOND_DAYS",
     "jd_to_unix_ms",
-    "round_to_minute_from",
     "unix_ms_to_jd",
 ]

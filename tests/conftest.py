@@ -18,6 +18,32 @@ def reference_data() -> Path:
     return REFERENCE_DATA
 
 
+def pytest_sessionstart(session):
+    """On a machine that has not compiled the solver's kernels yet (a fresh clone), compile them
+    first and say so, rather than let the first test sit silent for a minute or two."""
+    from solver.mechanics.kernels import pending_kernels, prepare_kernels
+
+    pending = pending_kernels()
+    if not pending:
+        return
+    reporter = session.config.pluginmanager.get_plugin("terminalreporter")
+
+    def say(text: str) -> None:
+        if reporter is not None:
+            reporter.write_line(text)
+        else:
+            print(text, flush=True)
+
+    say(
+        f"arcwindow: preparing the solver, once: compiling {len(pending)} kernels for this "
+        "machine (up to a minute or two, once; later runs load them in under a second)"
+    )
+    prepare_kernels(
+        lambda done, total, name: say(f"  [{done + 1}/{total}] {name}") if name else None
+    )
+    say("arcwindow: solver ready")
+
+
 @pytest.hookimpl(hookwrapper=True)
 def pytest_runtest_makereport(item, call):
     """Keep each phase's report on the test item (fixtures read it to save failure artifacts)."""

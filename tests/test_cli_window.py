@@ -37,11 +37,9 @@ def test_grid_writes_csv_and_uses_the_cache(tmp_path, capsys):
         "revolutions",
         "branch",
         "transfer_type",
-        "c3_km2_s2",
-        "vinf_departure_km_s",
-        "dla_deg",
-        "rla_deg",
-        "vinf_arrival_km_s",
+        "phase_deg",
+        "dv_departure_km_s",
+        "dv_arrival_km_s",
         "dv_total_km_s",
     } <= set(frame.columns)
 

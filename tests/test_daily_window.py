@@ -6,7 +6,7 @@ not the solver's intermediate-frame-plus-rotation-angle shortcut), builds the pl
 Earth's centre, the site and the asymptote for each sense of motion, and tests the launch
 azimuth (the in-plane velocity's heading against the site's local north and east) against the
 site's range directly. Openings and closings of the solver (found in closed form) must match
-the brute force's to within its one-second step. Sources: docs/references.md 10.3, 10.4.
+the brute force's to within its one-second step. Sources: docs/references.md 11.3, 11.4.
 """
 
 from __future__ import annotations
@@ -136,7 +136,7 @@ def test_openings_and_closings_match_a_one_second_brute_force(name, validation):
     validation.record(
         f"daily launch window, case {name}: openings and closings against a one-second search",
         source="brute force written in the test: ERFA c2t00b each second, azimuth from vectors "
-        "(docs/references.md 10.3, 10.4)",
+        "(docs/references.md 11.3, 11.4)",
         tag="COMPUTED",
         measured=worst,
         tolerance=STEP_S + MODEL_S,

@@ -1,6 +1,6 @@
 """The rocket equation and launch vehicle performance tables (solver.launch.rocket, .vehicle).
 
-Checks against hand-computed values (docs/references.md 10.1, 10.2) and against scipy's PCHIP used
+Checks against hand-computed values (docs/references.md 11.1, 11.2) and against scipy's PCHIP used
 directly; the parser of ``[[vehicles]]`` tables with hypothesis.
 """
 
@@ -25,11 +25,11 @@ from solver.launch.rocket import (
 from solver.launch.vehicle import LaunchVehicle, vehicles_from_toml
 from solver.reasons import MassReason
 
-G0_KM_S2 = 9.80665e-3  # standard gravity, exact by definition (docs/references.md 10.1)
+G0_KM_S2 = 9.80665e-3  # standard gravity, exact by definition (docs/references.md 11.1)
 
 
 # ---------------------------------------------------------------------------------------------
-# Rocket equation, Δv = Isp·g0·ln(m0/m1) [MEMORY, common practice; docs/references.md 10.1]
+# Rocket equation, Δv = Isp·g0·ln(m0/m1) [MEMORY, common practice; docs/references.md 11.1]
 
 
 def test_a_burn_of_isp_times_g0_leaves_m0_over_e():
@@ -45,7 +45,7 @@ def test_a_burn_of_isp_g0_ln2_halves_the_mass(validation):
     assert mass_after_burn_kg(1000.0, dv, 300.0) == pytest.approx(500.0, rel=1e-12)
     validation.record(
         "rocket equation: a burn of Isp·g0·ln 2 halves the mass",
-        source="Tsiolkovsky's rocket equation, g0 = 9.80665 m/s² (docs/references.md 10.1)",
+        source="Tsiolkovsky's rocket equation, g0 = 9.80665 m/s² (docs/references.md 11.1)",
         tag="MEMORY; common practice",
         measured=abs(float(mass_after_burn_kg(1000.0, dv, 300.0)) - 500.0),
         tolerance=5e-10,
@@ -78,7 +78,7 @@ def test_a_burn_nobody_makes_has_no_mass_unless_it_is_zero():
 
 
 # ---------------------------------------------------------------------------------------------
-# Vehicle tables: PCHIP between points, nothing outside (docs/references.md 10.2)
+# Vehicle tables: PCHIP between points, nothing outside (docs/references.md 11.2)
 
 HAND = LaunchVehicle("hand", (0.0, 10.0, 20.0), (1000.0, 800.0, 700.0))
 
@@ -94,7 +94,7 @@ def test_pchip_against_hand_computed_values(validation):
     np.testing.assert_allclose(values, expected, rtol=1e-9)
     validation.record(
         "launch vehicle table, PCHIP interpolation: largest difference from hand-computed values",
-        source="Fritsch-Carlson derivatives as scipy documents them (docs/references.md 10.2)",
+        source="Fritsch-Carlson derivatives as scipy documents them (docs/references.md 11.2)",
         tag="COMPUTED by hand",
         measured=float(np.abs(values - expected).max()),
         tolerance=1e-6,

@@ -1,7 +1,7 @@
 """Launch sites: reachable inclinations and asymptotes (solver.launch.site).
 
 The rule cos i = cos φ · sin Az against a textbook worked example (tests/reference_data/
-launch_azimuth_examples.csv; docs/references.md 10.3, from memory / secondary) and against an
+launch_azimuth_examples.csv; docs/references.md 11.3, from memory / secondary) and against an
 independent vector construction; the reachable inclination and DLA ranges against a sweep of
 azimuths.
 """

@@ -2,7 +2,7 @@
 arcs and launch periods by delivered mass, and the exports that carry them.
 
 Masses are recomputed here independently: scipy's PchipInterpolator on the case's table and the
-rocket equation written out (docs/references.md 10.1, 10.2).
+rocket equation written out (docs/references.md 11.1, 11.2).
 """
 
 from __future__ import annotations
@@ -74,7 +74,7 @@ def test_grid_masses_follow_the_table_and_the_rocket_equation(vesper, validation
     validation.record(
         "grid delivered mass against scipy's PCHIP and the rocket equation written out",
         source="scipy.interpolate.PchipInterpolator; Δv = Isp·g0·ln(m0/m1) (docs/references.md "
-        "10.1, 10.2)",
+        "11.1, 11.2)",
         tag="independent library",
         measured=float(np.nanmax(np.abs(grid.arcs["delivered_mass_kg"][ok] / delivered - 1.0))),
         tolerance=1e-12,

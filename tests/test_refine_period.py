@@ -101,3 +101,32 @@ def test_refine_single_revolution_by_name_and_both_methods(vesper, method):
     assert refined.arc.metrics["c3_km2_s2"] <= refined.grid_arc.metrics["c3_km2_s2"]
     with pytest.raises(InputError, match="method"):
         refine_best(case, grid, "c3_km2_s2", method="guess")
+
+
+# ---------------------------------------------------------------------------------------------
+# Every limit on every day of a launch period
+
+
+@pytest.mark.parametrize("strategy", ["fixed-arrival", "free-arrival"])
+def test_launch_period_honours_the_dla_limit_on_every_day(strategy):
+    """With |DLA| <= 18 deg, a 21-day Vesper period must leave within 18 deg on each day (the
+    period used to be placed on C3 alone, reaching 19.6 deg, and reported as above the limit).
+    Each day's arc is solved again here and checked against every limit of the case."""
+    from solver.window.case_bodies import CaseBodies
+    from solver.window.limits import breaches
+
+    case = load("vesper_venus_orbiter").with_changes(**{"limits.dla_max_deg": 18.0})
+    period = launch_period(case, 21, strategy)
+    bodies = CaseBodies.of(case)
+    assert len(period.days) == 21 and period.max_abs_dla_deg <= 18.0
+    for day in period.days:
+        arc = select_arc(solve_cell(case, day.departure_jd_tdb, day.arrival_jd_tdb), 0)
+        assert arc.within and breaches(case, bodies, arc.metrics) == []
+        assert abs(arc.metrics["dla_deg"]) <= 18.0
+        assert arc.metrics["c3_km2_s2"] <= 16.0  # the case's C3 limit holds on every day too
+
+
+def test_a_period_no_placement_can_fly_names_the_longest_run():
+    case = load("vesper_venus_orbiter").with_changes(**{"limits.dla_max_deg": 16.5})
+    with pytest.raises(InputError, match=r"at most \d+ days.*\|DLA\| <= 16.5 deg"):
+        launch_period(case, 150, "fixed-arrival")

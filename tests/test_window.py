@@ -255,7 +255,8 @@ def test_arc_end_points_are_the_bodies(vesper):
     r_v, _ = states("venus", arc.arrival_jd_tdb, central="sun", registry=reg)
     np.testing.assert_array_equal(arc.r1_km, r_e)
     np.testing.assert_array_equal(arc.r2_km, r_v)
-    r_end, _ = propagate(arc.r1_km, arc.v1_km_s, arc.tof_days * 86400.0, arc.mu_km3_s2)
+    # propagated over the TDB interval of the epochs (tof_days is elapsed UTC time, ms apart)
+    r_end, _ = propagate(arc.r1_km, arc.v1_km_s, arc.flight_s, arc.mu_km3_s2)
     assert np.linalg.norm(r_end - r_v) <= 1e-10 * np.linalg.norm(r_v)
     np.testing.assert_allclose(arc.v1_km_s - v_e, arc.v1_km_s - arc.departure_body_v_km_s, atol=0)
 
@@ -275,6 +276,21 @@ def test_cache_hit_is_bit_for_bit(tmp_path):
     # a different case is a different entry
     other = case.with_changes(**{"limits.tof_min_days": 0.02})
     assert not compute_window(other, cache=cache).from_cache
+
+
+def test_grids_cached_by_the_previous_engine_are_not_served(tmp_path, monkeypatch):
+    """Engine 0.1.0 counted grid dates in TDB and reported TDB intervals as TOF: its cached
+    grids hold other dates and numbers, so the current engine must not read them."""
+    import solver.window.provenance as provenance
+
+    case = load("kestrel_relay_leo")
+    cache = GridCache(tmp_path)
+    monkeypatch.setattr(provenance, "ENGINE_VERSION", "0.1.0")
+    old = compute_window(case, cache=cache)
+    assert compute_window(case, cache=cache).from_cache  # served to the same engine
+    monkeypatch.undo()
+    assert not old.from_cache
+    assert not compute_window(case, cache=cache).from_cache
 
 
 def test_cells_without_arcs_carry_reasons(vesper):

@@ -16,6 +16,7 @@ from dataclasses import asdict, dataclass, field
 
 # Section name -> module. Order is the printing order.
 SECTIONS: dict[str, str] = {
+    "startup": "app.bench.startup_bench",
     "lambert": "app.bench.lambert_bench",
     "ephemeris": "app.bench.ephemeris_bench",
     "cache": "app.bench.cache_bench",

@@ -4,25 +4,31 @@ from __future__ import annotations
 
 import argparse
 
-from app.commands._common import CAUTION, add_case_argument
+from app.commands._common import (
+    CAUTION,
+    add_arc_choice,
+    add_case_argument,
+    check_arc_choice,
+    output_file,
+    prepare_solver,
+)
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "arc",
-        help="one arc between two dates (OEM and JSON exports)",
         description="Solve the arc of a case between a departure and an arrival date (UTC) and "
         "write it as a CCSDS OEM 2.0 message. " + CAUTION,
     )
     add_case_argument(parser)
     parser.add_argument("--depart", required=True, metavar="UTC", help="departure, ISO 8601 UTC")
     parser.add_argument("--arrive", required=True, metavar="UTC", help="arrival, ISO 8601 UTC")
+    add_arc_choice(parser, "complete revolutions (default: the best arc by --metric)")
     parser.add_argument(
-        "--revs", type=int, metavar="N", help="complete revolutions (default: the best arc by C3)"
-    )
-    parser.add_argument("--branch", choices=["low", "high"], help="branch of an N-revolution arc")
-    parser.add_argument(
-        "--metric", default="c3_km2_s2", help="without --revs, the arc that minimizes this metric"
+        "--metric",
+        default=None,
+        help="without --revs, the arc that minimizes this metric (default: c3_km2_s2 for a "
+        "launch, dv_total_km_s for a transfer that starts with a burn)",
     )
     parser.add_argument("--oem", metavar="FILE", help="write the arc as a CCSDS OEM (KVN) file")
     parser.add_argument("--json", action="store_true", help="print JSON")
@@ -31,7 +37,6 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     import json
-    from pathlib import Path
 
     from app.commands.best_cmd import format_arc_report
     from app.samples import load
@@ -40,31 +45,28 @@ def run(args: argparse.Namespace) -> int:
     from solver.files.export import arc_json, arc_oem_text
     from solver.reasons import describe
     from solver.window.cell import select_arc, solve_cell
-    from solver.window.metrics import METRICS
+    from solver.window.outputs import case_outputs
 
     case = load(args.case)
+    oem_path = output_file(args.oem, "--oem", None) if args.oem else None
     depart = float(utc_to_jd_tdb(args.depart, field="--depart"))
     arrive = float(utc_to_jd_tdb(args.arrive, field="--arrive"))
     if arrive <= depart:
         raise InputError("--arrive", args.arrive, f"a date after --depart ({args.depart})")
-    if args.revs is not None and not 0 <= args.revs <= case.max_revolutions:
-        raise InputError(
-            "--revs",
-            args.revs,
-            f"0 to {case.max_revolutions} (the case's transfer.max_revolutions)",
-        )
-    if args.metric not in METRICS:
-        raise InputError("--metric", args.metric, "one of " + ", ".join(METRICS))
+    check_arc_choice(args, case.max_revolutions)
+    fit = case_outputs(case)
+    metric = fit.check_metric(args.metric) if args.metric else fit.default_metric
+    prepare_solver()
     arcs = solve_cell(case, depart, arrive)
-    arc = select_arc(arcs, args.revs, args.branch, args.metric)
+    arc = select_arc(arcs, args.revs, args.branch, metric)
     if not arc.ok:
         raise InputError(
             "--depart/--arrive",
             f"{args.depart} -> {args.arrive}",
             f"dates with an arc ({describe(arc.reason)})",
         )
-    if args.oem:
-        Path(args.oem).write_text(arc_oem_text(case, arc), encoding="ascii")
+    if oem_path is not None:
+        oem_path.write_text(arc_oem_text(case, arc), encoding="ascii")
     report = arc_json(case, arc)
     if args.json:
         print(json.dumps(report, indent=2))

@@ -8,7 +8,6 @@ import argparse
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "bodies",
-        help="list the known bodies, their sources and valid dates",
         description="The known bodies: GM, radius, central body, sources and their valid dates.",
     )
     parser.add_argument(

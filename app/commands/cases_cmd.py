@@ -6,9 +6,7 @@ import argparse
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
-    parser = subparsers.add_parser(
-        "cases", help="list the sample cases", description="List the built-in sample cases."
-    )
+    parser = subparsers.add_parser("cases", description="List the built-in sample cases.")
     parser.add_argument("--json", action="store_true", help="print JSON")
     parser.set_defaults(run=run)
 

@@ -4,13 +4,18 @@ from __future__ import annotations
 
 import argparse
 
-from app.commands._common import CAUTION, add_cache_options, add_case_argument, compute_grid
+from app.commands._common import (
+    CAUTION,
+    add_cache_options,
+    add_case_argument,
+    compute_grid,
+    output_file,
+)
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "grid",
-        help="solve a window and write it as CSV or Parquet",
         description="Solve every departure x arrival cell of a case and write one row per cell "
         "and arc (columns carry their units). " + CAUTION,
     )
@@ -23,15 +28,10 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from pathlib import Path
-
     from app.samples import load
-    from solver.errors import InputError
     from solver.files.export import write_grid
 
-    out = Path(args.out)
-    if out.suffix.lower() not in (".csv", ".parquet"):
-        raise InputError("--out", args.out, "a file name ending in .csv or .parquet")
+    out = output_file(args.out, "--out", (".csv", ".parquet"))
     case = load(args.case)
     grid = compute_grid(args, case)
     write_grid(grid, out)

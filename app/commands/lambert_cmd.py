@@ -6,12 +6,8 @@ import argparse
 import json
 import math
 
+from solver.caution import CAUTION
 from solver.errors import InputError
-
-CAUTION = (
-    "Two-body, patched-conic preliminary design: confirm with high-fidelity tools and the "
-    "responsible mission authority before committing hardware or launch plans."
-)
 
 
 def parse_vector_km(text: str, field: str) -> tuple[float, float, float]:
@@ -43,7 +39,6 @@ def parse_positive(text: str, field: str, unit: str) -> float:
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "lambert",
-        help="solve Lambert's problem: all arcs between two positions in a given time",
         description=(
             "All conic arcs joining r1 and r2 in the given time of flight: the single-revolution "
             "arc and, for N = 1..max-revs, the low- and high-branch N-revolution arcs. " + CAUTION
@@ -105,6 +100,9 @@ def solve(args: argparse.Namespace) -> dict:
     if np.linalg.norm(r2) == 0.0:
         raise InputError("--r2-km", args.r2_km, "a non-zero position vector")
 
+    from app.commands._common import prepare_solver
+
+    prepare_solver()
     sol = solve_lambert(r1, r2, tof, mu, max_revs=max_revs, retrograde=args.retrograde)
     elements = state_to_elements(np.asarray(r1), sol.v1_km_s, mu)
     families = classify(np.asarray(r1), sol.v1_km_s, np.asarray(r2), tof, mu, sol.revolutions)

@@ -4,13 +4,18 @@ from __future__ import annotations
 
 import argparse
 
-from app.commands._common import CAUTION, add_case_argument, metric_choices, utc
+from app.commands._common import (
+    CAUTION,
+    add_case_argument,
+    metric_choices,
+    prepare_solver,
+    utc,
+)
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "launch",
-        help="the daily launch window of a departure date (UTC open/close, azimuths, coast)",
         description="Print the launch window of one UTC day for the case's launch site: the "
         "times at which the site lies in a plane containing the departure asymptote with a "
         "launch azimuth in the site's range, each with its azimuth, parking-orbit inclination "
@@ -53,6 +58,7 @@ def run(args: argparse.Namespace) -> int:
             "azimuth_max_deg)",
         )
     depart = float(utc_to_jd_tdb(args.depart, field="--depart"))
+    prepare_solver()
     if args.arrive is not None:
         arrive = float(utc_to_jd_tdb(args.arrive, field="--arrive"))
         if arrive <= depart:

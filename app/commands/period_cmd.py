@@ -5,14 +5,12 @@ from __future__ import annotations
 
 import argparse
 
-from app.commands._common import CAUTION, add_case_argument, utc
+from app.commands._common import CAUTION, add_case_argument, prepare_solver, utc
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "period",
-        help="place a launch period of L days to minimize its largest C3 (or maximize its "
-        "smallest delivered mass)",
         description="Place a launch period of L consecutive departure days (and, with a fixed "
         "arrival, the arrival date) to minimize the largest C3 the launch vehicle must deliver, "
         "or with --metric delivered_mass_kg to maximize the smallest mass delivered. With a "
@@ -48,14 +46,16 @@ def run(args: argparse.Namespace) -> int:
     from solver.errors import InputError
     from solver.window.arc_launch import launch_windows
     from solver.window.launch_period import launch_period
-    from solver.window.mass import check_mass_metric
     from solver.window.metrics import RANKING_METRICS
+    from solver.window.outputs import case_outputs
     from solver.window.provenance import provenance
 
     if args.metric not in RANKING_METRICS:
         raise InputError("--metric", args.metric, "one of " + ", ".join(RANKING_METRICS))
     case = load(args.case)
-    check_mass_metric(case, args.metric, "--metric")
+    case_outputs(case).check_launch_periods(case)
+    case_outputs(case).check_metric(args.metric)
+    prepare_solver()
     period = launch_period(case, args.days, args.strategy, args.metric)
     windows = (
         launch_windows(

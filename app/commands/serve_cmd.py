@@ -8,7 +8,6 @@ import argparse
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "serve",
-        help="serve the dashboard (localhost only unless --host says otherwise)",
         description=(
             "Serve the dashboard on a production WSGI server. Everyone who can reach the address "
             "sees the same shortlist; bind to another interface with --host only on a trusted "
@@ -49,17 +48,24 @@ def run(args: argparse.Namespace) -> int:
 
     import waitress
 
-    from app.cli import UserInputError
+    from app.commands._common import prepare_solver
     from app.dashboard import create_app
+    from solver.errors import InputError
 
     if not 0 < args.port < 65536:
-        raise UserInputError(f"--port {args.port} is not accepted; expected 1 to 65535")
+        raise InputError("--port", args.port, "1 to 65535")
     if args.threads < 1:
-        raise UserInputError(f"--threads {args.threads} is not accepted; expected at least 1")
+        raise InputError("--threads", args.threads, "at least 1")
     # `kill -USR1 <pid>` prints every thread's stack to stderr: how to see what a stuck
     # request is waiting on, without stopping the session.
+    # Compile the kernels before serving, with progress here, rather than leaving the first
+    # viewer's map blank for the minutes it takes on a new machine.
+    prepare_solver()
     if hasattr(signal, "SIGUSR1"):
-        faulthandler.register(signal.SIGUSR1, file=sys.stderr, all_threads=True)
+        try:
+            faulthandler.register(signal.SIGUSR1, file=sys.stderr, all_threads=True)
+        except (OSError, ValueError):
+            pass  # a stderr without a file descriptor (captured, redirected): no stack dumps
     dash_app = create_app(
         cache_dir=args.cache_dir, data_dir=args.data_dir, surveys_dir=args.survey_dir
     )

@@ -4,7 +4,13 @@ from __future__ import annotations
 
 import argparse
 
-from app.commands._common import CAUTION, metric_choices
+from app.commands._common import (
+    CAUTION,
+    metric_choices,
+    output_file,
+    positive_int,
+    prepare_solver,
+)
 
 # Rows of the ranking printed at the end (the file holds every target).
 SHOWN_ROWS = 10
@@ -13,7 +19,6 @@ SHOWN_ROWS = 10
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser = subparsers.add_parser(
         "survey",
-        help="rank many targets by their best arcs over years (Dask)",
         description="Scan every target of an element CSV over each year of departures with the "
         "window engine (coarse grid, best arc refined), rank the targets by a metric within the "
         "base case's limits, and write one row per target. Runs on a local Dask cluster sized to "
@@ -99,7 +104,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     )
     parser.add_argument(
         "--max-cells",
-        type=int,
+        type=positive_int,
         metavar="N",
         help="refuse target-year grids above N cell-arcs (default: $ARCWINDOW_MAX_CELL_ARCS, "
         "else 20,000,000)",
@@ -130,18 +135,22 @@ def resolve_targets_path(argument: str):
 def run(args: argparse.Namespace) -> int:
     import sys
     import time
-    from pathlib import Path
 
     from app.samples import load
     from solver.ephemeris.element_input import read_element_csv
     from solver.errors import InputError
-    from solver.survey.cluster import describe_client, pending_chunks, run_survey, survey_client
+    from solver.survey.cluster import (
+        describe_client,
+        pending_chunks,
+        run_survey,
+        survey_client,
+        worker_count,
+    )
+    from solver.survey.estimate import duration_text, estimate_survey, remaining_seconds
     from solver.survey.scan import DEFAULT_TARGETS_PER_CHUNK, SurveySettings, plan_survey
     from solver.survey.store import chunk_folder
 
-    out = Path(args.out)
-    if out.suffix.lower() != ".parquet":
-        raise InputError("--out", args.out, "a file name ending in .parquet")
+    out = output_file(args.out, "--out", (".parquet",))
     if args.workers is not None and args.workers < 0:
         raise InputError("--workers", args.workers, ">= 0 (0 runs in this process)")
     if args.retries < 0:
@@ -152,7 +161,9 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("--first", args.first, ">= 1 target")
     targets_path = resolve_targets_path(args.targets)
     base = load(args.case)
-    targets = list(read_element_csv(targets_path, registry=base.registry()))
+    targets = list(
+        read_element_csv(targets_path, registry=base.registry(), ecliptic=base.element_ecliptic)
+    )
     if args.first is not None:
         targets = targets[: args.first]
     settings = SurveySettings(
@@ -172,8 +183,11 @@ def run(args: argparse.Namespace) -> int:
     )
     first, last = plan.years
     years = f"{first}" if first == last else f"{first}-{last}"
+    pending = pending_chunks(plan, out)
     # Nothing left to compute (a finished survey run again): merge without starting a cluster.
-    workers = 0 if not pending_chunks(plan, out) and not args.scheduler else args.workers
+    workers = 0 if not pending and not args.scheduler else args.workers
+    if pending:
+        prepare_solver()  # compiled once here, so neither the estimate nor the workers wait
     with survey_client(args.scheduler, workers, connect_timeout_s=args.connect_timeout) as client:
         print(
             f"Survey of {len(plan.target_names):,} targets x {len(plan.spans)} "
@@ -182,16 +196,35 @@ def run(args: argparse.Namespace) -> int:
             f"{describe_client(client)}",
             file=sys.stderr,
         )
+        estimate = estimate_survey(
+            plan, pending, worker_count(client), on_cluster=client is not None
+        )
+        if pending:
+            print(format_estimate(estimate, len(plan.chunks) - len(pending)), file=sys.stderr)
         start = time.perf_counter()
+        skipped = len(plan.chunks) - len(pending)
+        per_chunk = estimate.target_years / max(1, len(pending))
         bar = None
-        if not args.quiet:
+        if not args.quiet and pending:
             from tqdm import tqdm
 
-            bar = tqdm(total=len(plan.chunks), unit="chunk", file=sys.stderr, desc="surveying")
+            bar = tqdm(
+                total=estimate.target_years,
+                file=sys.stderr,
+                desc="surveying",
+                bar_format="{desc}: {percentage:3.0f}%|{bar}| {n_fmt}/{total_fmt} target-years "
+                "[{elapsed} elapsed{postfix}]",
+                postfix=f"about {duration_text(estimate.seconds)} left",
+            )
 
         def progress(done: int, total: int) -> None:
-            if bar is not None:
-                bar.update(done - bar.n)
+            if bar is None:
+                return
+            done_target_years = min(estimate.target_years, round((done - skipped) * per_chunk))
+            left = remaining_seconds(estimate, done_target_years, time.perf_counter() - start)
+            text = f"about {duration_text(left)} left" if done_target_years < bar.total else "done"
+            bar.set_postfix_str(text, refresh=False)
+            bar.update(done_target_years - bar.n)
 
         try:
             result = run_survey(plan, out, client=client, retries=args.retries, progress=progress)
@@ -222,6 +255,21 @@ def run(args: argparse.Namespace) -> int:
     )
     print(CAUTION)
     return 0
+
+
+def format_estimate(estimate, done_chunks: int) -> str:
+    """The line printed before a survey starts: how long it should take, and why."""
+    from solver.survey.estimate import duration_text
+
+    workers = f"{estimate.workers} worker{'s' if estimate.workers > 1 else ''}"
+    resumed = f"; {done_chunks:,} chunks already done are kept" if done_chunks else ""
+    return (
+        f"Estimated time: about {duration_text(estimate.seconds)} for "
+        f"{estimate.target_years:,} target-years on {workers} "
+        f"({1000 * estimate.seconds_per_target_year:.0f} ms each, measured here on "
+        f"{estimate.samples} of them){resumed}. Finished chunks are kept: stop with Ctrl+C and "
+        "rerun the same command to resume."
+    )
 
 
 def format_ranking(results, plan, rows: int) -> str:

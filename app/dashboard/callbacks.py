@@ -148,6 +148,7 @@ def register(app, model: DashboardModel) -> None:
         "description": Output("text-case-description", "children"),
         "central": Output("text-central-body", "children"),
         "metric": Output("dropdown-metric", "value"),
+        "metric_options": Output("dropdown-metric", "options"),
         "arc_options": Output("dropdown-arc-slot", "options"),
         "arc_value": Output("dropdown-arc-slot", "value"),
         "dep_options": Output("dropdown-body-departure", "options"),
@@ -622,6 +623,7 @@ def _fill_controls(out: dict, model: DashboardModel, view: ViewState, case) -> N
     out["case_options"] = model.catalogue.options()
     out["case_value"] = view.case
     out["metric"] = view.metric
+    out["metric_options"] = model.metric_options(case)
     out["arc_options"] = _arc_options(case.max_revolutions)
     out["arc_value"] = view.arcs
     out["title"] = case.title

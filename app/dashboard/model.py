@@ -29,6 +29,7 @@ from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, select_arc, solve_cell
 from solver.window.grid import WindowGrid, grid_axes
 from solver.window.metrics import METRICS
+from solver.window.outputs import case_outputs
 from solver.window.provenance import case_hash, window_cache_key
 
 from . import figures
@@ -51,7 +52,7 @@ from .prepare import (
 )
 from .shortlist import Shortlist
 from .state import (
-    LAUNCH_METRICS,
+    MAP_METRICS,
     ViewState,
     changes_from_controls,
     fit_arcs,
@@ -280,11 +281,19 @@ class DashboardModel:
         return self.grids.request(case)
 
     def suited_metric(self, case: Case, metric: str) -> str:
-        """``metric``, unless it describes a launch (C3, DLA) and the case has none: a case that
-        leaves a satellite given by elements then shows total Δv."""
-        if metric in LAUNCH_METRICS and not self.bodies(case).departure_is_launch:
-            return "dv_total_km_s"
-        return metric
+        """``metric``, unless it does not describe the case's arcs (C3 or DLA of a transfer that
+        starts with a burn): then the case's own default (solver.window.outputs)."""
+        fit = case_outputs(case, self.bodies(case))
+        return metric if metric in fit.ranking_metrics else fit.default_metric
+
+    def metric_options(self, case: Case) -> list[dict[str, str]]:
+        """The metric picker's choices for a case: the map metrics that fit it."""
+        fit = case_outputs(case, self.bodies(case))
+        return [
+            {"value": m, "label": f"{METRICS[m].label} ({METRICS[m].unit})"}
+            for m in MAP_METRICS
+            if m in fit.ranking_metrics
+        ]
 
     def bodies(self, case: Case) -> CaseBodies:
         key = case.normalized().__repr__()

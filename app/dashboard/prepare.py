@@ -38,6 +38,7 @@ from solver.window.cell import Arc
 from solver.window.grid import WindowGrid
 from solver.window.limits import LIMIT_RULES, breaches
 from solver.window.metrics import METRICS, dv_conventions
+from solver.window.outputs import arc_burns, case_outputs
 
 from .state import parse_arcs
 
@@ -438,7 +439,7 @@ def arc_scene(case: Case, arc: Arc, bodies: CaseBodies | None = None) -> ArcScen
     bodies = bodies or CaseBodies.of(case)
     frame, plane_label, scale, unit = _display_frame(bodies)
     if arc.ok:
-        _, r_arc = sample_arc(arc.r1_km, arc.v1_km_s, arc.tof_days * SECONDS_PER_DAY, arc.mu_km3_s2)
+        _, r_arc = sample_arc(arc.r1_km, arc.v1_km_s, arc.flight_s, arc.mu_km3_s2)
         arc_xyz = rotate(r_arc, ICRF, frame) / scale
     else:
         arc_xyz = np.empty((0, 3))
@@ -501,7 +502,7 @@ def family_data(case: Case, arcs: list[Arc], selected: Arc, bodies: CaseBodies |
             arc.r1_km,
             arc.v1_km_s,
             arc.r2_km,
-            arc.tof_days * SECONDS_PER_DAY,
+            arc.flight_s,
             arc.mu_km3_s2,
             arc.revolutions,
         )
@@ -559,12 +560,77 @@ def limit_breaches(case: Case, arc: Arc, bodies: CaseBodies | None = None) -> li
     return [b.text for b in breaches(case, bodies or CaseBodies.of(case), arc.metrics)]
 
 
+def _launch_sections(case: Case, arc: Arc, bodies: CaseBodies) -> list[tuple[str, list[DetailRow]]]:
+    """A launch: C3 and the departure asymptote, the arrival v∞ and burns."""
+    m = arc.metrics
+    rows: list[tuple[str, list[DetailRow]]] = []
+    counted = dv_conventions(case, bodies)
+    rows.append(
+        (
+            "Departure",
+            [
+                DetailRow("C3", _fmt(m["c3_km2_s2"], 3), "km²/s²"),
+                DetailRow("v∞", _fmt(m["vinf_departure_km_s"], 4), "km/s"),
+                DetailRow("DLA", _fmt(m["dla_deg"], 2), "deg"),
+                DetailRow("RLA", _fmt(m["rla_deg"], 2), "deg"),
+                DetailRow("Δv", _fmt(m["dv_departure_km_s"], 4), "km/s"),
+                DetailRow("Δv counted as", counted["departure_dv"]),
+            ],
+        )
+    )
+    arrival_rows = [
+        DetailRow("v∞", _fmt(m["vinf_arrival_km_s"], 4), "km/s"),
+        DetailRow("asymptote declination", _fmt(m["vinf_arrival_dec_deg"], 2), "deg"),
+        DetailRow("asymptote right ascension", _fmt(m["vinf_arrival_ra_deg"], 2), "deg"),
+        DetailRow("Δv", _fmt(m["dv_arrival_km_s"], 4), "km/s"),
+        DetailRow("Δv counted as", counted["arrival_dv"]),
+    ]
+    if math.isfinite(m.get("entry_speed_km_s", math.nan)):
+        arrival_rows.append(DetailRow("entry speed", _fmt(m["entry_speed_km_s"], 3), "km/s"))
+    rows.append(("Arrival", arrival_rows))
+    rows.append(("Total", [DetailRow("Δv", _fmt(m["dv_total_km_s"], 4), "km/s")]))
+    return rows
+
+
+def _burn_sections(case: Case, arc: Arc, bodies: CaseBodies) -> list[tuple[str, list[DetailRow]]]:
+    """A transfer that starts with a burn: phasing, each burn and its direction (no launch)."""
+    burns = arc_burns(case, arc, bodies)
+    counted = dv_conventions(case, bodies)
+
+    def direction(rtn) -> list[DetailRow]:
+        return [
+            DetailRow("radial", _fmt(float(rtn[0]), 4), "km/s"),
+            DetailRow("along-track", _fmt(float(rtn[1]), 4), "km/s"),
+            DetailRow("cross-track", _fmt(float(rtn[2]), 4), "km/s"),
+        ]
+
+    return [
+        ("Phasing", [DetailRow("target ahead at departure", _fmt(burns.phase_deg, 2), "deg")]),
+        (
+            "Departure burn",
+            [
+                DetailRow("Δv", _fmt(burns.departure_dv_km_s, 4), "km/s"),
+                *direction(burns.departure_rtn_km_s),
+                DetailRow("Δv counted as", counted["departure_dv"]),
+            ],
+        ),
+        (
+            "Arrival burn",
+            [
+                DetailRow("Δv", _fmt(burns.arrival_dv_km_s, 4), "km/s"),
+                *direction(burns.arrival_rtn_km_s),
+                DetailRow("Δv counted as", counted["arrival_dv"]),
+            ],
+        ),
+        ("Total", [DetailRow("Δv", _fmt(arc.metrics["dv_total_km_s"], 4), "km/s")]),
+    ]
+
+
 def arc_details(
     case: Case, arc: Arc, provenance: dict, bodies: CaseBodies | None = None
 ) -> list[tuple[str, list[DetailRow]]]:
     """Sections of the details panel: (heading, rows)."""
     bodies = bodies or CaseBodies.of(case)
-    m = arc.metrics
     frame, plane_label, _scale, unit = _display_frame(bodies)
     arc_label = (
         "single revolution" if arc.revolutions == 0 else f"N = {arc.revolutions}, {arc.branch}"
@@ -600,31 +666,10 @@ def arc_details(
     if not arc.ok:
         sections.append(("Why no arc", [DetailRow("reason", describe(arc.reason))]))
     else:
-        counted = dv_conventions(case, bodies)
-        sections.append(
-            (
-                "Departure",
-                [
-                    DetailRow("C3", _fmt(m["c3_km2_s2"], 3), "km²/s²"),
-                    DetailRow("v∞", _fmt(m["vinf_departure_km_s"], 4), "km/s"),
-                    DetailRow("DLA", _fmt(m["dla_deg"], 2), "deg"),
-                    DetailRow("RLA", _fmt(m["rla_deg"], 2), "deg"),
-                    DetailRow("Δv", _fmt(m["dv_departure_km_s"], 4), "km/s"),
-                    DetailRow("Δv counted as", counted["departure_dv"]),
-                ],
-            )
+        fit = case_outputs(case, bodies)
+        sections.extend(
+            _burn_sections(case, arc, bodies) if fit.burns else _launch_sections(case, arc, bodies)
         )
-        arrival_rows = [
-            DetailRow("v∞", _fmt(m["vinf_arrival_km_s"], 4), "km/s"),
-            DetailRow("asymptote declination", _fmt(m["vinf_arrival_dec_deg"], 2), "deg"),
-            DetailRow("asymptote right ascension", _fmt(m["vinf_arrival_ra_deg"], 2), "deg"),
-            DetailRow("Δv", _fmt(m["dv_arrival_km_s"], 4), "km/s"),
-            DetailRow("Δv counted as", counted["arrival_dv"]),
-        ]
-        if math.isfinite(m.get("entry_speed_km_s", math.nan)):
-            arrival_rows.append(DetailRow("entry speed", _fmt(m["entry_speed_km_s"], 3), "km/s"))
-        sections.append(("Arrival", arrival_rows))
-        sections.append(("Total", [DetailRow("Δv", _fmt(m["dv_total_km_s"], 4), "km/s")]))
         r1 = rotate(arc.r1_km, ICRF, frame)
         v1 = rotate(arc.v1_km_s, ICRF, frame)
         el = state_to_elements(r1, v1, arc.mu_km3_s2)

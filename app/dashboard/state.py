@@ -31,7 +31,6 @@ DEFAULT_CASE_ID = "tallis_rendezvous"
 DEFAULT_METRIC = "c3_km2_s2"
 MAP_METRICS = ("c3_km2_s2", "vinf_arrival_km_s", "dv_total_km_s", "dla_deg", "tof_days")
 """Metrics offered on the window map (the issue's five; the details panel shows all)."""
-LAUNCH_METRICS = ("c3_km2_s2", "dla_deg")
 """Map metrics that describe a launch vehicle's job; cases that leave a satellite open on Δv."""
 
 RANGE_SEPARATOR = "~"  # unreserved in URLs, so links stay readable
@@ -383,7 +382,6 @@ __all__ = [
     "DEFAULT_CASE_ID",
     "DEFAULT_METRIC",
     "FIELDS",
-    "LAUNCH_METRICS",
     "MAP_METRICS",
     "ViewState",
     "arc_choices",

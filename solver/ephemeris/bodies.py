@@ -24,7 +24,7 @@ from typing import NamedTuple
 from solver import constants as c
 from solver.ephemeris import de as ephem_de
 from solver.ephemeris import mean_elements as ephem_mean
-from solver.ephemeris.element_bodies import ElementBody, ElementSet
+from solver.ephemeris.element_bodies import ElementBody, ElementSet, frame_text
 from solver.errors import InputError
 
 DE423 = ephem_de.DE_NAME
@@ -174,6 +174,7 @@ def body_from_elements(elements: ElementBody) -> Body:
                 ELEMENTS, -math.inf, math.inf, "two-body orbit from its elements (exact Kepler)"
             ),
         ),
+        note=f"elements in the {frame_text(elements.frame)}",
         elements=elements,
     )
 

@@ -7,9 +7,20 @@ know: invented planets, asteroids, a moon of a planet. Each is a conic about a s
   inclination, right ascension/longitude of the ascending node, argument of periapsis, and the
   mean or true anomaly at the epoch, angles in degrees;
 * epoch: ISO 8601 UTC or JD TDB;
-* frame of the elements: ``"ecliptic"`` (J2000, the default for Sun-centred bodies), ``"icrf"``
-  (the default for every other central body) or ``"equator"`` (the central body's equator, from
-  its IAU pole in the registry: the frame in which "prograde" means about the planet's north pole);
+* frame of the elements (the plane and direction the inclination, node and periapsis are
+  measured from):
+
+  - ``"ecliptic"``: the mean ecliptic and equinox of J2000 as arcwindow defines it everywhere,
+    ICRF turned about x by the IAU 2006 obliquity 84381.406 arcsec; the default for Sun-centred
+    bodies;
+  - ``"ecliptic_iau1976"``: the same with the IAU 1976 obliquity 84381.448 arcsec, the J2000
+    ecliptic in which small-body element lists are commonly given (common practice). The two
+    differ by 0.042 arcsec: up to ~85 km for a body at 2.8 au. A case chooses which one a plain
+    ``"ecliptic"`` means (``ephemeris.ecliptic``, see ``solver/window/settings.py``);
+  - ``"icrf"``: the ICRF equator and equinox (EME2000 to ~0.02 arcsec); the default for every
+    other central body;
+  - ``"equator"``: the central body's equator, from its IAU pole in the registry (the frame in
+    which "prograde" means about the planet's north pole);
 * GM of the two-body motion: GM(central) + GM(body) (the body's own GM counts when given).
 
 Motion: mean anomaly M(t) = M0 + n (t - t0), n = sqrt(GM / |a|^3), solved for the true anomaly by
@@ -29,7 +40,14 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from solver.ephemeris.frames import ECLIPTIC, ICRF, ICRF_TO_ECLIPTIC, equator_frame
+from solver.ephemeris.frames import (
+    ECLIPTIC,
+    ECLIPTIC_IAU1976,
+    ICRF,
+    ICRF_TO_ECLIPTIC,
+    ICRF_TO_ECLIPTIC_IAU1976,
+    equator_frame,
+)
 from solver.errors import InputError
 from solver.mechanics.kepler import (
     elements_to_state,
@@ -39,7 +57,20 @@ from solver.mechanics.kepler import (
 from solver.time_units import SECONDS_PER_DAY
 
 EQUATOR = "equator"
-ELEMENT_FRAMES: tuple[str, ...] = (ECLIPTIC, ICRF, EQUATOR)
+ELEMENT_FRAMES: tuple[str, ...] = (ECLIPTIC, ECLIPTIC_IAU1976, ICRF, EQUATOR)
+ECLIPTICS: dict[str, str] = {"iau2006": ECLIPTIC, "iau1976": ECLIPTIC_IAU1976}
+"""Which frame a plain ``"ecliptic"`` means, by the name of its obliquity's IAU system."""
+
+
+def frame_text(frame: str) -> str:
+    """The frame of a body's elements in words, with the obliquity of an ecliptic."""
+    return {
+        ECLIPTIC: "J2000 ecliptic (IAU 2006 obliquity 84381.406 arcsec)",
+        ECLIPTIC_IAU1976: "J2000 ecliptic (IAU 1976 obliquity 84381.448 arcsec)",
+        ICRF: "ICRF equator and equinox",
+        EQUATOR: "the central body's equator (IAU pole)",
+    }.get(frame, frame)
+
 
 # Above this many (body x epoch) states, work in chunks to bound memory (each state costs about
 # 30 float64 temporaries inside elements_to_state).
@@ -70,7 +101,8 @@ class ElementBody:
     mu_km3_s2 : float
         GM of the two-body motion, GM(central) + GM(body), km^3/s^2.
     frame : str
-        ``"ecliptic"``, ``"icrf"`` or ``"equator"``.
+        ``"ecliptic"`` (IAU 2006 obliquity), ``"ecliptic_iau1976"``, ``"icrf"`` or
+        ``"equator"`` (see the module docstring).
     pole_ra_deg, pole_dec_deg : float
         The central body's pole for ``frame == "equator"`` (NaN otherwise).
     gm_km3_s2, radius_km : float
@@ -142,6 +174,8 @@ class ElementSet:
                 to_icrf[k] = np.eye(3)
             elif body.frame == ECLIPTIC:
                 to_icrf[k] = ICRF_TO_ECLIPTIC.T
+            elif body.frame == ECLIPTIC_IAU1976:
+                to_icrf[k] = ICRF_TO_ECLIPTIC_IAU1976.T
             else:
                 to_icrf[k] = equator_frame(body.pole_ra_deg, body.pole_dec_deg).icrf_to_frame.T
         self._perifocal_to_icrf = to_icrf @ perifocal_to_reference(
@@ -210,4 +244,4 @@ class ElementSet:
         np.matmul(v_pf, rot_t, out=v_out)
 
 
-__all__ = ["ELEMENT_FRAMES", "EQUATOR", "ElementBody", "ElementSet"]
+__all__ = ["ECLIPTICS", "ELEMENT_FRAMES", "EQUATOR", "ElementBody", "ElementSet", "frame_text"]

@@ -14,6 +14,11 @@ CSV format (one body per row; ``#`` starts a comment line; header names are case
 * optional: ``central_body`` (default ``sun``), ``gm_km3_s2``, ``radius_km``, ``frame``
   (empty cells take the defaults).
 
+Frames (:mod:`solver.ephemeris.element_bodies`): ``ecliptic`` (the default for Sun-centred
+bodies; the J2000 ecliptic with the IAU 2006 obliquity unless the reader is told otherwise),
+``ecliptic_iau1976`` (the IAU 1976 obliquity, common for small-body element lists),
+``ecliptic_iau2006``, ``icrf`` (the default about other central bodies) or ``equator``.
+
 Bad rows raise :class:`~solver.errors.InputError` naming the row, the column, the value and the
 accepted range.
 """
@@ -30,8 +35,14 @@ import numpy as np
 
 from solver.constants import AU_KM
 from solver.ephemeris.bodies import BodyRegistry, default_registry
-from solver.ephemeris.element_bodies import ELEMENT_FRAMES, EQUATOR, ElementBody, ElementSet
-from solver.ephemeris.frames import ECLIPTIC, ICRF
+from solver.ephemeris.element_bodies import (
+    ECLIPTICS,
+    ELEMENT_FRAMES,
+    EQUATOR,
+    ElementBody,
+    ElementSet,
+)
+from solver.ephemeris.frames import FRAME_ALIASES, ICRF
 from solver.ephemeris.timescales import utc_to_jd_tdb
 from solver.errors import InputError
 from solver.mechanics.kepler import true_to_mean_anomaly
@@ -56,6 +67,7 @@ def element_body(
     frame: str | None = None,
     registry: BodyRegistry | None = None,
     field_prefix: str = "",
+    ecliptic: str = "iau2006",
 ) -> ElementBody:
     """Validate plain values (units in the names) and build an :class:`ElementBody`.
 
@@ -63,7 +75,9 @@ def element_body(
     ``semi_major_axis_au`` and of ``mean_anomaly_deg``/``true_anomaly_deg``. The central body
     is looked up in ``registry`` (default: the built-in one) for its GM and, for
     ``frame="equator"``, its pole. ``field_prefix`` is put before field names in error
-    messages (e.g. ``"targets.csv row 7: "``).
+    messages (e.g. ``"targets.csv row 7: "``). ``ecliptic`` says which J2000 ecliptic a plain
+    ``frame="ecliptic"`` (or the Sun-centred default) means: ``"iau2006"`` (84381.406 arcsec)
+    or ``"iau1976"`` (84381.448 arcsec); the body keeps the frame it resolved to.
 
     Examples
     --------
@@ -143,12 +157,21 @@ def element_body(
         if not radius > 0.0:
             raise InputError(pre + "radius_km", radius, "> 0 km")
 
+    if ecliptic not in ECLIPTICS:
+        raise InputError("ephemeris.ecliptic", ecliptic, "'iau2006' or 'iau1976'")
     if frame is None or _blank(frame):
-        frame_name = ECLIPTIC if central.name == "sun" else ICRF
+        frame_name = "ecliptic" if central.name == "sun" else ICRF
     else:
         frame_name = str(frame).strip().lower()
-        if frame_name not in ELEMENT_FRAMES:
-            raise InputError(pre + "frame", frame, "'ecliptic', 'icrf' or 'equator'")
+    if frame_name == "ecliptic":  # plain "ecliptic": the one the case or reader chose
+        frame_name = ECLIPTICS[ecliptic]
+    frame_name = FRAME_ALIASES.get(frame_name, frame_name)
+    if frame_name not in ELEMENT_FRAMES:
+        raise InputError(
+            pre + "frame",
+            frame,
+            "'ecliptic', 'ecliptic_iau1976', 'ecliptic_iau2006', 'icrf' or 'equator'",
+        )
     pole_ra = pole_dec = math.nan
     if frame_name == EQUATOR:
         if not np.isfinite(central.pole_ra_deg):
@@ -221,6 +244,7 @@ def read_element_csv(
     *,
     registry: BodyRegistry | None = None,
     label: str | None = None,
+    ecliptic: str = "iau2006",
 ) -> ElementSet:
     """Read element bodies from a CSV (format in the module docstring).
 
@@ -232,6 +256,8 @@ def read_element_csv(
         Where central bodies are looked up (default: the built-in registry).
     label : str, optional
         Name of the file in error messages (default: the path).
+    ecliptic : {"iau2006", "iau1976"}
+        Which J2000 ecliptic rows with ``frame`` ``ecliptic`` (or empty, about the Sun) are in.
 
     Returns
     -------
@@ -281,6 +307,7 @@ def read_element_csv(
                 values["name"],
                 registry=registry,
                 field_prefix=f"{label} row {row_number}: ",
+                ecliptic=ecliptic,
                 **kwargs,  # type: ignore[arg-type]
             )
         )

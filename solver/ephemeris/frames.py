@@ -20,12 +20,15 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from solver.constants import OBLIQUITY_J2000_RAD
+from solver.constants import OBLIQUITY_J2000_IAU1976_RAD, OBLIQUITY_J2000_RAD
 from solver.errors import InputError
 
 ICRF = "icrf"
 ECLIPTIC = "ecliptic"
-NAMED_FRAMES: tuple[str, ...] = (ICRF, ECLIPTIC)
+ECLIPTIC_IAU1976 = "ecliptic_iau1976"
+NAMED_FRAMES: tuple[str, ...] = (ICRF, ECLIPTIC, ECLIPTIC_IAU1976)
+FRAME_ALIASES: dict[str, str] = {"ecliptic_iau2006": ECLIPTIC}
+"""Other accepted spellings of named frames."""
 
 
 def _rot_x(angle_rad: float) -> NDArray[np.float64]:
@@ -37,6 +40,8 @@ def _rot_x(angle_rad: float) -> NDArray[np.float64]:
 # v_ecliptic = ICRF_TO_ECLIPTIC @ v_icrf
 ICRF_TO_ECLIPTIC: NDArray[np.float64] = _rot_x(OBLIQUITY_J2000_RAD)
 ICRF_TO_ECLIPTIC.setflags(write=False)
+ICRF_TO_ECLIPTIC_IAU1976: NDArray[np.float64] = _rot_x(OBLIQUITY_J2000_IAU1976_RAD)
+ICRF_TO_ECLIPTIC_IAU1976.setflags(write=False)
 
 
 @dataclass(frozen=True)
@@ -86,17 +91,25 @@ def _icrf_to(frame: Frame, field_name: str) -> NDArray[np.float64]:
     if isinstance(frame, EquatorFrame):
         return frame.icrf_to_frame
     key = str(frame).strip().lower() if isinstance(frame, str) else frame
+    key = FRAME_ALIASES.get(key, key)
     if key == ICRF:
         return np.eye(3)
     if key == ECLIPTIC:
         return ICRF_TO_ECLIPTIC
-    raise InputError(field_name, frame, "'icrf' or 'ecliptic' (or an EquatorFrame)")
+    if key == ECLIPTIC_IAU1976:
+        return ICRF_TO_ECLIPTIC_IAU1976
+    raise InputError(
+        field_name, frame, "'icrf', 'ecliptic' or 'ecliptic_iau1976' (or an EquatorFrame)"
+    )
 
 
 def check_frame(frame: Frame, field_name: str = "frame") -> Frame:
     """Return ``frame`` normalised (lower-case name or the EquatorFrame), or raise InputError."""
     _icrf_to(frame, field_name)
-    return frame if isinstance(frame, EquatorFrame) else frame.strip().lower()
+    if isinstance(frame, EquatorFrame):
+        return frame
+    key = frame.strip().lower()
+    return FRAME_ALIASES.get(key, key)
 
 
 def rotation_matrix(from_frame: Frame, to_frame: Frame) -> NDArray[np.float64]:
@@ -140,8 +153,11 @@ def rotate(vectors: ArrayLike, from_frame: Frame, to_frame: Frame) -> NDArray[np
 
 __all__ = [
     "ECLIPTIC",
+    "ECLIPTIC_IAU1976",
+    "FRAME_ALIASES",
     "ICRF",
     "ICRF_TO_ECLIPTIC",
+    "ICRF_TO_ECLIPTIC_IAU1976",
     "NAMED_FRAMES",
     "EquatorFrame",
     "Frame",

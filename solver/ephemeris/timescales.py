@@ -41,6 +41,8 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from solver.errors import InputError
+from solver.time_units import MINUTES_PER_DAY as _MINUTES_PER_DAY
+from solver.time_units import SECONDS_PER_DAY as _SECONDS_PER_DAY
 
 ISO_UTC_ACCEPTED = (
     "an ISO 8601 UTC date or date-time such as '2026-05-01', '2026-05-01T12:00' or "
@@ -151,15 +153,84 @@ def parse_iso_utc(
 # ---------------------------------------------------------------------------------------------
 # Two-part conversions
 # ---------------------------------------------------------------------------------------------
+def utc_jd_to_tt_jd(
+    jd1_utc: ArrayLike, jd2_utc: ArrayLike
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Two-part UTC quasi-JD to two-part TT JD (TT - UTC = TAI - UTC + 32.184 s).
+
+    The day part is kept as given, so differences of TT dates taken part by part are exact to
+    ~1e-16 day: the elapsed time between two UTC instants, leap seconds included.
+    """
+    tai1, tai2, _ = erfa.ufunc.utctai(jd1_utc, jd2_utc)  # status 1 = dubious year: accepted
+    tt1, tt2, _ = erfa.ufunc.taitt(tai1, tai2)
+    return tt1, tt2
+
+
+def tt_jd_to_tdb_jd(
+    jd1_tt: ArrayLike, jd2_tt: ArrayLike
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Two-part TT JD to two-part TDB JD (the periodic TDB - TT term at the geocentre)."""
+    dtdb_s = erfa.ufunc.dtdb(jd1_tt, jd2_tt, 0.0, 0.0, 0.0, 0.0)  # topocentric terms zero
+    tdb1, tdb2, _ = erfa.ufunc.tttdb(jd1_tt, jd2_tt, dtdb_s)
+    return tdb1, tdb2
+
+
 def utc_jd_to_tdb_jd(
     jd1_utc: ArrayLike, jd2_utc: ArrayLike
 ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Two-part UTC quasi-JD (as from :func:`parse_iso_utc`) to two-part TDB JD."""
-    tai1, tai2, _ = erfa.ufunc.utctai(jd1_utc, jd2_utc)  # status 1 = dubious year: accepted
-    tt1, tt2, _ = erfa.ufunc.taitt(tai1, tai2)
-    dtdb_s = erfa.ufunc.dtdb(tt1, tt2, 0.0, 0.0, 0.0, 0.0)  # geocentre: topocentric terms zero
-    tdb1, tdb2, _ = erfa.ufunc.tttdb(tt1, tt2, dtdb_s)
-    return tdb1, tdb2
+    return tt_jd_to_tdb_jd(*utc_jd_to_tt_jd(jd1_utc, jd2_utc))
+
+
+def add_days(
+    jd1: ArrayLike, jd2: ArrayLike, days: ArrayLike
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """A two-part date plus ``days``, renormalized: day part at midnight (``.5``), fraction in
+    [0, 1). On a UTC quasi-JD this is UTC calendar arithmetic: whole days land on the same time
+    of day (a leap-second day counts as one day)."""
+    day1 = np.asarray(jd1, dtype=float)
+    fraction = np.asarray(jd2, dtype=float) + np.asarray(days, dtype=float)
+    whole = np.floor(fraction)
+    return day1 + whole, fraction - whole
+
+
+def elapsed_days(departure_jd_tdb: ArrayLike, arrival_jd_tdb: ArrayLike) -> NDArray[np.float64]:
+    """Elapsed time between two instants given in TDB, in days of 86400 SI seconds on the geoid.
+
+    This is the TT (= TAI) difference, which is what a clock on the ground counts between the
+    two UTC instants, leap seconds included. It differs from the TDB difference by the periodic
+    TDB - TT term at each end (at most ~3.4 ms). Float64 Julian dates limit it to about 40
+    microseconds; grid nodes take it from their two-part dates instead
+    (``solver.window.dates``).
+    """
+    dep1, dep2 = split_jd(departure_jd_tdb)
+    arr1, arr2 = split_jd(arrival_jd_tdb)
+    # TDB - TT evaluated at TDB instead of TT: the argument differs by < 2 ms, the term by ~1e-12 s.
+    d_dep = erfa.ufunc.dtdb(dep1, dep2, 0.0, 0.0, 0.0, 0.0)
+    d_arr = erfa.ufunc.dtdb(arr1, arr2, 0.0, 0.0, 0.0, 0.0)
+    return np.asarray((arr1 - dep1) + (arr2 - dep2) - (d_arr - d_dep) / _SECONDS_PER_DAY)
+
+
+def utc_jd_to_iso(jd1_utc: float, jd2_utc: float = 0.0, *, digits: int = 3) -> str:
+    """A two-part UTC quasi-JD as ISO 8601 text with a ``Z`` (scalars only)."""
+    year, month, day, hmsf, status = erfa.ufunc.d2dtf("UTC", int(digits), jd1_utc, jd2_utc)
+    if int(status) < 0:
+        raise InputError("jd_utc", float(jd1_utc) + float(jd2_utc), "a JD within years -4799..9999")
+    t = np.asarray(hmsf).reshape(-1)[0]
+    text = f"{int(year):04d}-{int(month):02d}-{int(day):02d}T{t['h']:02d}:{t['m']:02d}:{t['s']:02d}"
+    return (text + f".{t['f']:0{int(digits)}d}" if digits else text) + "Z"
+
+
+def round_to_utc_minute(jd_tdb: float) -> float:
+    """``jd_tdb`` moved to the nearest whole UTC minute (as a JD TDB).
+
+    Grid dates given on whole UTC minutes stay on them; refined dates rounded this way print as
+    ``hh:mm:00`` exactly.
+    """
+    utc1, utc2 = tdb_jd_to_utc_jd(*split_jd(jd_tdb))
+    minutes = np.round(np.asarray(utc2) * _MINUTES_PER_DAY)
+    tdb1, tdb2 = utc_jd_to_tdb_jd(*add_days(utc1, 0.0, minutes / _MINUTES_PER_DAY))
+    return float(tdb1 + tdb2)
 
 
 def tdb_jd_to_utc_jd(
@@ -304,11 +375,17 @@ __all__ = [
     "ISO_UTC_ACCEPTED",
     "LAST_LEAP_SECOND_UTC",
     "TAI_MINUS_UTC_LATEST_S",
+    "add_days",
+    "elapsed_days",
     "jd_tdb_to_iso_tdb",
     "jd_tdb_to_utc",
     "parse_iso_utc",
+    "round_to_utc_minute",
     "split_jd",
     "tdb_jd_to_utc_jd",
+    "tt_jd_to_tdb_jd",
+    "utc_jd_to_iso",
     "utc_jd_to_tdb_jd",
+    "utc_jd_to_tt_jd",
     "utc_to_jd_tdb",
 ]

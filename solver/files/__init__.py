@@ -43,5 +43,6 @@ __all__, __getattr__, __dir__ = lazy_api(
             "write_oem",
         ],
         "export": ["GRID_COLUMNS", "arc_json", "arc_oem_text", "grid_to_frame", "read_provenance"],
+        "paths": ["prepare_output"],
     },
 )

@@ -28,8 +28,16 @@ from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc
 from solver.window.grid import WindowGrid
-from solver.window.mass import mass_reasons
+from solver.window.mass import MASS_METRICS, mass_reasons
 from solver.window.metrics import METRICS
+from solver.window.outputs import (
+    arc_burns,
+    case_outputs,
+    in_rtn,
+    phase_angles_deg,
+    transfer_time_text,
+    vector_from_angles,
+)
 from solver.window.provenance import provenance
 
 GRID_COLUMNS = (
@@ -69,11 +77,97 @@ GRID_COLUMNS = (
 )
 
 
+BURN_DIRECTION_COLUMNS = tuple(
+    f"dv_{end}_{axis}_km_s"
+    for end in ("departure", "arrival")
+    for axis in ("radial", "along_track", "cross_track")
+)
+"""Burn components in the local orbital frame (solver.window.outputs.BURN_COMPONENTS)."""
+
+BURN_GRID_COLUMNS = (
+    "departure_utc",
+    "arrival_utc",
+    "tof_days",
+    "tof_hours",
+    "revolutions",
+    "branch",
+    "transfer_type",
+    "family",
+    "phase_deg",
+    "dv_departure_km_s",
+    *BURN_DIRECTION_COLUMNS[:3],
+    "dv_arrival_km_s",
+    *BURN_DIRECTION_COLUMNS[3:],
+    "dv_total_km_s",
+    "vinf_arrival_km_s",
+    "transfer_angle_deg",
+    "periapsis_km",
+    "apoapsis_km",
+    "a_km",
+    "e",
+    *MASS_METRICS,
+    "within_limits",
+    "reason",
+    "mass_reason",
+    "departure_jd_tdb",
+    "arrival_jd_tdb",
+)
+"""Columns of a transfer that starts with a burn (no launch: no C3, DLA or RLA): the burns and
+their directions, the phasing at departure and the transfer time (solver.window.outputs)."""
+
+
+def grid_columns(case: Case) -> tuple[str, ...]:
+    """The columns of a case's grid table: what fits the case (solver.window.outputs)."""
+    fit = case_outputs(case)
+    if fit.launch:
+        columns: tuple[str, ...] = GRID_COLUMNS
+    else:
+        columns = tuple(
+            c for c in BURN_GRID_COLUMNS if c not in METRICS or c in fit.metrics or c == "tof_days"
+        )
+    # Mass columns only where the case gives a mass (how it is counted: the provenance).
+    columns = tuple(c for c in columns if c not in MASS_METRICS or c in fit.metrics)
+    if not any(c in fit.metrics for c in MASS_METRICS):
+        columns = tuple(c for c in columns if c != "mass_reason")
+    if not fit.planet_centred:
+        columns = tuple(c for c in columns if c != "tof_hours")
+    elif "tof_hours" not in columns:
+        columns = (*columns[:3], "tof_hours", *columns[3:])
+    return columns
+
+
+def _burn_columns(grid: WindowGrid, i, j, k) -> dict[str, Any]:
+    """Burn components and phasing per row, from the grid's per-arc v∞ magnitudes and angles
+    (the v∞ vectors are v_arc - v_body, ICRF) and the bodies' states at the nodes."""
+    arcs = grid.arcs
+    leave = vector_from_angles(
+        arcs["vinf_departure_km_s"][i, j, k], arcs["dla_deg"][i, j, k], arcs["rla_deg"][i, j, k]
+    )
+    meet = -vector_from_angles(
+        arcs["vinf_arrival_km_s"][i, j, k],
+        arcs["vinf_arrival_dec_deg"][i, j, k],
+        arcs["vinf_arrival_ra_deg"][i, j, k],
+    )
+    if grid.case.arrival_mode == "flyby":
+        meet = np.where(np.isfinite(meet), 0.0, np.nan)
+    dep = in_rtn(leave, grid.departure_r_km[i], grid.departure_v_km_s[i])
+    arr = in_rtn(meet, grid.arrival_r_km[j], grid.arrival_v_km_s[j])
+    phase = phase_angles_deg(grid.case, CaseBodies.of(grid.case), grid.departure_jd_tdb)
+    out: dict[str, Any] = {"phase_deg": phase[i]}
+    for n, name in enumerate(BURN_DIRECTION_COLUMNS[:3]):
+        out[name] = dep[:, n]
+    for n, name in enumerate(BURN_DIRECTION_COLUMNS[3:]):
+        out[name] = arr[:, n]
+    return out
+
+
 def grid_to_frame(grid: WindowGrid) -> pd.DataFrame:
     """One row per cell and arc; a cell with no arc at all is one row carrying its reason.
 
     Multi-revolution slots that do not exist for a cell (its TOF is below the N-revolution
-    minimum) are not arcs and have no row; every cell appears at least once.
+    minimum) are not arcs and have no row; every cell appears at least once. The columns are
+    :func:`grid_columns` of the case: a launch's (:data:`GRID_COLUMNS`) or a transfer that
+    starts with a burn (:data:`BURN_GRID_COLUMNS`); ``tof_hours`` about a planet.
     """
     _n_dep, _n_arr, _slots = grid.shape
     converged = grid.converged
@@ -103,26 +197,32 @@ def grid_to_frame(grid: WindowGrid) -> pd.DataFrame:
         ),
         "family": categorical(grid.family[i, j, k], family_names),
     }
-    for name in GRID_COLUMNS:
+    names = grid_columns(grid.case)
+    for name in names:
         if name in grid.arcs:
             columns[name] = grid.arcs[name][i, j, k]
+    if "tof_hours" in names:
+        columns["tof_hours"] = columns["tof_days"] * 24.0
+    if "phase_deg" in names:
+        columns.update(_burn_columns(grid, i, j, k))
     columns["transfer_angle_deg"] = grid.transfer_angle_deg[i, j]
     columns["within_limits"] = grid.within[i, j, k]
     columns["reason"] = categorical(reasons, reason_names)
-    arcs = grid.arcs
-    mass_codes = mass_reasons(
-        grid.case,
-        CaseBodies.of(grid.case),
-        arcs["c3_km2_s2"][i, j, k],
-        arcs["dv_departure_km_s"][i, j, k],
-        arcs["dv_arrival_km_s"][i, j, k],
-    )
-    columns["mass_reason"] = categorical(
-        mass_codes, [describe_mass(code) for code in range(max(MassReason) + 1)]
-    )
+    if "mass_reason" in names:
+        arcs = grid.arcs
+        mass_codes = mass_reasons(
+            grid.case,
+            CaseBodies.of(grid.case),
+            arcs["c3_km2_s2"][i, j, k],
+            arcs["dv_departure_km_s"][i, j, k],
+            arcs["dv_arrival_km_s"][i, j, k],
+        )
+        columns["mass_reason"] = categorical(
+            mass_codes, [describe_mass(code) for code in range(max(MassReason) + 1)]
+        )
     columns["departure_jd_tdb"] = grid.departure_jd_tdb[i]
     columns["arrival_jd_tdb"] = grid.arrival_jd_tdb[j]
-    return pd.DataFrame({name: columns[name] for name in GRID_COLUMNS})
+    return pd.DataFrame({name: columns[name] for name in names})
 
 
 def write_grid(grid: WindowGrid, path: str | Path) -> Path:
@@ -192,9 +292,10 @@ def arc_json(case: Case, arc: Arc) -> dict[str, Any]:
     def clean(value: float) -> float | None:
         return float(value) if math.isfinite(value) else None
 
+    fit = case_outputs(case)
     bodies = CaseBodies.of(case)
     budget = mass_budget(case, arc, bodies=bodies)
-    return {
+    report: dict[str, Any] = {
         "case_title": case.title,
         "departure_utc": str(jd_tdb_to_utc(arc.departure_jd_tdb, digits=0)),
         "arrival_utc": str(jd_tdb_to_utc(arc.arrival_jd_tdb, digits=0)),
@@ -211,8 +312,12 @@ def arc_json(case: Case, arc: Arc) -> dict[str, Any]:
         "solved": arc.ok,
         "reason": describe(arc.reason),
         "within_limits": arc.within,
-        "metrics": {name: clean(value) for name, value in arc.metrics.items()},
-        "units": {name: METRICS[name].unit for name in arc.metrics if name in METRICS},
+        "metrics": {
+            name: clean(value) for name, value in arc.metrics.items() if name in fit.metrics
+        },
+        "units": {name: METRICS[name].unit for name in arc.metrics if name in fit.metrics},
+        "transfer_time": transfer_time_text(arc.tof_days, fit.planet_centred),
+        "tof_hours": arc.tof_days * 24.0,
         "mass_reason": budget.reason or describe_mass(MassReason.OK),
         "mass_budget": budget.as_dict(),
         "vehicles": [b.as_dict() for b in vehicle_comparison(case, arc, bodies)],
@@ -234,6 +339,30 @@ def arc_json(case: Case, arc: Arc) -> dict[str, Any]:
         "mu_km3_s2": arc.mu_km3_s2,
         "provenance": provenance(case),
     }
+    if fit.burns and arc.ok:
+        burns = arc_burns(case, arc)
+
+        def rtn(vector) -> dict[str, float]:
+            return {
+                axis: float(x)
+                for axis, x in zip(("radial", "along_track", "cross_track"), vector, strict=True)
+            }
+
+        report["burns"] = {
+            "frame": "radial, along-track, cross-track of the departure body's orbit at "
+            "departure and of the target's orbit at arrival",
+            "departure": {
+                "dv_km_s": burns.departure_dv_km_s,
+                "components_km_s": rtn(burns.departure_rtn_km_s),
+            },
+            "arrival": {
+                "dv_km_s": burns.arrival_dv_km_s,
+                "components_km_s": rtn(burns.arrival_rtn_km_s),
+            },
+            "total_dv_km_s": burns.departure_dv_km_s + burns.arrival_dv_km_s,
+            "phase_deg": burns.phase_deg,
+        }
+    return report
 
 
 def arc_oem_text(
@@ -246,7 +375,7 @@ def arc_oem_text(
             f"{arc.revolutions} rev {arc.branch}",
             f"a solved arc (this one: {describe(arc.reason)})",
         )
-    tof_s = arc.tof_days * 86400.0
+    tof_s = arc.flight_s  # the TDB interval the epochs below are counted in
     t_s, _ = sample_arc(
         arc.r1_km,
         arc.v1_km_s,
@@ -287,9 +416,12 @@ def arc_oem_text(
 
 
 __all__ = [
+    "BURN_DIRECTION_COLUMNS",
+    "BURN_GRID_COLUMNS",
     "GRID_COLUMNS",
     "arc_json",
     "arc_oem_text",
+    "grid_columns",
     "grid_to_frame",
     "read_provenance",
     "write_grid",

@@ -1,6 +1,6 @@
 """The rocket equation, vectorized: what each burn costs in propellant.
 
-Tsiolkovsky's equation Δv = Isp·g0·ln(m0/m1) (docs/references.md 10.1), solved for the mass after
+Tsiolkovsky's equation Δv = Isp·g0·ln(m0/m1) (docs/references.md 11.1), solved for the mass after
 an impulsive burn, m1 = m0·exp(-Δv/(Isp·g0)), and for the propellant it uses, m0 - m1. Burns are
 impulsive (no finite-burn or gravity losses): the Δv of a patched-conic design.
 """

@@ -3,7 +3,7 @@
 A launch along azimuth Az (from north, toward east) from geocentric latitude φ puts the orbit
 plane at inclination i with
 
-    cos i = cos φ · sin Az                                  (docs/references.md 10.3)
+    cos i = cos φ · sin Az                                  (docs/references.md 11.3)
 
 (spherical trigonometry of the site, the orbit's ground track and the equator). Due east
 (Az = 90°) gives the lowest inclination, i = |φ|; no azimuth gives less. A site with an allowed

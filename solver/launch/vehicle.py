@@ -2,7 +2,7 @@
 
 A vehicle is described by a table of C3 (km²/s²) against the mass it injects onto a departure
 hyperbola of that energy (kg). Between the table's points the mass is interpolated with scipy's
-PCHIP (``PchipInterpolator``, Fritsch & Carlson 1980; docs/references.md 10.2): a piecewise cubic
+PCHIP (``PchipInterpolator``, Fritsch & Carlson 1980; docs/references.md 11.2): a piecewise cubic
 that keeps the table's monotony (a curve that falls never rises between points, as a cubic
 spline may) and passes through every point. Outside the table's C3 range there is no mass, with
 a reason: a curve is not extrapolated.

@@ -55,5 +55,13 @@ __all__, __getattr__, __dir__ = lazy_api(
             "tau_of_epsilon",
         ],
         "parallel": ["PARALLEL_LOCK"],
+        "kernels": [
+            "KERNELS",
+            "Kernel",
+            "PreparedKernel",
+            "is_compiled_here",
+            "pending_kernels",
+            "prepare_kernels",
+        ],
     },
 )

@@ -309,6 +309,13 @@ def survey_client(
         cluster.close()
 
 
+def worker_count(client) -> int:
+    """Worker processes that will scan chunks (1 for this process, without Dask)."""
+    if client is None:
+        return 1
+    return max(1, len(client.scheduler_info().get("workers", {})))
+
+
 def describe_client(client) -> str:
     """``"local cluster, 2 worker processes"``-style text for progress lines."""
     if client is None:

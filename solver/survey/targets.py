@@ -20,7 +20,6 @@ table (:func:`target_body`).
 from __future__ import annotations
 
 import copy
-import datetime as _dt
 import math
 from collections.abc import Mapping
 from typing import Any
@@ -28,7 +27,9 @@ from typing import Any
 from solver.ephemeris.element_bodies import ElementBody
 from solver.ephemeris.element_input import ELEMENT_FIELDS, element_body
 from solver.errors import InputError
+from solver.time_units import MINUTE_DAYS
 from solver.window.case import Case, case_from_dict, element_body_dict, to_toml_dict
+from solver.window.dates import utc_plus_days
 
 
 def target_body(target: Any, registry=None) -> ElementBody:
@@ -91,12 +92,6 @@ def _missing(value: Any) -> bool:
 
 # ---------------------------------------------------------------------------------------------
 # Cases of one target
-
-
-def _utc_plus_days(utc: str, days: float) -> str:
-    """An ISO UTC date plus a number of days, as ISO text (UTC calendar arithmetic)."""
-    start = _dt.datetime.fromisoformat(utc.removesuffix("Z"))
-    return (start + _dt.timedelta(days=float(days))).isoformat()
 
 
 def case_dict(base: Case | Mapping[str, Any]) -> dict[str, Any]:
@@ -184,13 +179,14 @@ def target_case(
     base_window = raw.get("window", {})
     dep_step = coarse_step_days or base_window.get("departure_step_days", 1.0)
     arr_step = coarse_step_days or base_window.get("arrival_step_days", 1.0)
-    last_departure = _utc_plus_days(span_end_utc, -1.0 / 1440.0)
+    # Spans follow the grid's date rule (UTC calendar arithmetic, solver.window.dates).
+    last_departure = utc_plus_days(span_end_utc, -MINUTE_DAYS)
     window = {
         "departure_start": span_start_utc,
         "departure_end": last_departure,
         "departure_step_days": float(dep_step),
-        "arrival_start": _utc_plus_days(span_start_utc, tof_min),
-        "arrival_end": _utc_plus_days(span_end_utc, tof_max),
+        "arrival_start": utc_plus_days(span_start_utc, tof_min),
+        "arrival_end": utc_plus_days(span_end_utc, tof_max),
         "arrival_step_days": float(arr_step),
     }
     title = f"{body.name}, departures {span_start_utc} to {span_end_utc}"
@@ -256,15 +252,20 @@ def case_for_target(
     raw = case_dict(base_case)
     body = target_body(target)
 
-    def utc(jd: float) -> str:
-        return str(jd_tdb_to_utc(jd, digits=0, suffix=""))
+    def utc(jd: float, days: float) -> str:
+        # The arc's UTC date plus whole days in UTC, the grid's date rule (solver.window.dates).
+        return utc_plus_days(str(jd_tdb_to_utc(jd, digits=6)), days, digits=0)
 
     window = {
-        "departure_start": utc(dep - departure_half_width_days),
-        "departure_end": utc(dep + departure_half_width_days),
+        "departure_start": utc(dep, -departure_half_width_days),
+        "departure_end": utc(dep, departure_half_width_days),
         "departure_step_days": float(step_days),
-        "arrival_start": utc(max(arr - arrival_half_width_days, dep - departure_half_width_days)),
-        "arrival_end": utc(arr + arrival_half_width_days),
+        "arrival_start": (
+            utc(arr, -arrival_half_width_days)
+            if arr - arrival_half_width_days > dep - departure_half_width_days
+            else utc(dep, -departure_half_width_days)
+        ),
+        "arrival_end": utc(arr, arrival_half_width_days),
         "arrival_step_days": float(step_days),
     }
     title = f"{body.name}: window around the survey's best arc"

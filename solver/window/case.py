@@ -24,6 +24,11 @@ A case can be written by hand::
     [departure_orbit]           # optional: circular parking orbit about the departure body
     altitude_km = 200
 
+    [ephemeris]                 # optional
+    source = "de423"            # or "mean"
+    ecliptic = "iau2006"        # the J2000 ecliptic of [[bodies]] elements: "iau2006"
+                                # (84381.406 arcsec) or "iau1976" (84381.448 arcsec)
+
     [arrival_orbit]             # optional
     mode = "capture"            # "capture", "flyby" or "rendezvous"
     periapsis_altitude_km = 300
@@ -60,13 +65,14 @@ from __future__ import annotations
 
 import math
 import tomllib
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
 from solver.ephemeris.bodies import Body, BodyRegistry, default_registry, has_mass
 from solver.ephemeris.element_bodies import ElementBody
 from solver.ephemeris.element_input import ELEMENT_FIELDS, element_body
+from solver.ephemeris.frames import ECLIPTIC
 from solver.ephemeris.timescales import jd_tdb_to_utc, utc_to_jd_tdb
 from solver.errors import InputError
 from solver.launch.site import LaunchSite
@@ -119,6 +125,7 @@ class Case:
     entry_altitude_km: float | None = None
     limits: Limits = field(default_factory=Limits)
     ephemeris_source: str = "de423"
+    element_ecliptic: str = "iau2006"
     description: str = ""
     bodies: tuple[ElementBody, ...] = ()
     mass: MassModel = field(default_factory=MassModel)
@@ -167,6 +174,39 @@ class Case:
             else:
                 raw.setdefault(section, {})[key] = value
         return case_from_dict(raw, source_path=self.source_path)
+
+
+def with_window(
+    case: Case,
+    departure: tuple[str, str, float],
+    arrival: tuple[str, str, float],
+) -> Case:
+    """A copy of a validated case with other date windows, each ``(start UTC, end UTC, step
+    days)``. Only the dates are parsed again: for windows inside the case's own (refinement's
+    nested grids), where nothing else can become invalid."""
+    (d0, d1, d_step), (a0, a1, a_step) = departure, arrival
+    jd = {
+        key: float(utc_to_jd_tdb(text, field=f"window.{key}"))
+        for key, text in (
+            ("departure_start", d0),
+            ("departure_end", d1),
+            ("arrival_start", a0),
+            ("arrival_end", a1),
+        )
+    }
+    return replace(
+        case,
+        departure_start=d0,
+        departure_end=d1,
+        departure_step_days=float(d_step),
+        arrival_start=a0,
+        arrival_end=a1,
+        arrival_step_days=float(a_step),
+        departure_start_jd_tdb=jd["departure_start"],
+        departure_end_jd_tdb=jd["departure_end"],
+        arrival_start_jd_tdb=jd["arrival_start"],
+        arrival_end_jd_tdb=jd["arrival_end"],
+    )
 
 
 # ---------------------------------------------------------------------------------------------
@@ -232,7 +272,8 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
         return read_setting(raw, key)
 
     title = setting("case.title")
-    bodies = _element_bodies(raw.get("bodies", []))
+    ecliptic = setting("ephemeris.ecliptic")
+    bodies = _element_bodies(raw.get("bodies", []), ecliptic)
     registry = default_registry().with_bodies(*bodies) if bodies else default_registry()
     central = _body(registry, "case.central_body", setting("case.central_body"))
     departure = _body(registry, "case.departure_body", setting("case.departure_body"))
@@ -355,6 +396,7 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
         entry_altitude_km=entry,
         limits=limits,
         ephemeris_source=source,
+        element_ecliptic=ecliptic,
         description=setting("case.description"),
         bodies=tuple(bodies),
         mass=mass,
@@ -386,7 +428,7 @@ def to_toml_dict(case: Case) -> dict[str, Any]:
         },
         "transfer": {"max_revolutions": case.max_revolutions, "direction": case.direction},
         "arrival_orbit": {"mode": case.arrival_mode},
-        "ephemeris": {"source": case.ephemeris_source},
+        "ephemeris": {"source": case.ephemeris_source, "ecliptic": case.element_ecliptic},
     }
     if case.description:
         raw["case"]["description"] = case.description
@@ -439,7 +481,7 @@ def _body(registry: BodyRegistry, key: str, name: str) -> Body:
     return registry.get(name, field=key)
 
 
-def _element_bodies(entries: list) -> list[ElementBody]:
+def _element_bodies(entries: list, ecliptic: str = "iau2006") -> list[ElementBody]:
     bodies: list[ElementBody] = []
     registry = default_registry()
     for index, entry in enumerate(entries, start=1):
@@ -463,7 +505,9 @@ def _element_bodies(entries: list) -> list[ElementBody]:
         epoch = kwargs.get("epoch_utc")
         if epoch is not None and hasattr(epoch, "isoformat"):
             kwargs["epoch_utc"] = epoch.isoformat()
-        body = element_body(entry["name"], registry=registry, field_prefix=prefix, **kwargs)
+        body = element_body(
+            entry["name"], registry=registry, field_prefix=prefix, ecliptic=ecliptic, **kwargs
+        )
         registry = registry.with_bodies(body)  # later bodies may orbit earlier ones
         bodies.append(body)
     return bodies
@@ -484,7 +528,8 @@ def element_body_dict(body: ElementBody) -> dict[str, Any]:
         "raan_deg": body.raan_deg,
         "arg_periapsis_deg": body.arg_periapsis_deg,
         "mean_anomaly_deg": body.mean_anomaly_deg,
-        "frame": body.frame,
+        # Named outright, so the body means the same in a case of either ecliptic setting.
+        "frame": "ecliptic_iau2006" if body.frame == ECLIPTIC else body.frame,
     }
     if math.isfinite(body.gm_km3_s2):
         out["gm_km3_s2"] = body.gm_km3_s2
@@ -533,4 +578,5 @@ __all__ = [
     "load_case",
     "parse_case",
     "to_toml_dict",
+    "with_window",
 ]

@@ -11,6 +11,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
+from solver.ephemeris.timescales import elapsed_days
 from solver.errors import InputError
 from solver.mechanics.families import family_from_x
 from solver.mechanics.lambert import BRANCH_NAMES, solve_lambert
@@ -42,10 +43,14 @@ class Arc:
     within: bool
     transfer_angle_deg: float
     mu_km3_s2: float
+    tof_days: float
+    """Elapsed time between the two UTC instants, days (TT; see ``solver.window.dates``)."""
 
     @property
-    def tof_days(self) -> float:
-        return self.arrival_jd_tdb - self.departure_jd_tdb
+    def flight_s(self) -> float:
+        """The TDB interval between the two epochs, s: what the Lambert solve and any propagation
+        of the arc use (it differs from ``tof_days`` by the periodic TDB - TT term, ms)."""
+        return (self.arrival_jd_tdb - self.departure_jd_tdb) * SECONDS_PER_DAY
 
     @property
     def ok(self) -> bool:
@@ -60,11 +65,12 @@ def solve_cell(
     jd = np.array([departure_jd_tdb, arrival_jd_tdb], dtype=float)
     r_d, v_d = body_states(case, bodies, bodies.departure, jd[:1], "departure date")
     r_a, v_a = body_states(case, bodies, bodies.target, jd[1:], "arrival date")
-    tof_days = float(jd[1] - jd[0])
+    flight_s = float(jd[1] - jd[0]) * SECONDS_PER_DAY
+    tof_days = float(elapsed_days(jd[0], jd[1]))
     sol = solve_lambert(
         r_d[0],
         r_a[0],
-        tof_days * SECONDS_PER_DAY,
+        flight_s,
         bodies.mu_central_km3_s2,
         max_revs=case.max_revolutions,
         retrograde=case.retrograde,
@@ -73,7 +79,7 @@ def solve_cell(
     metrics = arc_metrics(case, bodies, r_d[0], sol.v1_km_s, sol.v2_km_s, v_d[0], v_a[0])
     angle = float(transfer_angle_deg(r_d[0], r_a[0], bodies.pole_icrf, case.retrograde))
     reason = np.where(
-        (tof_days <= 0) & (sol.reason == Reason.NONPOSITIVE_TOF),
+        (flight_s <= 0) & (sol.reason == Reason.NONPOSITIVE_TOF),
         np.int8(Reason.ARRIVAL_NOT_AFTER_DEPARTURE),
         sol.reason,
     )
@@ -102,6 +108,7 @@ def solve_cell(
                 within=bool(within[k]),
                 transfer_angle_deg=angle,
                 mu_km3_s2=bodies.mu_central_km3_s2,
+                tof_days=tof_days,
             )
         )
     return arcs

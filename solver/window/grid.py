@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 import os
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -18,6 +18,13 @@ from solver.reasons import Reason
 from solver.time_units import SECONDS_PER_DAY
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies, body_states, transfer_angle_deg
+from solver.window.dates import (
+    DateAxis,
+    axis_count,
+    date_axis,
+    elapsed_days_between,
+    end_note,
+)
 from solver.window.limits import within_limits
 from solver.window.metrics import METRICS, arc_metrics, ranking_values
 from solver.window.provenance import provenance, window_cache_key
@@ -33,6 +40,90 @@ _ARC_FLOAT_COLUMNS = tuple(m for m in METRICS if m != "tof_days")
 
 class Cancelled(Exception):
     """Raised by a progress callback to stop a grid computation."""
+
+
+TIE_BREAK: tuple[str, ...] = ("dv_total_km_s", "c3_km2_s2", "vinf_arrival_km_s", "tof_days")
+"""How arcs that the chosen metric does not separate are ranked: by these metrics in turn (the
+chosen one skipped), then by the earliest departure and arrival dates. Total Δv first (what
+the spacecraft pays), then the launch energy, the arrival speed and the time of flight."""
+
+TIE_RELATIVE = 1e-9
+"""Values within this fraction of the lowest (or 1e-12 absolute) count as equal: a TOF on a
+whole-day diagonal, a Δv that is 0 for every arc (no parking orbit, a flyby)."""
+
+
+def tie_tolerance(value: float) -> float:
+    """How far from ``value`` another value still ties with it (in the metric's unit)."""
+    return max(1e-12, TIE_RELATIVE * abs(value)) if np.isfinite(value) else 0.0
+
+
+def ranks_before(values: Mapping[str, float], other: Mapping[str, float], metric: str) -> bool:
+    """Whether an arc with metrics ``values`` ranks strictly before one with ``other`` by
+    ``metric`` under the grid's rule (:meth:`WindowGrid.best_cell`): the metric first, ties
+    (within :func:`tie_tolerance`) by :data:`TIE_BREAK`. For single arcs (refinement)."""
+    for name in (metric, *(n for n in TIE_BREAK if n != metric)):
+        a = float(ranking_values(values.get(name, np.nan), name))
+        b = float(ranking_values(other.get(name, np.nan), name))
+        a = a if np.isfinite(a) else np.inf
+        b = b if np.isfinite(b) else np.inf
+        if abs(a - b) > tie_tolerance(min(a, b)) or not np.isfinite(min(a, b)):
+            return a < b
+    return False
+
+
+@dataclass(frozen=True)
+class BestChoice:
+    """The best arc of a grid and the rule that chose it (:meth:`WindowGrid.best_choice`).
+
+    Attributes
+    ----------
+    index : (i_dep, j_arr, slot)
+    metric : str
+        The metric asked for.
+    value : float
+        Its lowest value (a magnitude for metrics ranked by magnitude).
+    tied : int
+        Qualifying arcs sharing that value (1 when the metric alone decided).
+    separates : bool
+        False when the metric is the same for every qualifying arc: it ranks nothing.
+    decided_by : str or None
+        The :data:`TIE_BREAK` metric that decided among the tied arcs; None when the metric
+        decided, or when the tied arcs were equal in every tie-break too (earliest dates).
+    qualifying : int
+        Arcs that were ranked.
+    """
+
+    index: tuple[int, int, int]
+    metric: str
+    value: float
+    tied: int
+    separates: bool
+    decided_by: str | None
+    qualifying: int
+
+    @property
+    def note(self) -> str:
+        """One sentence saying how the arc was chosen when the metric alone did not decide;
+        empty when it did."""
+        if self.tied == 1:
+            return ""
+        m = METRICS[self.metric]
+        unit = f" {m.unit}" if m.unit else ""
+        shown = f"|{m.label}|" if m.rank_by_magnitude else m.label
+        if not self.separates:
+            head = (
+                f"{shown} is {self.value:.6g}{unit} for every one of the {self.qualifying:,} "
+                "arcs ranked, so it does not rank them"
+            )
+        else:
+            head = f"{self.tied:,} arcs share the lowest {shown}, {self.value:.6g}{unit}"
+        if self.decided_by is None:
+            return head + "; the earliest departure and arrival of them is taken."
+        order = ", then ".join(METRICS[n].label for n in TIE_BREAK if n != self.metric)
+        return (
+            f"{head}; among them the lowest {METRICS[self.decided_by].label} is taken "
+            f"(tie-break: {order}, then the earliest dates)."
+        )
 
 
 @dataclass
@@ -129,18 +220,58 @@ class WindowGrid:
 
         The one rule for "the best arc": the lowest ``metric`` (by magnitude where the metric
         ranks so, as DLA) among the arcs within limits (or those of ``mask``), optionally among
-        some arc ``slots`` only (one revolution count and branch).
+        some arc ``slots`` only (one revolution count and branch). Arcs the metric does not
+        separate (values within :func:`tie_tolerance` of the lowest; every arc, when the metric
+        is the same everywhere) are ranked by :data:`TIE_BREAK`, then by the earliest departure
+        and arrival. :meth:`best_choice` says which rule decided.
         """
+        choice = self.best_choice(metric, slots=slots, mask=mask)
+        return None if choice is None else choice.index
+
+    def best_choice(
+        self,
+        metric: str = "c3_km2_s2",
+        *,
+        slots: list[int] | None = None,
+        mask: NDArray[np.bool_] | None = None,
+    ) -> BestChoice | None:
+        """The best arc of :meth:`best_cell` and how it was chosen (None if none qualifies)."""
         qualifies = self.within if mask is None else mask
         if slots is not None:
             keep = np.zeros(qualifies.shape[-1], dtype=bool)
             keep[slots] = True
             qualifies = qualifies & keep
         score = np.where(qualifies, ranking_values(self.metric(metric), metric), np.inf)
-        if not np.isfinite(score).any():
+        finite = np.isfinite(score)
+        if not finite.any():
             return None
-        i, j, k = np.unravel_index(int(np.argmin(score)), score.shape)
-        return int(i), int(j), int(k)
+        low = float(score[finite].min())
+        high = float(score[finite].max())
+        candidates = np.flatnonzero(score.reshape(-1) <= low + tie_tolerance(low))
+        tied = len(candidates)
+        decided_by = None
+        for name in TIE_BREAK:
+            if len(candidates) == 1:
+                break
+            if name == metric:
+                continue
+            values = ranking_values(self.metric(name), name).reshape(-1)[candidates]
+            values = np.where(np.isfinite(values), values, np.inf)
+            best = float(values.min())
+            narrowed = candidates[values <= best + tie_tolerance(best)]
+            if len(narrowed) < len(candidates):
+                decided_by = decided_by or name
+                candidates = narrowed
+        i, j, k = np.unravel_index(int(candidates[0]), score.shape)  # earliest dates first
+        return BestChoice(
+            index=(int(i), int(j), int(k)),
+            metric=metric,
+            value=low,
+            tied=tied,
+            separates=high - low > tie_tolerance(low),
+            decided_by=decided_by,
+            qualifying=int(finite.sum()),
+        )
 
     # -- cache round trip ----------------------------------------------------------------------
     def to_arrays(self) -> dict[str, NDArray]:
@@ -169,46 +300,73 @@ class WindowGrid:
         return cls(case=case, arcs=arcs, provenance=dict(provenance), from_cache=True, **plain)
 
 
-def grid_axes(case: Case) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-    """Departure and arrival epochs (JD TDB): start, start + step, ... up to the end date."""
-
-    def axis(start, end, step):
-        n = math.floor((end - start) / step + 1e-9) + 1
-        return start + step * np.arange(n)
-
+def grid_dates(case: Case) -> tuple[DateAxis, DateAxis]:
+    """Departure and arrival dates of the case's grid (the rule: :mod:`solver.window.dates`)."""
     return (
-        axis(case.departure_start_jd_tdb, case.departure_end_jd_tdb, case.departure_step_days),
-        axis(case.arrival_start_jd_tdb, case.arrival_end_jd_tdb, case.arrival_step_days),
+        date_axis(
+            case.departure_start,
+            case.departure_end,
+            case.departure_step_days,
+            "window.departure",
+        ),
+        date_axis(case.arrival_start, case.arrival_end, case.arrival_step_days, "window.arrival"),
     )
+
+
+def window_notes(case: Case) -> list[str]:
+    """Sentences for windows whose end date is not a date of the grid (the step does not
+    divide them), so an analyst is told which last date was used."""
+    notes = [
+        end_note(case.departure_start, case.departure_end, case.departure_step_days, "departure"),
+        end_note(case.arrival_start, case.arrival_end, case.arrival_step_days, "arrival"),
+    ]
+    return [note for note in notes if note]
+
+
+def grid_axes(case: Case) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Departure and arrival epochs (JD TDB): start, start + step, ... up to the end date,
+    counted in UTC (see :mod:`solver.window.dates`)."""
+    departures, arrivals = grid_dates(case)
+    return departures.jd_tdb, arrivals.jd_tdb
 
 
 def max_cell_arcs(value: int | None = None) -> int:
     """The cell-arc cap: argument, else ``ARCWINDOW_MAX_CELL_ARCS``, else the default."""
     if value is not None:
+        if isinstance(value, bool) or int(value) != value or value < 1:
+            raise InputError("max_cells", value, "a whole number of cell-arcs >= 1")
         return int(value)
     env = os.environ.get(ENV_MAX_CELL_ARCS)
     if env:
         try:
-            return int(float(env))
+            cap = float(env)
         except ValueError:
-            raise InputError(ENV_MAX_CELL_ARCS, env, "a positive integer") from None
+            cap = math.nan
+        if not (math.isfinite(cap) and cap >= 1):
+            raise InputError(ENV_MAX_CELL_ARCS, env, "a whole number of cell-arcs >= 1")
+        return int(cap)
     return DEFAULT_MAX_CELL_ARCS
 
 
 def check_grid_size(case: Case, cap: int | None = None) -> tuple[int, int, int]:
     """(n_dep, n_arr, slots) of the case's grid; InputError if it exceeds the cap."""
-    dep, arr = grid_axes(case)
+    n_dep = axis_count(
+        case.departure_start, case.departure_end, case.departure_step_days, "window.departure"
+    )
+    n_arr = axis_count(
+        case.arrival_start, case.arrival_end, case.arrival_step_days, "window.arrival"
+    )
     slots = 2 * case.max_revolutions + 1
-    total = len(dep) * len(arr) * slots
+    total = n_dep * n_arr * slots
     limit = max_cell_arcs(cap)
     if total > limit:
         raise InputError(
             "window",
-            f"{len(dep)} departure x {len(arr)} arrival dates x {slots} arcs = {total:,}",
+            f"{n_dep} departure x {n_arr} arrival dates x {slots} arcs = {total:,}",
             f"at most {limit:,} cell-arcs (raise the step days, narrow the dates, lower "
             f"max_revolutions, or set {ENV_MAX_CELL_ARCS})",
         )
-    return len(dep), len(arr), slots
+    return n_dep, n_arr, slots
 
 
 def compute_window(
@@ -251,11 +409,15 @@ def compute_window(
             return WindowGrid.from_arrays(case, hit.arrays, hit.metadata)
 
     bodies = CaseBodies.of(case)
-    dep_jd, arr_jd = grid_axes(case)
+    departures, arrivals = grid_dates(case)
+    dep_jd, arr_jd = departures.jd_tdb, arrivals.jd_tdb
     r_dep, v_dep = body_states(case, bodies, bodies.departure, dep_jd, "window.departure dates")
     r_arr, v_arr = body_states(case, bodies, bodies.target, arr_jd, "window.arrival dates")
 
-    tof_days = arr_jd[None, :] - dep_jd[:, None]
+    # Reported and limited: elapsed time between the UTC instants. Solved: the TDB interval
+    # between the epochs of the positions (they differ by milliseconds; solver.window.dates).
+    tof_days = elapsed_days_between(departures, arrivals)
+    flight_s = (arr_jd[None, :] - dep_jd[:, None]) * SECONDS_PER_DAY
     angle = transfer_angle_deg(
         r_dep[:, None, :], r_arr[None, :, :], bodies.pole_icrf, case.retrograde
     )
@@ -268,7 +430,7 @@ def compute_window(
     rows = max(1, _ROWS_PER_CHUNK_TARGET_ARCS // max(1, n_arr * slots))
     for start in range(0, n_dep, rows):
         sl = slice(start, min(n_dep, start + rows))
-        tof_s = tof_days[sl] * SECONDS_PER_DAY
+        tof_s = flight_s[sl]
         sol = solve_lambert(
             r_dep[sl, None, :],
             r_arr[None, :, :],
@@ -334,10 +496,16 @@ def compute_window(
 __all__ = [
     "DEFAULT_MAX_CELL_ARCS",
     "ENV_MAX_CELL_ARCS",
+    "TIE_BREAK",
+    "BestChoice",
     "Cancelled",
     "WindowGrid",
     "check_grid_size",
     "compute_window",
     "grid_axes",
+    "grid_dates",
     "max_cell_arcs",
+    "ranks_before",
+    "tie_tolerance",
+    "window_notes",
 ]

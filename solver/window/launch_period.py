@@ -13,9 +13,12 @@ ranking metric works alike: the worst day by its ranking, lowest best):
   the grid, then refined continuously.
 * ``"free-arrival"``: each day flies its own best arrival date.
 
-Each day's arc must meet the case's other limits (TOF, arrival v∞, clearing the central body,
-the launch site's reach); the C3, DLA and delivered mass the period needs are reported and
-compared with the C3, DLA and delivered-mass limits.
+Every day's arc meets every limit of the case (the limits table of
+:mod:`solver.window.limits`: C3, |DLA|, arrival v∞, TOF, delivered mass, clearing the central
+body, the launch site's reach), so the period is flyable on each of its days; the largest C3 and
+|DLA| and the smallest delivered mass over the period are reported. When no
+placement of L days has an arc within limits on every day, the error says how long the longest
+such run of days is.
 """
 
 from __future__ import annotations
@@ -27,16 +30,20 @@ import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 from scipy.optimize import minimize_scalar
 
+from solver.ephemeris.timescales import round_to_utc_minute
 from solver.errors import InputError
-from solver.time_units import MINUTE_DAYS, round_to_minute_from
+from solver.time_units import MINUTE_DAYS
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, solve_cell
 from solver.window.grid import compute_window
+from solver.window.limits import LIMIT_RULES
 from solver.window.mass import check_mass_metric
 from solver.window.metrics import RANKING_METRICS, ranking_values
+from solver.window.outputs import case_outputs
 
 STRATEGIES = ("fixed-arrival", "free-arrival")
+_NO_ARC = 1e30
 
 
 @dataclass(frozen=True)
@@ -77,16 +84,27 @@ class LaunchPeriod:
 
 
 def _feasibility_case(case: Case) -> Case:
-    """The case with daily departures and without the C3, DLA and delivered-mass limits (they
-    are outputs)."""
-    return case.with_changes(
-        **{
-            "window.departure_step_days": 1.0,
-            "limits.c3_max_km2_s2": None,
-            "limits.dla_max_deg": None,
-            "limits.delivered_mass_min_kg": None,
-        }
-    )
+    """The case with daily departures (every limit kept: each day must meet all of them)."""
+    return case.with_changes(**{"window.departure_step_days": 1.0})
+
+
+def _longest_run(feasible: np.ndarray) -> int:
+    """Length of the longest run of True in a 1-D boolean array."""
+    best = run = 0
+    for ok in feasible:
+        run = run + 1 if ok else 0
+        best = max(best, run)
+    return best
+
+
+def _limits_text(case: Case) -> str:
+    rules = [
+        f"{rule.label} {'<=' if rule.bound == 'max' else '>='} {rule.limit(case.limits):g}"
+        + (f" {rule.unit}" if rule.unit else "")
+        for rule in LIMIT_RULES
+        if rule.limit(case.limits) is not None
+    ]
+    return ", ".join(rules) if rules else "no limits but clearing the central body"
 
 
 def _score(arc: Arc | None, metric: str) -> float:
@@ -106,13 +124,19 @@ def _best_arc(arcs: list[Arc], metric: str = "c3_km2_s2") -> Arc | None:
 def _best_arrival(c3_of_arrival, grid_arrival_jd: float, step_days: float) -> float:
     """The arrival date, to the minute, within a grid step of ``grid_arrival_jd`` that minimizes
     ``c3_of_arrival``; the grid date itself if the continuous search does not beat it."""
+
+    def bounded(arrival: float) -> float:
+        # No arc within limits on some day: a large finite value steers the search away
+        # (infinities give the bounded search inf - inf).
+        return min(c3_of_arrival(arrival), _NO_ARC)
+
     result = minimize_scalar(
-        c3_of_arrival,
+        bounded,
         bounds=(grid_arrival_jd - step_days, grid_arrival_jd + step_days),
         method="bounded",
         options={"xatol": MINUTE_DAYS},
     )
-    arrival = round_to_minute_from(grid_arrival_jd, float(result.x))
+    arrival = round_to_utc_minute(float(result.x))
     return (
         arrival if c3_of_arrival(arrival) <= c3_of_arrival(grid_arrival_jd) else (grid_arrival_jd)
     )
@@ -159,13 +183,15 @@ def launch_period(
     Raises
     ------
     InputError
-        Bad length or strategy, or no placement where every day has a feasible arc.
+        Bad length or strategy, a case without a launch (a transfer that starts with a burn:
+        :mod:`solver.window.outputs`), or no placement where every day has an arc within limits.
     """
     if strategy not in STRATEGIES:
         raise InputError("strategy", strategy, "'fixed-arrival' or 'free-arrival'")
     if metric not in RANKING_METRICS:
         raise InputError("metric", metric, "one of " + ", ".join(RANKING_METRICS))
     check_mass_metric(case, metric)
+    case_outputs(case).check_launch_periods(case)
     feasible_case = _feasibility_case(case)
     grid = compute_window(feasible_case)
     n_days = len(grid.departure_jd_tdb)
@@ -181,19 +207,20 @@ def launch_period(
         )
     length_days = int(length_days)
     bodies = CaseBodies.of(feasible_case)
-    # How bad each cell's best arc is (lower is better); a cell without the metric (no mass)
-    # or outside limits is not a feasible day.
+    # How bad each cell's best arc is by the metric (lower is better; C3 by default); a cell
+    # outside limits, or without the metric (no mass), is not a feasible day.
     bad = ranking_values(grid.best_values(metric, by=metric), metric)
-    bad = np.where(grid.cell_within() & np.isfinite(bad), bad, np.inf)
+    c3 = np.where(grid.cell_within() & np.isfinite(bad), bad, np.inf)
 
     if strategy == "fixed-arrival":
-        worst = sliding_window_view(bad, length_days, axis=0).max(axis=-1)  # (starts, n_arr)
+        worst = sliding_window_view(c3, length_days, axis=0).max(axis=-1)  # (starts, n_arr)
         if not np.isfinite(worst).any():
+            longest = max(_longest_run(np.isfinite(c3[:, j])) for j in range(c3.shape[1]))
             raise InputError(
                 "--days",
                 length_days,
-                "a period length for which one arrival date serves every day "
-                "within the case's TOF and arrival limits",
+                f"at most {longest} days: the longest run of departure days that one arrival "
+                f"date serves within every limit of the case ({_limits_text(case)})",
             )
         start, j = (int(k) for k in np.unravel_index(int(np.argmin(worst)), worst.shape))
         dep = grid.departure_jd_tdb[start : start + length_days]
@@ -207,21 +234,22 @@ def launch_period(
         arcs = [_best_arc(solve_cell(feasible_case, d, arrival, bodies), metric) for d in dep]
         fixed_arrival: float | None = arrival
     else:
-        per_day = bad.min(axis=1)
+        per_day = c3.min(axis=1)
         worst = sliding_window_view(per_day, length_days).max(axis=-1)
         if not np.isfinite(worst).any():
             raise InputError(
                 "--days",
                 length_days,
-                "a period length for which every day has an arc within the "
-                "case's TOF and arrival limits",
+                f"at most {_longest_run(np.isfinite(per_day))} days: the longest run of "
+                f"departure days with an arc within every limit of the case "
+                f"({_limits_text(case)})",
             )
         start = int(np.argmin(worst))
         dep = grid.departure_jd_tdb[start : start + length_days]
         arcs = []
         step = feasible_case.arrival_step_days
         for i, d in enumerate(dep, start=int(start)):
-            arr0 = float(grid.arrival_jd_tdb[int(np.argmin(bad[i]))])
+            arr0 = float(grid.arrival_jd_tdb[int(np.argmin(c3[i]))])
 
             def day_score(arrival: float, d=d) -> float:
                 return _score(
@@ -232,6 +260,10 @@ def launch_period(
             arcs.append(_best_arc(solve_cell(feasible_case, d, arrival, bodies), metric))
         fixed_arrival = None
 
+    # Every day flies an arc within every limit: the grid placed the period on such days and
+    # the continuous arrival search only moves where that still holds (infinite C3 otherwise).
+    if any(a is None or not a.within for a in arcs):
+        raise RuntimeError("launch period: a day without an arc within limits was placed")
     days = tuple(_day(a) for a in arcs if a is not None)
     max_c3 = max(d.c3_km2_s2 for d in days)
     max_dla = max(abs(d.dla_deg) for d in days)

@@ -12,12 +12,40 @@ from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.mass import mass_notes
 from solver.window.metrics import dv_conventions
+from solver.window.outputs import case_outputs
 
 
 def ephemeris_label(case: Case) -> str:
+    """Where the states of the case's bodies come from: an ephemeris, their own elements, or
+    both. A transfer between bodies given by elements about the same central body reads no
+    ephemeris at all, and says so."""
+    registry = case.registry()
+
+    def root(name: str):
+        body = registry.get(name)
+        while body.elements is not None:
+            body = registry.get(body.elements.central_body)
+        return body
+
+    element_bodies = [
+        registry.get(name).name
+        for name in (case.departure_body, case.target_body)
+        if registry.get(name).elements is not None
+    ]
+    bases = {root(name).key for name in (case.departure_body, case.target_body)}
+    reads_ephemeris = bases != {root(case.central_body).key} or len(element_bodies) < 2
     if case.ephemeris_source == "mean":
-        return "JPL approximate mean elements (Standish, Table 1, 1800-2050)"
-    return "JPL DE423 (jplephem, de423 package)"
+        table = "JPL approximate mean elements (Standish, Table 1, 1800-2050)"
+    else:
+        table = "JPL DE423 (jplephem, de423 package)"
+    elements = (
+        "two-body motion from the case's elements (" + ", ".join(element_bodies) + ")"
+        if element_bodies
+        else ""
+    )
+    if not reads_ephemeris:
+        return f"no ephemeris file: {elements}"
+    return f"{table}; {elements}" if elements else table
 
 
 def case_hash(case: Case) -> str:
@@ -45,7 +73,12 @@ def provenance(case: Case) -> dict[str, Any]:
         "constants": "GM from the DE423 header; radii JPL SSD / IAU 2015 (solver/constants.py)",
         "engine": f"arcwindow {ENGINE_VERSION}",
         "lambert_method": "Izzo (2015) with Householder iterations",
-        "frame": "ICRF (equatorial J2000); DLA/RLA and arrival asymptote angles in ICRF",
+        "frame": (
+            "ICRF (equatorial J2000); DLA/RLA and arrival asymptote angles in ICRF"
+            if case_outputs(case).launch
+            else "ICRF (equatorial J2000); burn directions along the radial, along-track and "
+            "cross-track axes of the departure body's and the target's orbits"
+        ),
         "time_scales": "dates shown in UTC; computed in TDB",
         **dv_conventions(case, bodies),
         **mass_notes(case, bodies),

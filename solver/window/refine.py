@@ -17,19 +17,26 @@ A grid finds the best cell to the nearest grid step; an analyst wants the best a
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 import numpy as np
 from scipy.optimize import minimize
 
-from solver.ephemeris.timescales import jd_tdb_to_utc
+from solver.ephemeris.timescales import (
+    add_days,
+    parse_iso_utc,
+    round_to_utc_minute,
+    split_jd,
+    tdb_jd_to_utc_jd,
+    utc_jd_to_iso,
+)
 from solver.errors import InputError
-from solver.time_units import MINUTE_DAYS, round_to_minute_from
+from solver.time_units import MINUTE_DAYS
 from solver.window.best import slot_arc, slots_of
-from solver.window.case import Case
+from solver.window.case import Case, with_window
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, select_arc, solve_cell
-from solver.window.grid import WindowGrid, compute_window
+from solver.window.grid import WindowGrid, compute_window, ranks_before
 from solver.window.limits import margins
 from solver.window.mass import check_mass_metric
 from solver.window.metrics import METRICS, ranking_values
@@ -53,6 +60,7 @@ class RefinedArc:
     improvement: float  # grid value minus refined value, in the metric's unit
     evaluations: int  # cells or single arcs solved
     message: str
+    note: str = ""  # how the grid's best arc was chosen when the metric alone did not decide
 
 
 class _EnoughEvaluations(Exception):
@@ -106,19 +114,22 @@ def refine_best(
                 revolutions,
                 f"0 to {case.max_revolutions} (the case's max_revolutions)",
             )
-    best = grid.best_cell(metric, slots=slots)
-    if best is None:
+    choice = grid.best_choice(metric, slots=slots)
+    if choice is None:
         raise InputError(
             "limits",
             "no arc of the grid within limits",
             "a window or limits that leave at least one arc",
         )
     bodies = CaseBodies.of(case)
-    grid_arc = slot_arc(case, bodies, grid, *best)
+    grid_arc = slot_arc(case, bodies, grid, *choice.index)
     if method == "zoom":
         arc, evaluations, message = _zoom(case, bodies, grid_arc, metric, slots)
     else:
-        arc, evaluations, message = _slsqp(case, bodies, grid_arc, metric)
+        # A metric that is the same for every arc gives SLSQP nothing to descend: it follows
+        # the tie-break that chose the grid arc instead.
+        objective = metric if choice.separates or choice.decided_by is None else choice.decided_by
+        arc, evaluations, message = _slsqp(case, bodies, grid_arc, objective)
     return RefinedArc(
         arc=arc,
         metric=metric,
@@ -126,6 +137,7 @@ def refine_best(
         improvement=_value(grid_arc, metric) - _value(arc, metric),
         evaluations=evaluations,
         message=message,
+        note=choice.note,
     )
 
 
@@ -133,54 +145,70 @@ def _zoom(
     case: Case, bodies: CaseBodies, start: Arc, metric: str, slots: list[int] | None
 ) -> tuple[Arc, int, str]:
     """Nested grids around ``start``; returns (arc, cells solved, message)."""
-    arc, score = start, _value(start, metric)
-    dep, arr = start.departure_jd_tdb, start.arrival_jd_tdb
+    arc = start
+    dep, arr = _utc(start.departure_jd_tdb), _utc(start.arrival_jd_tdb)
+    dep_window = _window_utc(case.departure_start, case.departure_end)
+    arr_window = _window_utc(case.arrival_start, case.arrival_end)
     half_dep, half_arr = case.departure_step_days, case.arrival_step_days
     cells = 0
     while min(half_dep, half_arr) >= ZOOM_FINEST_DAYS:
-        d0 = max(dep - half_dep, case.departure_start_jd_tdb)
-        d1 = min(dep + half_dep, case.departure_end_jd_tdb)
-        a0 = max(arr - half_arr, case.arrival_start_jd_tdb)
-        a1 = min(arr + half_arr, case.arrival_end_jd_tdb)
+        # Plus and minus the previous step about the best arc, inside the case's windows, in
+        # UTC: the nested grid's dates follow the same rule as every grid's.
+        departure = _around(dep, half_dep, dep_window)
+        arrival = _around(arr, half_arr, arr_window)
         half_dep, half_arr = half_dep / ZOOM_SUBSTEPS, half_arr / ZOOM_SUBSTEPS
-        # Only the dates differ from the validated case, and they lie inside its windows.
-        sub = replace(
-            case,
-            departure_start=str(jd_tdb_to_utc(d0)),
-            departure_end=str(jd_tdb_to_utc(d1)),
-            arrival_start=str(jd_tdb_to_utc(a0)),
-            arrival_end=str(jd_tdb_to_utc(a1)),
-            departure_start_jd_tdb=d0,
-            departure_end_jd_tdb=d1,
-            arrival_start_jd_tdb=a0,
-            arrival_end_jd_tdb=a1,
-            departure_step_days=half_dep,
-            arrival_step_days=half_arr,
-        )
+        sub = with_window(case, (*departure, half_dep), (*arrival, half_arr))
         zoom = compute_window(sub)
         cells += zoom.reason.size
         cell = zoom.best_cell(metric, slots=slots)
         if cell is None:
             continue
         candidate = slot_arc(case, bodies, zoom, *cell)
-        if candidate.within and _value(candidate, metric) < score:
-            arc, score = candidate, _value(candidate, metric)
-            dep, arr = arc.departure_jd_tdb, arc.arrival_jd_tdb
-    # Report whole minutes from the grid's dates when that keeps the arc within limits and
-    # no worse than the grid cell (the last level stepped ~20 s).
+        if candidate.within and ranks_before(candidate.metrics, arc.metrics, metric):
+            arc = candidate
+            dep, arr = _utc(arc.departure_jd_tdb), _utc(arc.arrival_jd_tdb)
+    # Report whole UTC minutes when that keeps the arc within limits and no worse than the grid
+    # cell (the last level stepped ~20 s).
     candidate = select_arc(
         solve_cell(
             case,
-            round_to_minute_from(start.departure_jd_tdb, arc.departure_jd_tdb),
-            round_to_minute_from(start.arrival_jd_tdb, arc.arrival_jd_tdb),
+            round_to_utc_minute(arc.departure_jd_tdb),
+            round_to_utc_minute(arc.arrival_jd_tdb),
             bodies,
         ),
         arc.revolutions,
         arc.branch,
     )
-    if candidate.within and _value(candidate, metric) <= _value(start, metric):
+    if candidate.within and not ranks_before(start.metrics, candidate.metrics, metric):
         arc = candidate
     return arc, cells, f"nested grids down to the minute ({cells} cells)"
+
+
+def _utc(jd_tdb: float) -> tuple[float, float]:
+    """A JD TDB as a two-part UTC quasi-JD."""
+    utc1, utc2 = tdb_jd_to_utc_jd(*split_jd(jd_tdb))
+    return float(utc1), float(utc2)
+
+
+def _window_utc(start: str, end: str) -> tuple[tuple[float, float], tuple[float, float]]:
+    (s1, s2), (e1, e2) = parse_iso_utc(start), parse_iso_utc(end)
+    return (float(s1), float(s2)), (float(e1), float(e2))
+
+
+def _around(
+    centre: tuple[float, float],
+    half_days: float,
+    window: tuple[tuple[float, float], tuple[float, float]],
+) -> tuple[str, str]:
+    """ISO UTC start and end of ``centre`` plus and minus ``half_days``, inside ``window``."""
+    lo, hi = window
+    start = tuple(float(x) for x in add_days(*centre, -half_days))
+    end = tuple(float(x) for x in add_days(*centre, half_days))
+    if sum(start) < sum(lo):
+        start = lo
+    if sum(end) > sum(hi):
+        end = hi
+    return utc_jd_to_iso(*start, digits=6), utc_jd_to_iso(*end, digits=6)
 
 
 def _slsqp(case: Case, bodies: CaseBodies, start: Arc, metric: str) -> tuple[Arc, int, str]:
@@ -234,8 +262,15 @@ def _slsqp(case: Case, bodies: CaseBodies, start: Arc, metric: str) -> tuple[Arc
             else np.zeros(2)
         )
         note = f"stopped after {SLSQP_MAX_EVALUATIONS} evaluations"
-    # Round to the minute and check the rounded arc, not the optimizer's claim.
-    candidate = arc_at(np.round(found / MINUTE_DAYS) * MINUTE_DAYS)
+    # Round to the whole UTC minute and check the rounded arc, not the optimizer's claim.
+    candidate = arc_at(
+        np.array(
+            [
+                round_to_utc_minute(dep0 + float(found[0])) - dep0,
+                round_to_utc_minute(arr0 + float(found[1])) - arr0,
+            ]
+        )
+    )
     if (
         candidate is not None
         and candidate.within

@@ -375,6 +375,19 @@ SETTINGS: tuple[Setting, ...] = (
         default="de423",
         description="JPL DE423 (default) or JPL's approximate mean elements (1800-2050).",
     ),
+    Setting(
+        "ephemeris.ecliptic",
+        "choice",
+        "ecliptic of element bodies",
+        choices=("iau2006", "iau1976"),
+        default="iau2006",
+        description="The J2000 ecliptic of [[bodies]] elements given in the ecliptic (frame "
+        "'ecliptic', or no frame about the Sun): 'iau2006', obliquity 84381.406 arcsec, the "
+        "ecliptic of arcwindow's outputs; or 'iau1976', 84381.448 arcsec, common for small-body "
+        "element lists (0.042 arcsec apart: up to ~85 km at 2.8 au). A body's frame "
+        "'ecliptic_iau2006' or 'ecliptic_iau1976' says it outright. Survey catalogues read "
+        "with the base case's choice.",
+    ),
     # [launch_site]: optional, for Earth departures (see solver.launch.site)
     Setting(
         "launch_site.name",
