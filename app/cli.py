@@ -43,6 +43,10 @@ SUBCOMMANDS: dict[str, tuple[str, str]] = {
         "the daily launch window of a departure date (UTC open/close, azimuths, coast)",
     ),
     "survey": ("app.commands.survey_cmd", "rank many targets by their best arcs over years (Dask)"),
+    "sequence": (
+        "app.commands.sequence_cmd",
+        "search flyby sequences, round trips and tours (multi-leg arcs)",
+    ),
     "serve": (
         "app.commands.serve_cmd",
         "serve the dashboard (localhost only unless --host says otherwise)",

@@ -170,7 +170,72 @@ def case_format() -> str:
         lines += [f"| `{name}` | {_cell(unit)} | {_cell(what)} |" for name, unit, what in fields]
     example = (ROOT / "sample_cases" / "vesper_venus_orbiter.toml").read_text().strip()
     lines += ["", "## Example", "", "```toml", example, "```", ""]
+    lines += sequence_sections()
     return "\n".join(lines)
+
+
+def sequence_sections() -> list[str]:
+    """The [sequence] part of the case-format page, from solver/sequence/settings.py."""
+    from solver.sequence.settings import FLYBY_ALTITUDE_MIN_KM, SEQUENCE_SETTINGS
+
+    def table(section: str) -> list[str]:
+        rows = [
+            "| key | unit | default | accepted | what it is |",
+            "| --- | --- | --- | --- | --- |",
+        ]
+        for s in SEQUENCE_SETTINGS:
+            if s.section != section:
+                continue
+            default = (
+                "required" if s.required else ("not set" if s.default is None else f"`{s.default}`")
+            )
+            rows.append(
+                f"| `{s.name}` | {_cell(s.unit)} | {_cell(default)} | {_cell(s.accepted)} | "
+                f"{_cell(s.description)} |"
+            )
+        return rows
+
+    lines = [
+        "## [sequence]",
+        "",
+        "Optional: the bodies between the departure and the target (`arcwindow sequence`). One",
+        "`[sequence]` table, or several `[[sequence]]` tables ranked together (they share the",
+        "objective). `[window]` gives the departure dates and the window the final arrival must",
+        "fall in; `[limits]` apply as for one leg (C3 and DLA at departure, arrival v∞ at the end,",
+        "TOF on every leg); a round trip's `target_body` is its departure body. A case without",
+        "this section is a sequence of one leg.",
+        "",
+        *table("sequence"),
+        "| `legs` | | required | one or more `[[sequence.legs]]` tables | The legs, in order. |",
+        "| `flyby_altitude_min_km` | km | the defaults below | a table `{ body = altitude }` | "
+        "Lowest flyby altitude per body. |",
+        "",
+        "## [[sequence.legs]]",
+        "",
+        "One table per leg, in order; each says where the leg ends and what happens there.",
+        "",
+        *table("leg"),
+        "",
+        "## Lowest flyby altitudes",
+        "",
+        "arcwindow's defaults for preliminary design (a case sets its own per body or per flyby);",
+        "a body defined by elements with GM and radius defaults to a tenth of its radius.",
+        "",
+        "| body | altitude, km | why |",
+        "| --- | --- | --- |",
+        *[
+            f"| {body} | {km:g} | {_cell(why)} |"
+            for body, (km, why) in FLYBY_ALTITUDE_MIN_KM.items()
+        ],
+        "",
+        "## Sequence example",
+        "",
+        "```toml",
+        (ROOT / "sample_cases" / "sequences" / "harrow_jupiter_veega.toml").read_text().strip(),
+        "```",
+        "",
+    ]
+    return lines
 
 
 def cli() -> str:

@@ -22,6 +22,8 @@ class Reason(IntEnum):
     NOT_REQUESTED = 7
     OUTSIDE_EPHEMERIS = 8
     ARRIVAL_NOT_AFTER_DEPARTURE = 9
+    RESONANT_RETURN = 10
+    NO_RESONANT_ORBIT = 11
 
     @property
     def description(self) -> str:
@@ -42,6 +44,13 @@ _DESCRIPTIONS = {
     Reason.NOT_REQUESTED: "not requested (more revolutions than asked for)",
     Reason.OUTSIDE_EPHEMERIS: "a date lies outside the ephemeris range",
     Reason.ARRIVAL_NOT_AFTER_DEPARTURE: "arrival is not after departure",
+    Reason.RESONANT_RETURN: (
+        "a resonant return: the leg comes back to the body it left with both positions on one "
+        "line through the central body, so the plane of the arc is undefined"
+    ),
+    Reason.NO_RESONANT_ORBIT: (
+        "no orbit of the resonant period reaches the body's distance from the central body"
+    ),
 }
 
 

@@ -60,3 +60,24 @@ def test_launch_window_baseline_finds_the_same_windows():
         ours = daily_launch_window(site, 2462870.5, dla, rla, 3.0, mu_km3_s2=398600.4)
         sampled = sampled_window_minutes(site, 2462870.5, dla, rla)
         assert abs(ours.total_minutes - sampled) <= 4.0 / 60.0  # a second per opening end
+
+
+def test_sequence_bench_baseline_scores_the_same_candidates():
+    """The loop baseline of the sequence section evaluates the same numbers as the batched
+    call (the exact path against the compiled one), or its ratio means nothing."""
+    import numpy as np
+
+    from app.bench.sequence_bench import _five_leg
+
+    model, spec, bounds = _five_leg()
+    x = bounds[:, 0] + np.random.default_rng(2).uniform(size=(40, len(bounds))) * np.ptp(bounds, 1)
+    batched = model.score(x)
+    one_by_one = [model.costs(model.arcs(spec.epochs(row[None, :]))).score[0] for row in x]
+    assert np.allclose(batched, one_by_one, rtol=1e-9, atol=1e-9)
+
+
+def test_quick_sequence_evaluation_line_reports_a_ratio():
+    from app.bench.sequence_bench import evaluation_lines
+
+    (line,) = evaluation_lines("quick")
+    assert line.value > 0 and line.baseline_value and line.ratio > 1

@@ -25,7 +25,10 @@ SECTIONS: dict[str, str] = {
     "dashboard": "app.bench.dashboard_bench",
 }
 # Sections run only when asked for (``--section NAME`` or their own flag, e.g. ``--survey``).
-OPTIONAL_SECTIONS: dict[str, str] = {"survey": "app.bench.survey_bench"}
+OPTIONAL_SECTIONS: dict[str, str] = {
+    "survey": "app.bench.survey_bench",
+    "sequence": "app.bench.sequence_bench",  # about 10 minutes in full: ten 20 s searches twice
+}
 
 
 @dataclass

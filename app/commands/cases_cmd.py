@@ -32,8 +32,24 @@ def run(args: argparse.Namespace) -> int:
                 "default": path.stem == DEFAULT_CASE,
             }
         )
+    from app.samples import sequence_case_paths
+    from solver.sequence.provenance import sequence_label
+    from solver.sequence.spec import load_sequence_case
+
+    sequence_rows = []
+    for path in sequence_case_paths():
+        sequence_case = load_sequence_case(path)
+        sequence_rows.append(
+            {
+                "name": path.stem,
+                "path": str(path),
+                "title": sequence_case.case.title,
+                "sequences": [sequence_label(s) for s in sequence_case.sequences],
+                "default": False,
+            }
+        )
     if args.json:
-        print(json.dumps(rows, indent=2))
+        print(json.dumps(rows + sequence_rows, indent=2))
         return 0
     for row in rows:
         mark = " (default)" if row["default"] else ""
@@ -42,4 +58,10 @@ def run(args: argparse.Namespace) -> int:
             f"    {row['route']}; departure {row['departure']}; arrival {row['arrival']}; "
             f"up to {row['max_revolutions']} revolutions"
         )
+    if sequence_rows:
+        print("Sequences (arcwindow sequence CASE):")
+    for row in sequence_rows:
+        print(f"{row['name']}: {row['title']}")
+        for label in row["sequences"]:
+            print(f"    {label}")
     return 0

@@ -564,12 +564,18 @@ def sample_arc(
     return t, r
 
 
+propagate_one_into = _propagate_via_periapsis
+"""The compiled one-state propagator, for other compiled kernels (the sequence search's
+ephemeris): ``(rx, ry, rz, vx, vy, vz, dt_s, mu, out)`` writes (r, v) into ``out[0:6]`` and
+returns whether the iteration converged."""
+
 __all__ = [
     "Elements",
     "elements_to_state",
     "mean_to_true_anomaly",
     "perifocal_to_reference",
     "propagate",
+    "propagate_one_into",
     "sample_arc",
     "state_to_elements",
     "true_to_mean_anomaly",

@@ -633,6 +633,11 @@ def minimum_tof_nondim(lam: float, revs: int) -> tuple[float, float]:
     return _minimum_tof_x(float(lam), int(revs))
 
 
+solve_one_into = _solve_one
+"""The compiled one-case solver, for other compiled kernels: ``(r1, r2, tof_s, mu, pole,
+retrograde, max_revs, angle_tol, v1_out, v2_out, x_out, iters_out, reason_out)`` fills one row of
+every slot exactly as :func:`solve_lambert` does."""
+
 __all__ = [
     "BRANCH_HIGH",
     "BRANCH_LOW",
@@ -643,5 +648,6 @@ __all__ = [
     "minimum_tof_nondim",
     "slot_layout",
     "solve_lambert",
+    "solve_one_into",
     "tof_of_x",
 ]

@@ -243,11 +243,13 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
             if not isinstance(value, list):
                 raise InputError(key, value, f"an array of tables ([[{key}]])")
             continue
+        if key == "sequence":  # multi-leg sequences: validated by solver.sequence.spec
+            continue
         if key not in _SECTIONS:
             raise InputError(
                 key,
                 "(section)",
-                "one of " + ", ".join(sorted([*_SECTIONS, "bodies", *ARRAY_SECTIONS])),
+                "one of " + ", ".join(sorted([*_SECTIONS, "bodies", "sequence", *ARRAY_SECTIONS])),
             )
         if not isinstance(value, dict):
             raise InputError(key, value, f"a [{key}] table")
@@ -278,7 +280,7 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
     central = _body(registry, "case.central_body", setting("case.central_body"))
     departure = _body(registry, "case.departure_body", setting("case.departure_body"))
     target = _body(registry, "case.target_body", setting("case.target_body"))
-    if departure.key == target.key:
+    if departure.key == target.key and "sequence" not in raw:  # a sequence may return home
         raise InputError(
             "case.target_body", case["target_body"], "a body other than the departure body"
         )

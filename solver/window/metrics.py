@@ -40,7 +40,8 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from solver.ephemeris.bodies import has_mass
+from solver.ephemeris.bodies import Body, has_mass
+from solver.errors import InputError
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.mass import mass_metrics
@@ -155,6 +156,64 @@ def ranking_values(values: Any, metric: str) -> Any:
     return -values if meta.higher_is_better else values
 
 
+def departure_dv_km_s(
+    vinf2_km2_s2: NDArray, body: Body, parking_altitude_km: float | None
+) -> NDArray[np.float64]:
+    """Δv to leave ``body`` with v∞² ``vinf2_km2_s2`` (the module's departure convention).
+
+    From a circular parking orbit at ``parking_altitude_km``: a tangential burn at periapsis of
+    the departure hyperbola, sqrt(v∞² + 2μ/r_p) - sqrt(μ/r_p). Without one: 0 (the launch
+    vehicle delivers the C3) for a body with mass, |v∞| for a body without (one burn leaves its
+    orbit). NaN where v∞² is NaN.
+    """
+    with np.errstate(invalid="ignore", divide="ignore"):
+        if parking_altitude_km is not None and has_mass(body):
+            rp = body.radius_km + parking_altitude_km
+            return hyperbola_orbit_burn_km_s(
+                vinf2_km2_s2, body.gm_km3_s2, rp, math.sqrt(body.gm_km3_s2 / rp)
+            )
+        if has_mass(body):
+            return np.where(np.isfinite(vinf2_km2_s2), 0.0, np.nan)
+        return np.sqrt(vinf2_km2_s2)
+
+
+def arrival_dv_km_s(
+    vinf2_km2_s2: NDArray,
+    body: Body,
+    mode: str,
+    periapsis_altitude_km: float | None = None,
+    apoapsis_altitude_km: float | None = None,
+) -> NDArray[np.float64]:
+    """Δv to arrive at ``body`` with v∞² ``vinf2_km2_s2`` (the module's arrival convention).
+
+    ``mode`` "capture": a tangential burn at periapsis into the orbit of those altitudes,
+    sqrt(v∞² + 2μ/r_p) - sqrt(2μ r_a / (r_p (r_p + r_a))); "rendezvous": |v∞|; "flyby": 0.
+    Leaving such an orbit for the same v∞ costs the same burn run backwards, so a sequence's
+    stop counts its departure with this function too. NaN where v∞² is NaN.
+    """
+    with np.errstate(invalid="ignore", divide="ignore"):
+        if mode == "capture":
+            if periapsis_altitude_km is None or apoapsis_altitude_km is None:
+                raise InputError(
+                    "arrival_orbit.periapsis_altitude_km", "(missing)", "both capture altitudes"
+                )
+            rp = body.radius_km + periapsis_altitude_km
+            ra = body.radius_km + apoapsis_altitude_km
+            v_orbit = math.sqrt(2 * body.gm_km3_s2 * ra / (rp * (rp + ra)))
+            return hyperbola_orbit_burn_km_s(vinf2_km2_s2, body.gm_km3_s2, rp, v_orbit)
+        if mode == "rendezvous":
+            return np.sqrt(vinf2_km2_s2)
+        return np.where(np.isfinite(vinf2_km2_s2), 0.0, np.nan)
+
+
+def hyperbola_orbit_burn_km_s(
+    vinf2_km2_s2: NDArray, gm_km3_s2: float, periapsis_radius_km: float, orbit_speed_km_s: float
+) -> NDArray[np.float64]:
+    """Tangential burn at periapsis between a hyperbola of v∞² and an orbit moving at
+    ``orbit_speed_km_s`` there: sqrt(v∞² + 2μ/r_p) - v_orbit (common practice)."""
+    return np.sqrt(vinf2_km2_s2 + 2 * gm_km3_s2 / periapsis_radius_km) - orbit_speed_km_s
+
+
 def arc_metrics(
     case: Case,
     bodies: CaseBodies,
@@ -186,30 +245,17 @@ def arc_metrics(
             "vinf_arrival_ra_deg": np.degrees(np.arctan2(vinf_a[..., 1], vinf_a[..., 0])) % 360.0,
         }
 
-        dep = bodies.departure
-        if case.parking_altitude_km is not None and has_mass(dep):
-            rp = dep.radius_km + case.parking_altitude_km
-            out["dv_departure_km_s"] = np.sqrt(vd2 + 2 * dep.gm_km3_s2 / rp) - math.sqrt(
-                dep.gm_km3_s2 / rp
-            )
-        elif has_mass(dep):
-            out["dv_departure_km_s"] = np.where(np.isfinite(vd), 0.0, np.nan)
-        else:
-            out["dv_departure_km_s"] = vd
-
+        out["dv_departure_km_s"] = departure_dv_km_s(
+            vd2, bodies.departure, case.parking_altitude_km
+        )
         tgt = bodies.target
-        if case.arrival_mode == "capture":
-            # A capture case always has both altitudes (the parser sets a circular orbit).
-            assert case.capture_periapsis_altitude_km is not None
-            assert case.capture_apoapsis_altitude_km is not None
-            rp = tgt.radius_km + case.capture_periapsis_altitude_km
-            ra = tgt.radius_km + case.capture_apoapsis_altitude_km
-            v_orbit = math.sqrt(2 * tgt.gm_km3_s2 * ra / (rp * (rp + ra)))
-            out["dv_arrival_km_s"] = np.sqrt(va2 + 2 * tgt.gm_km3_s2 / rp) - v_orbit
-        elif case.arrival_mode == "rendezvous":
-            out["dv_arrival_km_s"] = va
-        else:
-            out["dv_arrival_km_s"] = np.where(np.isfinite(va), 0.0, np.nan)
+        out["dv_arrival_km_s"] = arrival_dv_km_s(
+            va2,
+            tgt,
+            case.arrival_mode,
+            case.capture_periapsis_altitude_km,
+            case.capture_apoapsis_altitude_km,
+        )
         out["dv_total_km_s"] = out["dv_departure_km_s"] + out["dv_arrival_km_s"]
         out.update(
             mass_metrics(case, bodies, vd2, out["dv_departure_km_s"], out["dv_arrival_km_s"])
@@ -221,7 +267,16 @@ def arc_metrics(
         else:
             out["entry_speed_km_s"] = np.full(va.shape, np.nan)
 
-        # The arc's own conic about the central body, from its departure state.
+        out.update(arc_conic(r1_km, v1_km_s, mu))
+    return out
+
+
+def arc_conic(r1_km: NDArray, v1_km_s: NDArray, mu_km3_s2: float) -> dict[str, NDArray]:
+    """The arc's own conic about the central body from its departure state: ``a_km``, ``e``,
+    ``periapsis_km`` (closest approach, for the surface rule) and ``apoapsis_km`` (inf when
+    open). Shapes broadcast as in :func:`arc_metrics`; NaN arcs give NaN."""
+    mu = mu_km3_s2
+    with np.errstate(invalid="ignore", divide="ignore"):
         r1 = np.broadcast_to(r1_km, v1_km_s.shape)
         r1n = np.sqrt(np.einsum("...i,...i->...", r1, r1))
         v1sq = np.einsum("...i,...i->...", v1_km_s, v1_km_s)
@@ -229,12 +284,13 @@ def arc_metrics(
         p = np.einsum("...i,...i->...", h, h) / mu
         energy = 0.5 * v1sq - mu / r1n
         e = np.sqrt(np.maximum(0.0, 1.0 + 2.0 * energy * p / mu))
-        out["a_km"] = -mu / (2.0 * energy)
-        out["e"] = e
-        out["periapsis_km"] = p / (1.0 + e)
-        out["apoapsis_km"] = np.where(e < 1.0, p / (1.0 - e), np.inf)
-        out["apoapsis_km"] = np.where(np.isfinite(e), out["apoapsis_km"], np.nan)
-    return out
+        apoapsis = np.where(e < 1.0, p / (1.0 - e), np.inf)
+        return {
+            "a_km": -mu / (2.0 * energy),
+            "e": e,
+            "periapsis_km": p / (1.0 + e),
+            "apoapsis_km": np.where(np.isfinite(e), apoapsis, np.nan),
+        }
 
 
 def dv_conventions(case: Case, bodies: CaseBodies) -> dict[str, str]:
@@ -264,7 +320,11 @@ __all__ = [
     "METRICS",
     "RANKING_METRICS",
     "Metric",
+    "arc_conic",
     "arc_metrics",
+    "arrival_dv_km_s",
+    "departure_dv_km_s",
     "dv_conventions",
+    "hyperbola_orbit_burn_km_s",
     "ranking_values",
 ]
