@@ -299,3 +299,14 @@ def test_case_sections_round_trip_and_refuse_what_does_not_apply():
     with pytest.raises(InputError) as info:
         case_from_dict(raw)
     assert info.value.field == "launch_site"
+
+
+def test_multi_leg_sequences_refuse_a_delivered_mass_limit_they_cannot_count():
+    from app.samples import SAMPLE_DIR
+    from solver.sequence.spec import parse_sequence_case
+
+    text = (SAMPLE_DIR / "sequences" / "harrow_jupiter_veega.toml").read_text(encoding="utf-8")
+    assert "[limits]\n" in text
+    with pytest.raises(InputError) as info:
+        parse_sequence_case(text.replace("[limits]\n", "[limits]\ndelivered_mass_min_kg = 500\n"))
+    assert info.value.field == "limits.delivered_mass_min_kg"
