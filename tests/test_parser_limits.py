@@ -20,7 +20,7 @@ from hypothesis import strategies as st
 from app.samples import SAMPLE_DIR
 from solver.ephemeris.element_input import read_element_csv
 from solver.errors import InputError
-from solver.window.case import case_from_dict, dumps_toml, parse_case
+from solver.window.case import MAX_TOML_DEPTH, case_from_dict, dumps_toml, parse_case
 from solver.window.settings import SECTIONS
 
 KESTREL = (SAMPLE_DIR / "kestrel_relay_leo.toml").read_text(encoding="utf-8")
@@ -100,7 +100,7 @@ def checked(exc: InputError) -> InputError:
     [
         ("x = " + "[" * 500 + "]" * 500, "case file"),
         ("x = " + "{a = " * 500 + "1" + "}" * 500, "case file"),
-        ("[" + ".".join(["deep"] * 2000) + "]\n", "deep.deep.deep.deep"),
+        ("[" + ".".join(["deep"] * 2000) + "]\n", ".".join(["deep"] * MAX_TOML_DEPTH)),
         (KESTREL.replace("max_revolutions = 3", "max_revolutions = 1" + "0" * 400), None),
         (KESTREL.replace("max_revolutions = 3", "max_revolutions = 1" + "0" * 5000), "case file"),
         (KESTREL.replace("tof_min_days = 0.01", "tof_min_days = 1e400"), "limits.tof_min_days"),

@@ -17,7 +17,7 @@ import pandas as pd
 import pytest
 
 from app.bench.dashboard_bench import DashClient, _test_client_transport
-from app.dashboard import DashboardModel, Settings, create_app
+from app.dashboard import Settings, WindowService, create_app
 from app.dashboard.access import (
     MAX_REQUEST_BODY_BYTES,
     SECURITY_HEADERS,
@@ -38,41 +38,39 @@ VIEW = "?case=vesper_venus_orbiter"
 @pytest.fixture
 def served(tmp_path):
     """An app as `arcwindow serve --host 0.0.0.0 --token ...` builds it."""
-    model = DashboardModel(Settings.resolve(tmp_path / "c", tmp_path / "d", SAMPLES))
+    service = WindowService(Settings.resolve(tmp_path / "c", tmp_path / "d", SAMPLES))
     policy = AccessPolicy.for_address("0.0.0.0", 8123, token=TOKEN, allow_hosts=["arc.team"])
-    app = create_app(model=model, access=policy)
+    app = create_app(service=service, access=policy)
     yield app, policy
-    model.shutdown()
+    service.shutdown()
 
 
 @pytest.fixture
 def local(tmp_path):
     """An app as `arcwindow serve` builds it on localhost (no token)."""
-    model = DashboardModel(Settings.resolve(tmp_path / "c", tmp_path / "d", SAMPLES))
-    app = create_app(model=model)
-    yield app, model
-    model.shutdown()
+    service = WindowService(Settings.resolve(tmp_path / "c", tmp_path / "d", SAMPLES))
+    app = create_app(service=service)
+    yield app, service
+    service.shutdown()
 
 
 def callback_body(app) -> dict:
-    """A real request of the page: the view sync of the default case."""
+    """A real request of the page (the view callback of a page load), built as the page builds
+    it (the benchmark's DashClient)."""
     deps = app.server.test_client(use_cookies=False).get(
         "/_dash-dependencies", headers={TOKEN_HEADER: TOKEN}
     )
     assert deps.status_code == 200
-    dep = next(d for d in deps.get_json() if d["output"].startswith("..location-page-url.search"))
-    return {
-        "output": dep["output"],
-        "outputs": [
-            {"id": p.rpartition(".")[0], "property": p.rpartition(".")[2]}
-            for p in dep["output"].strip(".").split("...")
-        ],
-        "inputs": [
-            {**i, "value": VIEW if i["id"] == "location-page-url" else None} for i in dep["inputs"]
-        ],
-        "state": [{**s, "value": None} for s in dep["state"]],
-        "changedPropIds": ["location-page-url.search"],
-    }
+    captured: dict = {}
+
+    def capture(path, body):
+        captured["body"] = body
+        return 599, None
+
+    client = DashClient(capture, deps.get_json())
+    client.values["store-page-query.data"] = VIEW
+    client.sync("store-page-query.data", redraw=False)
+    return captured["body"]
 
 
 # ---------------------------------------------------------------------------------------------
@@ -210,45 +208,33 @@ def test_request_bodies_over_the_limit_are_refused(local):
     assert client.get("/").status_code == 200  # and the server goes on serving
 
 
-def test_survey_open_changes_state_only_by_post(local, tmp_path):
-    """A GET of the old "open" address is now only the page (nothing stored, no redirect into
-    a new case); the POST of the survey table's form does the work."""
+def test_opening_a_survey_target_changes_state_only_through_a_callback(local):
+    """`GET /survey-open` (the address of earlier versions) only redirects; the case is stored
+    by the window page's view callback, a POST, so only this server's own pages can do it."""
     from small_survey import write_small_survey
 
-    app, model = local
-    write_small_survey(model.settings.surveys_dir / "s.parquet", targets=2)
-    target = pd.read_parquet(model.settings.surveys_dir / "s.parquet")["target"].iloc[0]
+    app, service = local
+    write_small_survey(service.settings.surveys_dir / "s.parquet", targets=2)
+    target = pd.read_parquet(service.settings.surveys_dir / "s.parquet")["target"].iloc[0]
     client = app.server.test_client()
-    uploads = model.settings.uploads_dir
+    uploads = service.settings.uploads_dir
     read = client.get(f"/survey-open?results=s&target={target}")
-    assert read.status_code == 200 and "Location" not in read.headers
-    assert not uploads.exists() or not list(uploads.iterdir())
-    opened = client.post(f"/survey-open?results=s&target={target}")
-    assert opened.status_code == 302 and opened.headers["Location"].startswith("/?case=upload-")
-    assert len(list(uploads.glob("upload-*.toml"))) == 1
-    unknown = client.post("/survey-open?results=s&target=nobody")
-    assert unknown.status_code == 302 and "error=" in unknown.headers["Location"]
-
-
-def test_survey_table_opens_targets_with_a_form_post(tmp_path):
-    from app.dashboard.survey_page import OPEN_PATH, table_children
-    from app.dashboard.surveys import SurveyTable
-
-    frame = pd.DataFrame(
-        [
-            {
-                "rank": 1,
-                "target": "Amberly",
-                "status": "within_limits",
-                "within_limits": True,
-                "departure_jd_tdb": 2463000.5,
-                "reason": "",
-            }
-        ]
+    assert read.status_code == 302 and read.headers["Location"].startswith("/?survey=s")
+    assert not uploads.exists() or not list(uploads.glob("upload-*.toml"))
+    assert client.post(f"/survey-open?results=s&target={target}").status_code == 405
+    body = callback_body(app)
+    body["inputs"] = [
+        {**i, "value": f"?survey=s&target={target}"} if i.get("id") == "store-page-query" else i
+        for i in body["inputs"]
+    ]
+    elsewhere = client.post(
+        "/_dash-update-component", json=body, headers={"Origin": "http://evil.example"}
     )
-    table = SurveyTable("s", frame, "base", (2031, 2031), "c3_km2_s2", 1, 1, "arcwindow x")
-    form = table_children(table)[0].children[1].children[0].children[-1].children
-    assert form.method == "post" and form.action.startswith(OPEN_PATH + "?results=s")
+    assert elsewhere.status_code == 403
+    assert not uploads.exists() or not list(uploads.glob("upload-*.toml"))
+    opened = client.post("/_dash-update-component", json=body)
+    assert opened.status_code == 200
+    assert len(list(uploads.glob("upload-*.toml"))) == 1
 
 
 # ---------------------------------------------------------------------------------------------
@@ -263,8 +249,9 @@ def test_grid_download_streams_a_verified_file_with_the_cli_header(local, tmp_pa
     http = app.server.test_client()
     waiting = http.get(f"/download/check/grid.csv{VIEW}")
     assert waiting.status_code == 409 and not waiting.get_json()["ok"]
-    assert client.open_page(VIEW) == [200, 200, 200]
-    search = client.values["location-page-url.search"]
+    client.open_page(VIEW)
+    assert client.settle(60.0) and set(client.statuses) == {200}
+    search = VIEW + "&metric=c3_km2_s2"  # the page's own address names the same grid
     ready = http.get(f"/download/check/grid.csv{search}")
     assert ready.status_code == 200 and ready.get_json() == {"ok": True, "message": ""}
     answer = http.get(f"/download/grid.csv{search}")
@@ -384,8 +371,8 @@ def test_names_from_a_case_show_as_text_in_figures():
     markup must show those characters, not a link."""
     from dataclasses import replace
 
+    from app.dashboard.display_data import arc_scene, map_data
     from app.dashboard.figures import arc_view_figure, window_map_figure
-    from app.dashboard.prepare import arc_scene, map_data
     from solver.window.case import parse_case
     from solver.window.case_bodies import CaseBodies
     from solver.window.cell import solve_cell

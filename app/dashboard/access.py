@@ -12,9 +12,9 @@ so it covers every route: the Dash pages and callbacks, the survey page, downloa
   the same address without the token, as notebook servers do. Without the token, a page asks
   for it (``POST /access``); anything else is 401. The token may also come in an
   ``X-Arcwindow-Token`` header (scripts, the benchmark).
-* **State changes** are POSTs (Dash callbacks, uploads, the survey page's "open"); a POST whose
-  ``Origin`` (or ``Referer``) names another site is refused with 403, token or not, so another
-  site's page cannot make a viewer's browser change anything, even on localhost.
+* **State changes** are POSTs (Dash callbacks: uploads, the shortlist, opening a survey target);
+  a POST whose ``Origin`` (or ``Referer``) names another site is refused with 403, token or not,
+  so another site's page cannot make a viewer's browser change anything, even on localhost.
 * **Headers** on every answer: ``X-Frame-Options: DENY`` and ``Content-Security-Policy:
   frame-ancestors 'none'`` (no other site may frame the page), ``X-Content-Type-Options:
   nosniff``, ``Referrer-Policy: same-origin`` (no address of this server, which may carry a view

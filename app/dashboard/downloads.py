@@ -19,6 +19,7 @@ from __future__ import annotations
 import threading
 from collections import OrderedDict
 from pathlib import Path
+from urllib.parse import parse_qs
 
 from dash import Dash, Input, Output
 from flask import jsonify, request, send_file
@@ -28,8 +29,8 @@ from solver.files.atomic import DamagedFile, sweep_temporaries, verify_checksum
 from solver.window.grid import WindowGrid
 from solver.window.provenance import window_cache_key
 
-from .exports import safe_name
-from .model import DashboardModel
+from .exports import view_stem
+from .window_service import WindowService
 
 DOWNLOAD_PATH = "/download/grid.<fmt>"
 CHECK_PATH = "/download/check/grid.<fmt>"
@@ -41,8 +42,8 @@ NOT_READY = "The grid of this view is still being solved; download it once the m
 class GridExports:
     """Exported grid tables of one server: one file per grid and format, written once."""
 
-    def __init__(self, model: DashboardModel, folder: Path) -> None:
-        self.model = model
+    def __init__(self, service: WindowService, folder: Path) -> None:
+        self.service = service
         self.folder = Path(folder)
         self._locks: OrderedDict[str, threading.Lock] = OrderedDict()
         self._guard = threading.Lock()
@@ -56,18 +57,22 @@ class GridExports:
             return lock
 
     def grid_for(self, search: str) -> tuple[WindowGrid | None, str]:
-        """(the view's solved grid or None, a file-name stem); InputError for a refused view."""
-        _view, case, notes = self.model.view_from_url(search)
+        """(the view's solved grid or None, the view's file-name stem); InputError for a refused
+        view."""
+        params = parse_qs(search.lstrip("?"))
+        if "survey" in params or "target" in params:  # opening a target stores a case: not here
+            raise InputError("link", search[:80], "a view of a case (?case=...), not a target")
+        view, case, notes = self.service.view_from_url(search)
         if notes:  # a download is of exactly what the link says, or nothing
             raise InputError("link", notes[0][:200], "a view of this server")
         key = window_cache_key(case)
-        grid = self.model.grids.memory_get(key)
-        cache = self.model.grids.cache
+        grid = self.service.grid(case)
+        cache = self.service.grids.cache
         if grid is None and cache is not None:
             hit = cache.get(key)
             if hit is not None:
                 grid = WindowGrid.from_arrays(case, hit.arrays, hit.metadata)
-        return grid, safe_name(case.title)
+        return grid, view_stem(case, view)
 
     def file_for(self, grid: WindowGrid, fmt: str) -> Path:
         """The grid's table in ``fmt``, written if no verified file holds it yet."""
@@ -97,9 +102,9 @@ class GridExports:
                 path.unlink(missing_ok=True)
 
 
-def register(app: Dash, model: DashboardModel) -> GridExports:
+def register(app: Dash, service: WindowService) -> GridExports:
     """Add the download routes to ``app``'s server and route the page's grid button to them."""
-    exports = GridExports(model, model.settings.cache_dir / "exports")
+    exports = GridExports(service, service.settings.cache_dir / "exports")
     server = app.server
 
     def prepared(fmt: str):
