@@ -213,7 +213,7 @@ def test_element_only_case_in_year_one_gets_a_message(tmp_path):
     )
     text = text.replace("[[bodies]]", ELEMENT_PLANET + "\n[[bodies]]", 1)
     text = text.replace('central_body = "earth"\nframe', 'central_body = "P0"\nframe')
-    for a, b in (("start = \"2031-03-01", "start = \"0001-03-01"),):  # the windows, not epochs
+    for a, b in (('start = "2031-03-01', 'start = "0001-03-01'),):  # the windows, not epochs
         text = text.replace(a, b)
     catalogue = CaseCatalogue(SAMPLES, tmp_path)
     # Refused by the case parser itself: element bodies have a date range of their own
