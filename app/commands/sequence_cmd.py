@@ -207,10 +207,11 @@ def run(args: argparse.Namespace) -> int:
 
         write_candidates(sequence_case, candidates, args.out)
     if args.oem and candidates:
+        from solver.files.atomic import write_bytes_atomic
         from solver.files.sequence_export import candidate_oem_text
 
-        with open(args.oem, "w", encoding="ascii", newline="\n") as handle:
-            handle.write(candidate_oem_text(sequence_case, candidates[0]))
+        text = candidate_oem_text(sequence_case, candidates[0])
+        write_bytes_atomic(args.oem, text.encode("ascii"), checksum=True)
 
     if args.json:
         from solver.files.sequence_export import candidate_json

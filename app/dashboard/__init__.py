@@ -7,14 +7,18 @@ the survey results, as pages of one Dash app.
   table of case settings; ``view_changes``: how a view changes (pure);
 * ``case_catalogue``: sample, uploaded and survey-opened cases by id; ``grid_jobs``: grids in
   memory and fair background jobs; ``best_arcs``: best arcs and their refinement;
-  ``shortlist``: the shared shortlist file; ``exports``: downloads; ``surveys``: results files;
+  ``shortlist``: the shared shortlist store (SQLite); ``exports``: downloads; ``surveys``:
+  results files;
 * ``map_loop``: the map's live loop (grid status, poll, what to draw; pure);
 * ``display_data``: solver results to display arrays; ``figures``: pure figure builders;
   ``theme``: colours and fonts;
 * ``window_service``: the above joined for the window page's callbacks;
 * ``pages``: ``window_page`` (``/``, layout in ``window_layout``) and ``survey_page``
   (``/survey``);
-* ``slowdown``: the test-only setting that slows grid jobs and refinement down.
+* ``slowdown``: the test-only setting that slows grid jobs and refinement down;
+* ``access``: the token, Host check, same-origin writes and security headers on every request;
+  ``budget``: the memory budget of one request; ``downloads``: grid tables streamed from files
+  through a route of their own.
 """
 
 from __future__ import annotations
@@ -25,6 +29,7 @@ import uuid
 import dash
 from dash import Dash, dcc, html
 
+from .access import AccessPolicy
 from .config import ASSETS_DIR, Settings
 from .window_service import WindowService
 
@@ -50,6 +55,7 @@ def create_app(
     cases_dir: str | os.PathLike | None = None,
     surveys_dir: str | os.PathLike | None = None,
     service: WindowService | None = None,
+    access: AccessPolicy | None = None,
 ) -> Dash:
     """Build the dashboard app.
 
@@ -61,12 +67,18 @@ def create_app(
         (see ``config``).
     service : WindowService, optional
         A ready service (tests pass one with a stand-in grid engine).
+    access : AccessPolicy, optional
+        Token and served host names (``arcwindow serve`` builds it from ``--host``); default:
+        a localhost server without a token. Host check, same-origin writes, the body limit and
+        the security headers apply either way.
 
     Returns
     -------
     dash.Dash
         Serve ``app.server`` (a Flask WSGI app) with a production WSGI server.
     """
+    from . import access as access_module
+    from . import downloads
     from .pages import survey_page, window_page
 
     if service is None:
@@ -83,6 +95,9 @@ def create_app(
         # compressed they cross a team's network a few times faster.
         compress=True,
     )
+    access_module.install(
+        app.server, access or AccessPolicy.for_address("127.0.0.1", 0, token=None)
+    )
     for page in (window_page, survey_page):
         dash.register_page(
             page.__name__,
@@ -94,5 +109,8 @@ def create_app(
     app.layout = _shell
     window_page.register_callbacks(app, service)
     survey_page.register_callbacks(app, service.shelf)
+    downloads.register(app, service)
     app.server.config["ARCWINDOW_SERVICE"] = service
+    # What the data folder could not use (a store kept aside, entries refused): `serve` prints it.
+    app.server.config["ARCWINDOW_STARTUP_NOTES"] = service.shortlist.problems()
     return app

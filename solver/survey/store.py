@@ -5,12 +5,14 @@ chunk key (a hash of the chunk's inputs and the engine version,
 :func:`solver.survey.scan.chunk_key`), so a rerun of the same survey finds the chunks already
 done and a changed base case, catalogue, setting or engine never reuses a stale one.
 
-* **Atomic**: a chunk is written to a uniquely named temporary file in the folder, flushed,
-  fsynced and renamed over its final name (``os.replace``). A run killed mid-write leaves at
-  worst a temporary file (swept when older than an hour), never a partial chunk.
-* **Verified on resume**: a chunk file counts as done only if it reads as Parquet, its metadata
-  holds the expected key, and its rows are exactly the chunk's targets in order; anything else
-  is computed again and replaced.
+* **Atomic**: a chunk is written through :func:`solver.files.atomic.atomic_output` (temporary
+  file in the folder, fsync, rename) with its SHA-256 beside it (``chunk-<key>.parquet.sha256``).
+  A run killed mid-write leaves at worst a temporary file (swept when older than an hour), never
+  a partial chunk.
+* **Verified on resume**: a chunk file counts as done only if every byte matches its SHA-256,
+  it reads as Parquet, its metadata holds the expected key, and its rows are exactly the chunk's
+  targets in order; anything else (a flipped bit anywhere in the file included) is computed
+  again and replaced.
 * **No duplicates**: the merge reads only the chunks of the current plan, each once, and keeps
   one row per (target, span) even if a file were to repeat one.
 
@@ -23,22 +25,19 @@ from __future__ import annotations
 
 import json
 import logging
-import os
-import secrets
-import time
 from pathlib import Path
 
 import pandas as pd
 
 from solver import ENGINE_VERSION
+from solver.files.atomic import STALE_TEMPORARY_AGE_S, atomic_output, verify_checksum
+from solver.files.atomic import sweep_temporaries as sweep_files
 from solver.survey.results import PROVENANCE_KEY, SURVEY_KEY, rank_results, span_frame
 from solver.survey.scan import SURVEY_FORMAT, Chunk, SurveyPlan
 
 logger = logging.getLogger(__name__)
 
 CHUNK_KEY = b"arcwindow.survey_chunk"
-STALE_TEMPORARY_AGE_S = 3600.0
-"""Temporary files untouched this long belong to writers that died; a run sweeps them."""
 
 
 def chunk_folder(out_path: str | Path) -> Path:
@@ -52,18 +51,11 @@ def chunk_path(folder: str | Path, chunk: Chunk) -> Path:
 
 
 def _atomic_write_table(table, path: Path) -> None:
+    """Write a Parquet table atomically with its SHA-256 file beside it."""
     import pyarrow.parquet as pq
 
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.{secrets.token_hex(4)}.tmp")
-    try:
-        with open(tmp, "wb") as handle:
-            pq.write_table(table, handle)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
+    with atomic_output(path, checksum=True) as handle:
+        pq.write_table(table, handle)
 
 
 def write_chunk(folder: str | Path, chunk: Chunk, rows: list[dict]) -> Path:
@@ -102,13 +94,17 @@ def read_chunk(
     if columns is not None and "target" not in columns:
         columns = ["target", *columns]
     try:
+        verify_checksum(path)  # every byte, before the Parquet reader sees any of them
         table = pq.read_table(path, columns=columns)
         record = json.loads((table.schema.metadata or {}).get(CHUNK_KEY, b"{}"))
         frame = table.to_pandas()
     except Exception as exc:  # a damaged or foreign file is recomputed, never trusted
         logger.debug("chunk file %s unreadable (%s): recomputing", path, exc)
         return None
-    if record.get("key") != chunk.key or tuple(frame.get("target", ())) != chunk.target_names:
+    if not isinstance(record, dict) or record.get("key") != chunk.key:
+        logger.debug("chunk file %s does not hold chunk %s: recomputing", path, chunk.key)
+        return None
+    if tuple(frame.get("target", ())) != chunk.target_names:
         logger.debug("chunk file %s does not hold chunk %s: recomputing", path, chunk.key)
         return None
     return frame
@@ -116,19 +112,9 @@ def read_chunk(
 
 def sweep_temporaries(folder: str | Path, max_age_s: float = STALE_TEMPORARY_AGE_S) -> int:
     """Remove temporary chunk files older than ``max_age_s``; returns how many."""
-    folder = Path(folder)
-    removed = 0
-    if not folder.is_dir():
-        return 0
-    now = time.time()
-    for path in folder.glob(".chunk-*.tmp"):
-        try:
-            if now - path.stat().st_mtime > max_age_s:
-                path.unlink()
-                removed += 1
-        except FileNotFoundError:
-            pass
-    return removed
+    return sweep_files(
+        folder, max_age_s=max_age_s, name_matches=lambda name: name.startswith("chunk-")
+    )
 
 
 def chunk_done(folder: str | Path, chunk: Chunk) -> bool:

@@ -47,6 +47,7 @@ __all__, __getattr__, __dir__ = lazy_api(
         "settings": ["SECTIONS", "SETTING", "SETTINGS", "Setting", "read_setting"],
         "best": ["best_grid_arc", "slot_arc", "slot_arc_at", "slots_of"],
         "grid": [
+            "BYTES_PER_CELL_ARC",
             "DEFAULT_MAX_CELL_ARCS",
             "ENV_MAX_CELL_ARCS",
             "TIE_BREAK",
@@ -55,6 +56,7 @@ __all__, __getattr__, __dir__ = lazy_api(
             "WindowGrid",
             "check_grid_size",
             "compute_window",
+            "estimated_grid_bytes",
             "grid_axes",
             "grid_dates",
             "max_cell_arcs",
