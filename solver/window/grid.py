@@ -30,7 +30,7 @@ from solver.window.metrics import METRICS, arc_metrics, ranking_values
 from solver.window.provenance import provenance, window_cache_key
 
 # 20 million cell-arcs are about 2.5 GB of arrays (BYTES_PER_CELL_ARC each); solving and writing
-# them peaks well within a third of a 24 GiB machine's memory (DEVELOPERS.md, "Budgets").
+# them peaks well within a third of a 24 GiB machine's memory (docs/engine.md, "Budgets").
 DEFAULT_MAX_CELL_ARCS = 20_000_000
 ENV_MAX_CELL_ARCS = "ARCWINDOW_MAX_CELL_ARCS"
 # Departure rows solved per chunk: small enough for smooth progress, large for vector speed.
