@@ -301,6 +301,41 @@ def test_grid_search_repeats_exactly_and_prunes_only_unjoinable_legs():
     assert float(smallest_dv_km_s(5.0, 6.0, venus.gm_km3_s2, rp_min)) > 0.0
 
 
+def test_grid_search_flies_a_resonant_leg_on_its_resonance_circle():
+    """The sample's 2:1 Earth-Earth leg on the grid: the flyby into it keeps |v∞| (the pitch
+    is the one of the arriving v∞), the clock angle steps; repeatable, within limits."""
+    sequence_case = _sample("harrow_jupiter_veega")
+    base = sequence_case.sequences[0]
+    legs = tuple(
+        dataclasses.replace(leg, tof_step_days=5.0 if leg.resonance else 20.0)
+        for leg in base.legs
+    )
+    spec = dataclasses.replace(base, legs=legs, events=())
+    case = dataclasses.replace(
+        sequence_case.case,
+        departure_start_jd_tdb=sequence_case.case.departure_start_jd_tdb + 200.0,
+        departure_end_jd_tdb=sequence_case.case.departure_start_jd_tdb + 240.0,
+    )
+    sc = dataclasses.replace(sequence_case, case=case, sequences=(spec,))
+    settings = GridSettings(top=2, beam=2000, departure_step_days=8.0, clock_step_deg=20.0)
+    first = grid_search(sc, spec, settings)
+    second = grid_search(sc, spec, settings)
+    assert [c.epochs_jd_tdb for c in first.candidates] == [
+        c.epochs_jd_tdb for c in second.candidates
+    ]
+    best = first.candidates[0]
+    assert best.within_limits, best.breaches
+    k = spec.resonant_legs[0]
+    assert best.legs[k].branch == "resonant"
+    # The Earth flyby that enters the resonant orbit needs no burn: same |v∞| in and out.
+    entering = best.encounters[k]
+    assert entering.vinf_out_km_s == pytest.approx(entering.vinf_in_km_s, rel=1e-9)
+    assert entering.dv_km_s < 1e-6
+    clock = best.legs[k].metrics["clock_deg"]
+    assert (clock + 180.0) / 20.0 == pytest.approx(round((clock + 180.0) / 20.0), abs=1e-9)
+    assert any(level.pruned_flyby > 0 for level in first.levels)
+
+
 def test_a_link_reopens_the_same_candidate_and_the_record_is_plain_data():
     import json
 
