@@ -103,6 +103,10 @@ def test_compiled_states_agree_with_the_ephemeris_interface():
         # Rounding of a different summation order only: 1e-6 km and 1e-12 km/s.
         assert np.max(np.abs(r - r0)) < 1e-6, name
         assert np.max(np.abs(v - v0)) < 1e-12, name
+    # Each planet's terms (its segment less the Sun's; the Earth's three) merged into one.
+    assert np.array_equal(np.diff(compiled.cheb_first), np.ones(len(names), dtype=np.int64))
+    unmerged = compile_states(names, "sun", registry, 2461990.0, 2466010.0, merge=False)
+    assert unmerged is not None and unmerged.cheb_first[-1] > len(names)
     outside = compiled.states(np.zeros(1, dtype=np.int64), np.array([2470000.0]))[0]
     assert np.isnan(outside).all()
     assert compile_states(names, "sun", registry, 2462000.0, 2463000.0, source="mean") is None
