@@ -25,8 +25,9 @@ scattered over the span, so every set read is a cache miss).
 
 The assembly follows :func:`~solver.ephemeris.states.states` body chain by body chain, so the two
 agree to rounding (tests/test_sequence_model.py: within 1e-6 km and 1e-12 km/s; measured 6e-7
-km and 1.4e-13 km/s with the merged terms). The mean-element source has no compiled form: :func:`compile_states` returns None and
-callers use :func:`~solver.ephemeris.states.states`. Epochs outside the cut span give NaN.
+km and 1.4e-13 km/s with the merged terms). The mean-element source has no compiled form:
+:func:`compile_states` returns None and callers use :func:`~solver.ephemeris.states.states`.
+Epochs outside the cut span give NaN.
 """
 
 from __future__ import annotations
