@@ -41,6 +41,27 @@ def test_lambert_baseline_solves_the_same_problem():
         assert np.linalg.norm(v2 - sol.v2_km_s[i, 0]) <= 1e-9 * np.linalg.norm(v2)
 
 
+def test_quick_launch_section_reports_both_goals():
+    lines = run_sections(["launch"], size="quick")
+    assert [line.unit for line in lines] == ["s", "ms"]
+    for line in lines:
+        assert line.value > 0 and line.baseline_value and line.ratio and line.goal
+
+
+def test_launch_window_baseline_finds_the_same_windows():
+    """The sampled baseline must find the windows the closed form finds, or its ratio means
+    nothing: the day's minutes agree to the sampling step."""
+    from app.bench.launch_bench import sampled_window_minutes
+    from solver.launch.daily_window import daily_launch_window
+    from solver.launch.site import LaunchSite
+
+    site = LaunchSite("s", 28.5, -80.6, 35.0, 55.0)
+    for dla, rla in ((40.0, 200.0), (10.0, 120.0), (-20.0, 300.0)):
+        ours = daily_launch_window(site, 2462870.5, dla, rla, 3.0, mu_km3_s2=398600.4)
+        sampled = sampled_window_minutes(site, 2462870.5, dla, rla)
+        assert abs(ours.total_minutes - sampled) <= 4.0 / 60.0  # a second per opening end
+
+
 def test_sequence_bench_baseline_scores_the_same_candidates():
     """The loop baseline of the sequence section evaluates the same numbers as the batched
     call (the exact path against the compiled one), or its ratio means nothing."""

@@ -174,11 +174,11 @@ def test_provenance_names_what_supplies_the_states():
 
 def test_dashboard_reads_the_decision_from_the_solver(tmp_path):
     from app.dashboard.config import Settings
-    from app.dashboard.model import DashboardModel
-    from app.dashboard.prepare import arc_details
+    from app.dashboard.display_data import arc_details
+    from app.dashboard.window_service import WindowService
     from app.samples import SAMPLE_DIR
 
-    model = DashboardModel(Settings.resolve(tmp_path / "c", tmp_path / "d", SAMPLE_DIR))
+    model = WindowService(Settings.resolve(tmp_path / "c", tmp_path / "d", SAMPLE_DIR))
     try:
         kestrel = load("kestrel_relay_leo")
         values = [o["value"] for o in model.metric_options(kestrel)]

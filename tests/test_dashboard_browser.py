@@ -11,48 +11,30 @@ cell or a view that drew another arc would fail.
 
 from __future__ import annotations
 
-import os
-import shutil
-import signal
-import socket
-import subprocess
-import sys
 import time
-import urllib.request
 from pathlib import Path
 
 import pytest
-
-ROOT = Path(__file__).resolve().parents[1]
-ARTIFACTS = ROOT / "test-artifacts" / "browser"
-CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
-CHROMIUM_ARGS = [
-    "--no-sandbox",
-    "--disable-gpu",
-    "--disable-background-networking",
-    "--disable-component-update",
-    "--disable-sync",
-    "--no-first-run",
-    "--disable-quic",
-]
-TIMEOUT_MS = 30_000
-VIEWPORT = {"width": 1600, "height": 1000}
+from browser_support import (
+    CHROMIUM,
+    CHROMIUM_ARGS,
+    GRAPH,
+    ROOT,
+    click_cell,
+    details_value,
+    expected_cell,
+    figure_title,
+    running_server,
+    tab_factory,
+    wait_details,
+    wait_views_drawn,
+)
 
 pytestmark = [
     pytest.mark.browser,
     pytest.mark.skipif(not Path(CHROMIUM).exists(), reason="Debian's chromium is not installed"),
 ]
 playwright_api = pytest.importorskip("playwright.sync_api")
-
-
-# ---------------------------------------------------------------------------------------------
-# Server and browser
-
-
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
 
 
 @pytest.fixture(scope="module")
@@ -64,54 +46,8 @@ def server_folder(tmp_path_factory):
 @pytest.fixture(scope="module")
 def server(server_folder):
     """`arcwindow serve` in a subprocess with its own cache and data folders."""
-    folder = server_folder
-    port = _free_port()
-    env = dict(os.environ, PYTHONUNBUFFERED="1")
-    log = open(folder / "server.log", "w")
-    proc = subprocess.Popen(
-        [
-            sys.executable,
-            "-m",
-            "app.cli",
-            "serve",
-            "--port",
-            str(port),
-            "--cache-dir",
-            str(folder / "cache"),
-            "--data-dir",
-            str(folder / "data"),
-            "--survey-dir",
-            str(folder / "surveys"),
-        ],
-        cwd=ROOT,
-        env=env,
-        stdout=log,
-        stderr=subprocess.STDOUT,
-    )
-    url = f"http://127.0.0.1:{port}/"
-    deadline = time.monotonic() + 60.0
-    while True:
-        try:
-            with urllib.request.urlopen(url, timeout=2) as response:
-                if response.status == 200:
-                    break
-        except OSError:
-            pass
-        if proc.poll() is not None or time.monotonic() > deadline:
-            log.close()
-            pytest.fail("server did not start:\n" + (folder / "server.log").read_text()[-3000:])
-        time.sleep(0.1)  # polling a socket for readiness, not waiting on the page
-    yield url
-    if os.environ.get("ARCWINDOW_KEEP_SERVER_LOG"):  # debugging aid: stacks of every thread
-        proc.send_signal(signal.SIGUSR1)
-        time.sleep(1.0)
-        shutil.copy(folder / "server.log", os.environ["ARCWINDOW_KEEP_SERVER_LOG"])
-    proc.terminate()
-    try:
-        proc.wait(timeout=10)
-    except subprocess.TimeoutExpired:
-        proc.kill()
-    log.close()
+    with running_server(server_folder) as url:
+        yield url
 
 
 @pytest.fixture(scope="module")
@@ -122,126 +58,9 @@ def browser():
         b.close()
 
 
-class Tab:
-    """One page with its console errors collected."""
-
-    def __init__(self, browser, name: str):
-        self.context = browser.new_context(viewport=VIEWPORT)
-        self.context.grant_permissions(["clipboard-read", "clipboard-write"])
-        self.page = self.context.new_page()
-        self.page.set_default_timeout(TIMEOUT_MS)
-        self.errors: list[str] = []
-        self.name = name
-        self.page.on("console", lambda m: self.errors.append(m.text) if m.type == "error" else None)
-        self.page.on("pageerror", lambda e: self.errors.append(str(e)))
-
-    def shot(self, step: str) -> None:
-        ARTIFACTS.mkdir(parents=True, exist_ok=True)
-        self.page.screenshot(path=str(ARTIFACTS / f"{self.name}_{step}.png"), full_page=True)
-
-    def close(self) -> None:
-        self.context.close()
-
-
 @pytest.fixture
 def tabs(browser, request):
-    opened: list[Tab] = []
-
-    def open_tab(suffix: str = "") -> Tab:
-        tab = Tab(browser, request.node.name.split("_")[1] + suffix)
-        opened.append(tab)
-        return tab
-
-    yield open_tab
-    report = getattr(request.node, "rep_call", None)
-    if report is not None and report.failed:
-        for t in opened:
-            t.shot("failed")
-    errors = [(t.name, e) for t in opened for e in t.errors]
-    for t in opened:
-        t.close()
-    assert not errors, f"browser console errors: {errors}"
-
-
-# ---------------------------------------------------------------------------------------------
-# Page helpers (conditions the tests wait for)
-
-GRAPH = "document.querySelector('#{0} .js-plotly-plot')"
-
-
-def wait_views_drawn(page) -> None:
-    """Wait until the full window map, the arc view and the family chart are drawn."""
-    page.wait_for_function(
-        "() => { const m = " + GRAPH.format("graph-window-map") + ";"
-        " const a = " + GRAPH.format("graph-arc-view") + ";"
-        " const f = " + GRAPH.format("graph-family-chart") + ";"
-        " return m && m.data && m.data.length > 0 && m.data[0].type === 'heatmap'"
-        " && m.data[0].customdata"
-        " && a && a.data && a.data.some(t => t.name === 'transfer arc')"
-        " && f && f.data && f.data.some(t => t.name === 'selected arc')"
-        " && !document.querySelector('#graph-window-map')"
-        "      .closest('[data-dash-is-loading=\"true\"]'); }"
-    )
-
-
-def details_value(page, label: str) -> str:
-    row = page.locator("#div-details-arc tr", has=page.locator(f"th:text-is('{label}')")).first
-    return row.locator("td").first.inner_text()
-
-
-def wait_details(page, departure: str, arrival: str) -> None:
-    """Wait until the details panel shows this cell's dates ("YYYY-MM-DD HH:MM:SS")."""
-    page.wait_for_function(
-        "([d, a]) => { const t = document.querySelector('#div-details-arc');"
-        " return t && t.innerText.includes(d) && t.innerText.includes(a); }",
-        arg=[departure, arrival],
-    )
-
-
-def click_cell(page, departure_utc: str, arrival_utc: str) -> None:
-    """Zoom the window map to a few days around a cell (as a user would with the zoom box),
-    then click the cell's centre."""
-    page.evaluate(
-        "([d, a]) => { const gd = " + GRAPH.format("graph-window-map") + ";"
-        " const day = 86400000, x = Date.parse(d), y = Date.parse(a);"
-        " return Plotly.relayout(gd, {'xaxis.range': [x - 6 * day, x + 6 * day],"
-        " 'yaxis.range': [y - 6 * day, y + 6 * day]}); }",
-        [departure_utc, arrival_utc],
-    )
-    point = page.evaluate(
-        "([d, a]) => { const gd = " + GRAPH.format("graph-window-map") + ";"
-        " const fl = gd._fullLayout; const r = gd.getBoundingClientRect();"
-        " const x = fl.xaxis._offset + fl.xaxis.l2p(Date.parse(d));"
-        " const y = fl.yaxis._offset + fl.yaxis.l2p(Date.parse(a));"
-        " return [r.left + x, r.top + y]; }",
-        [departure_utc, arrival_utc],
-    )
-    page.mouse.click(point[0], point[1])
-
-
-def figure_title(page, graph_id: str) -> str:
-    return page.evaluate(
-        "(id) => { const gd = document.querySelector('#' + id + ' .js-plotly-plot');"
-        " const t = gd.layout.title; return (t && (t.text || t)) || ''; }",
-        graph_id,
-    )
-
-
-def expected_cell(departure: str, arrival: str):
-    """The engine's own numbers for the default case's cell at these dates."""
-    from solver.ephemeris.timescales import utc_to_jd_tdb
-    from solver.mechanics.families import geometry
-    from solver.window.case import load_case
-    from solver.window.case_bodies import CaseBodies
-    from solver.window.cell import select_arc, solve_cell
-
-    case = load_case(ROOT / "sample_cases" / "tallis_rendezvous.toml")
-    bodies = CaseBodies.of(case)
-    dep = float(utc_to_jd_tdb(departure))
-    arr = float(utc_to_jd_tdb(arrival))
-    arc = select_arc(solve_cell(case, dep, arr, bodies), 0, "single")
-    lam = float(geometry(arc.r1_km, arc.r2_km, bodies.pole_icrf).lam)
-    return arc, lam
+    yield from tab_factory(browser, request)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -323,8 +142,8 @@ def test_bw04_copied_link_shows_the_same_arc_in_another_context(server, tabs):
     click_cell(page, *CELL)
     wait_details(page, f"{CELL[0]} 00:00:00", f"{CELL[1]} 00:00:00")
     page.bring_to_front()  # the clipboard needs the focused window, as for a user
-    page.locator("#clipboard-view-link").click()
-    page.locator("#clipboard-view-link").get_by_text("Link copied").wait_for()
+    page.locator("#button-copy-link").click()
+    page.locator("#button-copy-link").get_by_text("Link copied").wait_for()
     link = page.evaluate("() => navigator.clipboard.readText()")
     assert link == page.url
     first.shot("source")
@@ -376,11 +195,11 @@ def test_bw06_bad_upload_and_bad_limit_show_messages_and_page_keeps_working(serv
     message.get_by_text("was not loaded").wait_for()
     assert "broken_case.toml" in message.inner_text()
     tab.shot("bad_upload")
-    page.fill("#input-limit-c3", "-5")
-    page.press("#input-limit-c3", "Enter")
-    view_message = page.locator("#div-message-view")
-    view_message.get_by_text("limits.c3_max_km2_s2").wait_for()
-    assert "0 to 10000" in view_message.inner_text()
+    page.fill("#input-c3max", "-5")
+    page.press("#input-c3max", "Enter")
+    field = page.locator("[data-setting='limits.c3_max_km2_s2']")
+    field.get_by_text("limits.c3_max_km2_s2").wait_for()
+    assert "0 to 10000" in field.inner_text()
     tab.shot("bad_limit")
     # The page still works: a new metric redraws the map.
     page.locator("#dropdown-metric").click()
@@ -404,9 +223,8 @@ def test_bw07_valid_upload_becomes_the_shown_case(server, tabs, tmp_path):
     page.locator("#text-case-title").get_by_text("Uploaded Vesper variant").wait_for()
     page.wait_for_function("() => window.location.search.includes('case=upload-')")
     page.wait_for_function(
-        "() => "
-        + GRAPH.format("graph-arc-view")
-        + ".layout.title.text.startsWith('Earth to Venus')"
+        "() => { const t = " + GRAPH.format("graph-arc-view") + ".layout.title;"
+        " return String((t && t.text) || '').startsWith('Earth to Venus'); }"
     )
     tab.shot("uploaded")
 
@@ -441,9 +259,46 @@ def test_bw08_survey_page_lists_targets_and_opens_one(server, server_folder, tab
         arg=departure,
     )
     tab.shot("opened")
-    # an unknown target comes back to the survey page with a clear message
+    # an unknown target (here through a link of earlier versions) says so on the window page
     page.goto(server + "survey-open?results=bw08&target=nobody")
     page.wait_for_function(
-        "() => (document.querySelector('#div-survey-message') || {}).innerText?.includes('target')"
+        "() => (document.querySelector('#div-message-view') || {}).innerText?.includes('target')"
     )
     tab.shot("unknown_target")
+
+
+def test_bw09_downloads_are_named_after_the_view_and_carry_the_caution(server, tabs):
+    """Figure downloads are named after the case and the view; the PNG carries the caution
+    (printed under the figure by the page) and the grid CSV the command line's provenance."""
+    tab = tabs()
+    page = tab.page
+    page.goto(server + "?case=tallis_rendezvous&sel=2036-03-01T00:00:00Z~2036-09-01T00:00:00Z")
+    wait_views_drawn(page)
+    # Record what the page asks plotly to draw into the image.
+    page.evaluate(
+        "() => { const draw = Plotly.toImage; Plotly.toImage = (fig, opts) => {"
+        " window.imageTexts = (fig.layout.annotations || []).map(a => String(a.text));"
+        " return draw(fig, opts); }; }"
+    )
+    with page.expect_download() as info:
+        page.click("#button-png-map")
+    download = info.value
+    texts = page.evaluate("() => window.imageTexts")
+    assert any("high-fidelity" in t and "Caution" in t for t in texts), texts
+    assert download.suggested_filename == (
+        "Tallis_rendezvous_2036_opportunity_c3_N0_2036-03-01_2036-09-01_window_map.png"
+    )
+    png = Path(download.path()).read_bytes()
+    assert png.startswith(b"\x89PNG") and len(png) > 10_000
+    caution = page.evaluate(
+        "() => { const gd = " + GRAPH.format("graph-window-map") + ";"
+        " return gd.layout.annotations.some(a => String(a.text).includes('high-fidelity'));"
+        " }"
+    )
+    assert caution is False  # the caution is added to the image only, not to the live map
+    with page.expect_download() as info:
+        page.click("#button-download-grid-csv")
+    text = Path(info.value.path()).read_text()
+    assert info.value.suggested_filename.endswith("_2036-03-01_2036-09-01_grid.csv")
+    assert text.startswith("# case_title: Tallis rendezvous") and "# caution: " in text
+    tab.shot("downloaded")

@@ -18,12 +18,13 @@ import pytest
 from dash import Patch
 
 from app.dashboard import figures, theme
-from app.dashboard.prepare import (
+from app.dashboard.display_data import (
     HOVER_FIELDS,
     MapPoint,
     arc_details,
     arc_scene,
     display_indices,
+    display_ms,
     family_data,
     jd_tdb_to_unix_ms,
     map_data,
@@ -131,8 +132,9 @@ def test_map_data_decimates_large_grids_to_grid_nodes(tallis):
     _, grid = tallis
     data = map_data(grid, "dla_deg", "0", max_points=100, contour_points=50)
     assert data.values.shape == (100, 100) and data.lines.values.shape == (50, 50)
-    # Every drawn column is a grid node, and DLA is shown by magnitude.
-    nodes = jd_tdb_to_unix_ms(grid.departure_jd_tdb)
+    # Every drawn column is a grid node (to the second it is drawn at), and DLA is shown by
+    # magnitude.
+    nodes = display_ms(grid.departure_jd_tdb)
     assert np.isin(data.departure_ms, nodes).all()
     assert np.nanmin(data.values) >= 0 and data.metric_label == "|DLA|"
 
@@ -146,6 +148,28 @@ def test_date_axis_agrees_with_astropy_utc():
     ours = jd_tdb_to_unix_ms(jd)
     theirs = Time(jd, format="jd", scale="tdb").utc.unix * 1000.0
     np.testing.assert_allclose(ours, theirs, atol=1.0)
+
+
+@pytest.mark.filterwarnings("ignore:ERFA function")  # astropy flags future UTC as "dubious"
+def test_cells_are_drawn_at_their_own_utc_second(tallis):
+    """Grid dates on whole UTC days are drawn exactly on those midnights: a node a few ms before
+    midnight (TDB steps; the periodic TDB-TT term, up to ~1.7 ms) once read as 23:59 of the day
+    before in the hover. Checked against astropy.time (TDB -> UTC) to the second."""
+    from astropy.time import Time
+
+    from solver.ephemeris.timescales import utc_to_jd_tdb
+
+    _, grid = tallis
+    # The engine's own axes (counted in UTC), and an axis stepped evenly in TDB from a UTC
+    # midnight (as refinement's and older grids' dates are), whose nodes drift by the periodic
+    # TDB-TT term: both are drawn on their UTC midnights.
+    tdb_even = float(utc_to_jd_tdb("2036-01-01")) + np.arange(366.0)
+    assert np.any(jd_tdb_to_unix_ms(tdb_even) % 86_400_000.0 != 0.0)  # the drift is real
+    for axis in (grid.departure_jd_tdb, grid.arrival_jd_tdb, tdb_even):
+        drawn = display_ms(axis)
+        assert np.all(drawn % 86_400_000.0 == 0.0)  # every node on a UTC midnight
+        theirs = Time(axis, format="jd", scale="tdb").utc.unix * 1000.0
+        np.testing.assert_allclose(drawn, theirs, atol=500.0)
 
 
 def test_window_map_figure_draws_every_reading_aid(tallis):
@@ -281,7 +305,7 @@ def test_family_chart_marks_the_selected_arc_on_its_own_curve(kestrel):
     if data.lam >= 0:
         way = (Family.ELLIPSE_SHORT_BEFORE, Family.ELLIPSE_SHORT_AFTER, Family.HYPERBOLA_SHORT)
     assert all(f.label in hover_names for f in way)  # the glossary's words on hover
-    assert fig.layout.annotations[0].text == data.selected.label
+    assert fig.layout.annotations[0].text.replace("<br>", " ") == data.selected.label
 
 
 def test_details_carry_every_metric_with_units(tallis):
@@ -327,3 +351,16 @@ def test_large_responses_are_compressed(tmp_path):
     packed = client.get("/_dash-layout", headers={"Accept-Encoding": "gzip"})
     assert packed.headers.get("Content-Encoding") == "gzip"
     assert len(packed.data) < len(plain.data) / 3
+
+
+def test_an_arc_the_grid_does_not_hold_is_never_drawn_from_another_slot(tallis):
+    """A grid of single-revolution arcs has no "N = 2, high branch" slot: the map refuses to draw
+    it (it once fell back to slot 0 and showed the N = 0 map under the N = 2 label)."""
+    from app.dashboard.display_data import any_arc_shown, shown_slot
+    from solver.errors import InputError
+
+    _, grid = tallis
+    assert shown_slot(grid, "0") == 0 and shown_slot(grid, "best") is None
+    assert shown_slot(grid, "2H") == -1 and not any_arc_shown(grid, "2H")
+    with pytest.raises(InputError, match="arcs = '2H'"):
+        map_data(grid, "c3_km2_s2", "2H")

@@ -5,9 +5,9 @@ from __future__ import annotations
 import pytest
 from small_survey import write_small_survey
 
-from app.dashboard.cases import CaseCatalogue
-from app.dashboard.state import from_query
+from app.dashboard.case_catalogue import CaseCatalogue
 from app.dashboard.surveys import SurveyShelf
+from app.dashboard.view_state import from_query
 from app.samples import SAMPLE_DIR
 from solver.ephemeris.timescales import utc_to_jd_tdb
 from solver.errors import InputError
@@ -56,3 +56,23 @@ def test_bad_results_names_are_refused(shelf, name):
 def test_unknown_target_is_refused(shelf):
     with pytest.raises(InputError, match="target"):
         shelf.open_target("small", "nobody")
+
+
+def test_a_damaged_results_file_is_reported_on_the_page_not_a_server_error(tmp_path):
+    from app.bench.dashboard_bench import DashClient, _test_client_transport
+    from app.dashboard import create_app
+
+    surveys = tmp_path / "surveys"
+    surveys.mkdir()
+    (surveys / "broken.parquet").write_bytes(b"PAR1 this is not a parquet file")
+    app = create_app(cache_dir=tmp_path / "c", data_dir=tmp_path / "d", surveys_dir=surveys)
+    deps = app.server.test_client().get("/_dash-dependencies").get_json()
+    client = DashClient(_test_client_transport(app), deps)
+    client.values["store-survey-query.data"] = "?results=broken"
+    status, _ = client.call("dropdown-survey-file.options", ["store-survey-query.data"])
+    assert status == 200
+    assert "could not be read" in client.values["div-survey-message.children"]
+    client.values["store-page-query.data"] = "?survey=broken&target=x"
+    assert client.sync("store-page-query.data") == 200
+    assert "could not be read" in str(client.values["div-message-view.children"])
+    app.server.config["ARCWINDOW_SERVICE"].shutdown()

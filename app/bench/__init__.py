@@ -21,6 +21,7 @@ SECTIONS: dict[str, str] = {
     "ephemeris": "app.bench.ephemeris_bench",
     "cache": "app.bench.cache_bench",
     "grid": "app.bench.grid_bench",
+    "launch": "app.bench.launch_bench",
     "dashboard": "app.bench.dashboard_bench",
 }
 # Sections run only when asked for (``--section NAME`` or their own flag, e.g. ``--survey``).

@@ -1,26 +1,46 @@
-"""The arcwindow dashboard: window map, arc view, family chart, details and a shared shortlist.
+"""The arcwindow dashboard: window map, arc view, family chart, details, a shared shortlist and
+the survey results, as pages of one Dash app.
 
-``create_app()`` builds the Dash app; ``arcwindow serve`` runs it on waitress. Modules:
+``create_app()`` builds the app; ``arcwindow serve`` runs it on waitress. Modules:
 
-* ``state``: the view state and its URL query;
-* ``cases``: sample and uploaded cases; ``jobs``: grids in memory and background jobs;
-  ``shortlist``: the shared shortlist file; ``exports``: downloads;
-* ``prepare``: solver results to display arrays; ``figures``: pure figure builders;
+* ``view_state``: a tab's view and its URL query; ``controls``: the case controls, made from the
+  table of case settings; ``view_changes``: how a view changes (pure);
+* ``case_catalogue``: sample, uploaded and survey-opened cases by id; ``grid_jobs``: grids in
+  memory and fair background jobs; ``best_arcs``: best arcs and their refinement;
+  ``shortlist``: the shared shortlist file; ``exports``: downloads; ``surveys``: results files;
+* ``map_loop``: the map's live loop (grid status, poll, what to draw; pure);
+* ``display_data``: solver results to display arrays; ``figures``: pure figure builders;
   ``theme``: colours and fonts;
-* ``model``: the above put together for the callbacks; ``layout``; ``callbacks``;
-* ``surveys`` and ``survey_page``: the survey page at ``/survey/``.
+* ``window_service``: the above joined for the window page's callbacks;
+* ``pages``: ``window_page`` (``/``, layout in ``window_layout``) and ``survey_page``
+  (``/survey``);
+* ``slowdown``: the test-only setting that slows grid jobs and refinement down.
 """
 
 from __future__ import annotations
 
 import os
+import uuid
 
-from dash import Dash
+import dash
+from dash import Dash, dcc, html
 
 from .config import ASSETS_DIR, Settings
-from .model import DashboardModel
+from .window_service import WindowService
 
-__all__ = ["DashboardModel", "Settings", "create_app"]
+__all__ = ["Settings", "WindowService", "create_app"]
+
+
+def _shell() -> html.Div:
+    """What every page shares: the viewer's id (one per tab load, so a viewer can cancel only
+    its own wait for a grid), the viewer's own case list (browser storage) and the page."""
+    return html.Div(
+        [
+            dcc.Store(id="store-viewer-id", data=uuid.uuid4().hex),
+            dcc.Store(id="store-my-cases", storage_type="local"),
+            dash.page_container,
+        ]
+    )
 
 
 def create_app(
@@ -29,7 +49,7 @@ def create_app(
     data_dir: str | os.PathLike | None = None,
     cases_dir: str | os.PathLike | None = None,
     surveys_dir: str | os.PathLike | None = None,
-    model: DashboardModel | None = None,
+    service: WindowService | None = None,
 ) -> Dash:
     """Build the dashboard app.
 
@@ -39,34 +59,40 @@ def create_app(
         Grid cache folder, data folder (shortlist and uploaded cases), sample-case folder and
         survey results folder; each falls back to its environment variable, then its default
         (see ``config``).
-    model : DashboardModel, optional
-        A ready model (tests pass one with a stand-in grid engine).
+    service : WindowService, optional
+        A ready service (tests pass one with a stand-in grid engine).
 
     Returns
     -------
     dash.Dash
         Serve ``app.server`` (a Flask WSGI app) with a production WSGI server.
     """
-    from . import callbacks, layout
-    from .survey_page import create_survey_app
-    from .surveys import SurveyShelf
+    from .pages import survey_page, window_page
 
-    if model is None:
-        model = DashboardModel(Settings.resolve(cache_dir, data_dir, cases_dir, surveys_dir))
+    if service is None:
+        service = WindowService(Settings.resolve(cache_dir, data_dir, cases_dir, surveys_dir))
     app = Dash(
         __name__,
         title="arcwindow",
         update_title=None,
         assets_folder=str(ASSETS_DIR),
         serve_locally=True,
+        use_pages=True,
+        pages_folder="",
         # Maps carry every number of every cell for the hover (several MB as base64 floats);
-        # compressed they cross a team's network a few times faster. Applies to the whole
-        # server, the survey page included.
+        # compressed they cross a team's network a few times faster.
         compress=True,
     )
-    app.layout = layout.page()
-    callbacks.register(app, model)
-    app.server.config["ARCWINDOW_MODEL"] = model
-    # The survey page: a second Dash app at /survey/ on the same server.
-    create_survey_app(app.server, SurveyShelf(model.settings.surveys_dir, model.catalogue))
+    for page in (window_page, survey_page):
+        dash.register_page(
+            page.__name__,
+            path=page.PATH,
+            name=page.NAME,
+            title=page.TITLE,
+            layout=page.page_layout,
+        )
+    app.layout = _shell
+    window_page.register_callbacks(app, service)
+    survey_page.register_callbacks(app, service.shelf)
+    app.server.config["ARCWINDOW_SERVICE"] = service
     return app

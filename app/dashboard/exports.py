@@ -1,23 +1,31 @@
-"""Downloads: the grid as CSV, the selected arc as CCSDS OEM and JSON, figures as HTML.
+"""Downloads: the grid as CSV, the selected arc as CCSDS OEM and JSON, figures as HTML, and the
+names of every downloaded file.
 
-The grid and arc formats are ``solver.files.export``'s own; this module only names the files and
-turns results into text. Figures also download as PNG in the browser (the graph's camera
-button and the page's PNG buttons); the HTML version inlines plotly.js so it opens offline.
+The grid and arc formats are ``solver.files.export``'s own: the grid CSV is written by
+``write_grid`` exactly as ``arcwindow grid --out FILE.csv`` writes it, provenance header
+included. Figures also download as PNG in the browser (the page's PNG buttons, which print the
+caution on the image); the HTML version inlines plotly.js so it opens offline, and carries the
+caution under the figure. File names say which case and which view they come from.
 """
 
 from __future__ import annotations
 
 import json
 import re
+import tempfile
+from pathlib import Path
 
 import plotly.graph_objects as go
 
 from solver.caution import CAUTION
 from solver.files.export import arc_json as _arc_json
-from solver.files.export import arc_oem_text, grid_to_frame
+from solver.files.export import arc_oem_text, write_grid
 from solver.window.case import Case
 from solver.window.cell import Arc
 from solver.window.grid import WindowGrid
+
+from .theme import NO_CLOUD_CONFIG
+from .view_state import ViewState
 
 
 def safe_name(text: str) -> str:
@@ -25,9 +33,27 @@ def safe_name(text: str) -> str:
     return re.sub(r"[^A-Za-z0-9_.-]+", "_", text).strip("_")[:80] or "arcwindow"
 
 
-def grid_csv(grid: WindowGrid) -> str:
-    """Every arc of the grid, one row per cell and arc (``solver.files.export`` columns)."""
-    return grid_to_frame(grid).to_csv(index=False)
+_ARCS_NAME = {"best": "best", "0": "N0"}
+
+
+def view_stem(case: Case, view: ViewState) -> str:
+    """The stem every download of a view starts with: the case title, the metric, the arcs
+    shown and, when a cell is selected, its dates
+    (``Tallis_rendezvous_c3_N0_2036-03-01_2036-09-01``)."""
+    parts = [safe_name(case.title), view.metric.split("_")[0]]
+    parts.append(_ARCS_NAME.get(view.arcs, f"N{view.arcs}"))
+    if view.selected:
+        parts += [view.selected[0][:10], view.selected[1][:10]]
+    return safe_name("_".join(parts))
+
+
+def grid_csv_bytes(grid: WindowGrid) -> bytes:
+    """Every arc of the grid, one row per cell and arc, with the provenance header of
+    ``arcwindow grid --out FILE.csv`` (written by the same function)."""
+    with tempfile.TemporaryDirectory(prefix="arcwindow-csv-") as folder:
+        path = Path(folder) / "grid.csv"
+        write_grid(grid, path)
+        return path.read_bytes()
 
 
 def arc_oem(case: Case, arc: Arc) -> str:
@@ -41,7 +67,11 @@ def arc_json(case: Case, arc: Arc) -> str:
 
 
 def figure_html(fig: go.Figure) -> str:
-    """A standalone HTML page of a figure, with the caution under it; opens offline."""
-    page = fig.to_html(include_plotlyjs=True, full_html=True)
+    """A standalone HTML page of a figure, with the caution under it; opens offline and offers
+    nothing that sends the chart off the machine."""
+    page = fig.to_html(include_plotlyjs=True, full_html=True, config=dict(NO_CLOUD_CONFIG))
     note = f'<p style="font-family:sans-serif;font-size:12px;color:#6b4e00">{CAUTION}</p>'
     return page.replace("</body>", note + "</body>", 1)
+
+
+__all__ = ["arc_json", "arc_oem", "figure_html", "grid_csv_bytes", "safe_name", "view_stem"]

@@ -18,8 +18,10 @@ import numpy as np
 import plotly.graph_objects as go
 from numpy.typing import NDArray
 
+from solver.time_units import MS_PER_DAY
+
 from . import theme
-from .prepare import ArcScene, FamilyData, MapData, MapPoint, display_name
+from .display_data import ArcScene, FamilyData, MapData, MapPoint, display_name
 
 MAP_TRACE = {
     "values": 0,
@@ -31,6 +33,7 @@ MAP_TRACE = {
     "best_key": 6,
     "selected_key": 7,
     "outside_key": 8,
+    "no_arc": 9,
 }
 """Index of each window-map trace (kept stable for partial updates)."""
 
@@ -80,7 +83,7 @@ def tof_lines(
     departure_ms: NDArray, arrival_ms: NDArray, tof_min: float, tof_max: float
 ) -> tuple[list[float | None], list[float | None], list[float], list[float], list[str]]:
     """Lines of constant TOF across the map: line x/y (None-separated) and label x/y/text."""
-    day_ms = 86_400_000.0
+    day_ms = MS_PER_DAY
     x0, x1 = float(departure_ms[0]), float(departure_ms[-1])
     y0, y1 = float(arrival_ms[0]), float(arrival_ms[-1])
     lo, hi = max(tof_min, 0.0), tof_max
@@ -197,10 +200,29 @@ def _metric_traces(data: MapData) -> tuple[go.Heatmap, go.Contour]:
     return heat, contours
 
 
-def marker_layout(best: MapPoint | None, selected: MapPoint | None, unit: str) -> dict:
-    """Layout ``annotations`` (the best arc's star) and ``shapes`` (a ring on the selected cell)
-    that mark the map; sizes are in pixels so they read the same at any zoom."""
+def marker_layout(
+    best: MapPoint | None, selected: MapPoint | None, unit: str, note: str = ""
+) -> dict:
+    """Layout ``annotations`` (the best arc's star, and a note when there is none) and
+    ``shapes`` (a ring on the selected cell) that mark the map; sizes are in pixels so they read
+    the same at any zoom."""
     annotations = []
+    if note:
+        annotations.append(
+            {
+                "x": 0.5,
+                "y": 1.0,
+                "xref": "paper",
+                "yref": "paper",
+                "yanchor": "top",
+                "text": note,
+                "showarrow": False,
+                "font": {"size": 12, "color": theme.ERROR_INK},
+                "bgcolor": "rgba(255,255,255,0.9)",
+                "bordercolor": theme.RULE,
+                "name": "note",
+            }
+        )
     shapes = []
     if best is not None:
         value = f"{best.value:.4g} {unit}".strip() if math.isfinite(best.value) else ""
@@ -242,7 +264,7 @@ def marker_layout(best: MapPoint | None, selected: MapPoint | None, unit: str) -
 def _date_ticks(ms: NDArray) -> dict:
     """One-line tick labels for windows of hours (plotly's default puts the date on a second
     line, which collides with the axis title)."""
-    span_days = (float(ms[-1]) - float(ms[0])) / 86_400_000.0
+    span_days = (float(ms[-1]) - float(ms[0])) / MS_PER_DAY
     return {"tickformat": "%d %b %H:%M"} if span_days < 3.0 else {}
 
 
@@ -311,6 +333,20 @@ def window_map_figure(data: MapData) -> go.Figure:
         showlegend=False,
         name="TOF labels",
     )
+    # Cells with no arc: invisible, but they answer a click (the details then say why).
+    no_arc = go.Heatmap(
+        x=data.heat.departure_ms,
+        y=data.heat.arrival_ms,
+        z=np.where(data.no_arc, np.float32(1.0), np.float32(np.nan)),
+        zmin=0.0,
+        zmax=1.0,
+        colorscale=[[0.0, "rgba(0,0,0,0)"], [1.0, "rgba(0,0,0,0)"]],
+        showscale=False,
+        hovertemplate="%{x|%Y-%m-%d %H:%M} → %{y|%Y-%m-%d %H:%M} UTC<br>no arc here: click to "
+        "see why<extra></extra>",
+        hoverongaps=False,
+        name="no arc",
+    )
     keys = [
         _key_trace("best arc", {"symbol": "star", "size": 14, "color": theme.BEST_MARKER["color"]}),
         _key_trace(
@@ -330,7 +366,7 @@ def window_map_figure(data: MapData) -> go.Figure:
     )
     # The layout goes to the constructor: update_layout() costs ~20x more per figure.
     return go.Figure(
-        data=[heat, outside, contours, boundary, tof, tof_text, *keys],
+        data=[heat, outside, contours, boundary, tof, tof_text, *keys, no_arc],
         layout=theme.base_layout(
             title={"text": _title(data), "x": 0.01, "font": {"size": theme.TITLE_SIZE}},
             # The legend sits under the axis title: wrapped onto two lines on a narrow screen
@@ -362,7 +398,7 @@ def window_map_figure(data: MapData) -> go.Figure:
             ),
             clickmode="event",
             dragmode="zoom",
-            **marker_layout(data.best, data.selected, data.unit),
+            **marker_layout(data.best, data.selected, data.unit, data.note),
         ),
     )
 
@@ -408,12 +444,12 @@ def map_metric_patch(patch, data: MapData):
         patch["data"][k]["hovertemplate"] = heat.hovertemplate
     patch["data"][MAP_TRACE["contours"]]["contours"] = contours.contours.to_plotly_json()
     patch["layout"]["title"]["text"] = _title(data)
-    return set_markers(patch, data.best, data.selected, data.unit)
+    return set_markers(patch, data.best, data.selected, data.unit, data.note)
 
 
-def set_markers(patch, best: MapPoint | None, selected: MapPoint | None, unit: str):
+def set_markers(patch, best: MapPoint | None, selected: MapPoint | None, unit: str, note: str = ""):
     """Move the best-arc and selected-cell markers of a window-map ``Patch`` (layout only)."""
-    layout = marker_layout(best, selected, unit)
+    layout = marker_layout(best, selected, unit, note)
     patch["layout"]["annotations"] = layout["annotations"]
     patch["layout"]["shapes"] = layout["shapes"]
     return patch
@@ -707,7 +743,7 @@ def family_chart_figure(data: FamilyData) -> go.Figure:
             {
                 "x": p.tau,
                 "y": p.epsilon,
-                "text": p.label,
+                "text": p.label.replace(", ", ",<br>"),  # two short lines fit a narrow chart
                 "showarrow": True,
                 "arrowhead": 0,
                 "ax": -40 if p.tau > 0.55 * _tau_span(data) else 40,

@@ -12,14 +12,16 @@ import re
 import threading
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 from urllib.parse import quote
-
-import pandas as pd
 
 from solver.errors import InputError
 
-from .cases import CaseCatalogue
-from .state import MAP_METRICS
+from .case_catalogue import CaseCatalogue
+from .view_state import MAP_METRICS
+
+if TYPE_CHECKING:  # pandas is imported when a results file is first read (a faster start)
+    import pandas as pd
 
 _NAME_RE = re.compile(r"[A-Za-z0-9_.-]{1,120}")
 TABLE_ROWS = 200
@@ -69,13 +71,15 @@ class SurveyShelf:
         return [p.stem for p in files if _NAME_RE.fullmatch(p.stem)]
 
     def path(self, name: str) -> Path:
+        """The file of a results name, found in a listing of the shelf (never built from the
+        name a page sent)."""
         if not isinstance(name, str) or not _NAME_RE.fullmatch(name):
             raise InputError("results", str(name)[:60], "the name of a results file on the shelf")
-        path = self.folder / f"{name}.parquet"
-        if not path.is_file():
-            shown = ", ".join(self.names()[:20]) or f"none yet in {self.folder}"
-            raise InputError("results", name, f"a results file on the shelf: {shown}")
-        return path
+        for listed in self.folder.glob("*.parquet") if self.folder.is_dir() else []:
+            if listed.stem == name and listed.is_file():
+                return listed
+        shown = ", ".join(self.names()[:20]) or "none yet"
+        raise InputError("results", name, f"a results file on the shelf: {shown}")
 
     def table(self, name: str) -> SurveyTable:
         """The ranked rows of a results file (read again when the file changes)."""
@@ -87,8 +91,13 @@ class SurveyShelf:
             hit = self._loaded.get(name)
             if hit and hit[0] == mtime:
                 return hit[1]
-        frame = load_results(path)
-        meta = read_survey_metadata(path)
+        try:
+            frame = load_results(path)
+            meta = read_survey_metadata(path)
+        except Exception:  # the engine's message names the server's path: not for the page
+            raise InputError(
+                "results", name, "a readable survey results file (this one could not be read)"
+            ) from None
         years = tuple(meta.get("years") or (0, 0))
         engines = sorted(set(frame["engine_version"].astype(str)))
         table = SurveyTable(
@@ -119,6 +128,8 @@ class SurveyShelf:
         if rows.empty:
             raise InputError("target", str(target)[:60], f"a target of the survey '{name}'")
         row = rows.iloc[0]
+        import pandas as pd
+
         if pd.isna(row["departure_jd_tdb"]):
             raise InputError("target", target, f"a target with an arc ({row['reason']})")
         case = case_for_target(
@@ -135,5 +146,7 @@ class SurveyShelf:
 
 def _minute(utc: str) -> str:
     """``2032-06-24T00:08:47Z`` -> ``2032-06-24T00:09Z`` (the page's selection format)."""
+    import pandas as pd
+
     stamp = pd.Timestamp(str(utc).rstrip("Z")).round("min")
     return stamp.strftime("%Y-%m-%dT%H:%MZ")

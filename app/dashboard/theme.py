@@ -127,13 +127,26 @@ def axis_style(**overrides) -> dict:
     return style
 
 
+NO_CLOUD_CONFIG = {
+    "displaylogo": False,
+    "showSendToCloud": False,
+    "plotlyServerURL": "",
+}
+"""Plot settings that keep every chart on the machine: plotly.js would otherwise offer a toolbar
+button that sends the chart and its data to an outside cloud service."""
+
+
 def graph_config(filename: str) -> dict:
-    """dcc.Graph ``config``: PNG export named after the figure, no plotly logo."""
+    """dcc.Graph ``config``: nothing sent off the machine, no plotly logo, no camera button.
+
+    Images download through the page's PNG buttons, which name the file after the case and the
+    view and print the caution on the image (the toolbar's camera would do neither).
+    """
     return {
-        "displaylogo": False,
+        **NO_CLOUD_CONFIG,
         "responsive": True,
         "toImageButtonOptions": {"format": "png", "filename": filename, "scale": 2},
-        "modeBarButtonsToRemove": ["lasso2d", "select2d"],
+        "modeBarButtonsToRemove": ["lasso2d", "select2d", "toImage", "sendDataToCloud"],
     }
 
 

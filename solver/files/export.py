@@ -22,11 +22,13 @@ from solver.files.oem import format_oem
 from solver.mechanics.families import Family, family_label
 from solver.mechanics.kepler import propagate, sample_arc, state_to_elements
 from solver.mechanics.lambert import BRANCH_NAMES
-from solver.reasons import Reason, describe
+from solver.reasons import MassReason, Reason, describe, describe_mass
+from solver.window.arc_launch import arc_launch_window, mass_budget, vehicle_comparison
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc
 from solver.window.grid import WindowGrid
+from solver.window.mass import MASS_METRICS, mass_reasons
 from solver.window.metrics import METRICS
 from solver.window.outputs import (
     arc_burns,
@@ -62,8 +64,14 @@ GRID_COLUMNS = (
     "apoapsis_km",
     "a_km",
     "e",
+    "injected_mass_kg",
+    "propellant_departure_kg",
+    "propellant_arrival_kg",
+    "delivered_mass_kg",
+    "mass_margin_kg",
     "within_limits",
     "reason",
+    "mass_reason",
     "departure_jd_tdb",
     "arrival_jd_tdb",
 )
@@ -97,8 +105,10 @@ BURN_GRID_COLUMNS = (
     "apoapsis_km",
     "a_km",
     "e",
+    *MASS_METRICS,
     "within_limits",
     "reason",
+    "mass_reason",
     "departure_jd_tdb",
     "arrival_jd_tdb",
 )
@@ -115,6 +125,10 @@ def grid_columns(case: Case) -> tuple[str, ...]:
         columns = tuple(
             c for c in BURN_GRID_COLUMNS if c not in METRICS or c in fit.metrics or c == "tof_days"
         )
+    # Mass columns only where the case gives a mass (how it is counted: the provenance).
+    columns = tuple(c for c in columns if c not in MASS_METRICS or c in fit.metrics)
+    if not any(c in fit.metrics for c in MASS_METRICS):
+        columns = tuple(c for c in columns if c != "mass_reason")
     if not fit.planet_centred:
         columns = tuple(c for c in columns if c != "tof_hours")
     elif "tof_hours" not in columns:
@@ -194,6 +208,18 @@ def grid_to_frame(grid: WindowGrid) -> pd.DataFrame:
     columns["transfer_angle_deg"] = grid.transfer_angle_deg[i, j]
     columns["within_limits"] = grid.within[i, j, k]
     columns["reason"] = categorical(reasons, reason_names)
+    if "mass_reason" in names:
+        arcs = grid.arcs
+        mass_codes = mass_reasons(
+            grid.case,
+            CaseBodies.of(grid.case),
+            arcs["c3_km2_s2"][i, j, k],
+            arcs["dv_departure_km_s"][i, j, k],
+            arcs["dv_arrival_km_s"][i, j, k],
+        )
+        columns["mass_reason"] = categorical(
+            mass_codes, [describe_mass(code) for code in range(max(MassReason) + 1)]
+        )
     columns["departure_jd_tdb"] = grid.departure_jd_tdb[i]
     columns["arrival_jd_tdb"] = grid.arrival_jd_tdb[j]
     return pd.DataFrame({name: columns[name] for name in names})
@@ -267,6 +293,8 @@ def arc_json(case: Case, arc: Arc) -> dict[str, Any]:
         return float(value) if math.isfinite(value) else None
 
     fit = case_outputs(case)
+    bodies = CaseBodies.of(case)
+    budget = mass_budget(case, arc, bodies=bodies)
     report: dict[str, Any] = {
         "case_title": case.title,
         "departure_utc": str(jd_tdb_to_utc(arc.departure_jd_tdb, digits=0)),
@@ -290,6 +318,10 @@ def arc_json(case: Case, arc: Arc) -> dict[str, Any]:
         "units": {name: METRICS[name].unit for name in arc.metrics if name in fit.metrics},
         "transfer_time": transfer_time_text(arc.tof_days, fit.planet_centred),
         "tof_hours": arc.tof_days * 24.0,
+        "mass_reason": budget.reason or describe_mass(MassReason.OK),
+        "mass_budget": budget.as_dict(),
+        "vehicles": [b.as_dict() for b in vehicle_comparison(case, arc, bodies)],
+        "launch_window": arc_launch_window(case, arc, bodies).as_dict(),
         "frame": "ICRF",
         "r1_km": arc.r1_km.tolist(),
         "v1_km_s": arc.v1_km_s.tolist(),

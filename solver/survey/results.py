@@ -18,7 +18,7 @@ import pandas as pd
 
 from solver.errors import InputError
 from solver.window.case import Case, parse_case
-from solver.window.metrics import METRICS
+from solver.window.metrics import ranking_values
 
 PROVENANCE_KEY = b"arcwindow.provenance"
 SURVEY_KEY = b"arcwindow.survey"
@@ -111,9 +111,7 @@ def rank_results(span_rows: pd.DataFrame) -> pd.DataFrame:
     if rows.empty:
         return pd.DataFrame(columns=list(RESULT_COLUMNS)).astype(dict(RESULT_SCHEMA))
     metric = str(rows["metric"].iloc[0])
-    magnitude = METRICS[metric].rank_by_magnitude
-    values = rows["metric_value"].to_numpy(dtype=float)
-    score = np.abs(values) if magnitude else values
+    score = ranking_values(rows["metric_value"].to_numpy(dtype=float), metric)
     order = pd.DataFrame(
         {
             "status": rows["status"].map(STATUS_ORDER).fillna(len(STATUS_ORDER)).to_numpy(),

@@ -42,6 +42,9 @@ A case can be written by hand::
     tof_min_days = 80
     tof_max_days = 250
 
+    # optional: [[vehicles]], [launch_site], [spacecraft], [[propulsion]] (mass and launch,
+    # see solver.window.case_launch)
+
     [[bodies]]                  # optional, any number: bodies defined by orbital elements
     name = "Tallis"
     central_body = "sun"
@@ -72,6 +75,14 @@ from solver.ephemeris.element_input import ELEMENT_FIELDS, element_body
 from solver.ephemeris.frames import ECLIPTIC
 from solver.ephemeris.timescales import jd_tdb_to_utc, utc_to_jd_tdb
 from solver.errors import InputError
+from solver.launch.site import LaunchSite
+from solver.window.case_launch import (
+    ARRAY_SECTIONS,
+    MassModel,
+    launch_toml,
+    read_launch_site,
+    read_mass_model,
+)
 from solver.window.settings import SECTIONS, SETTING, read_setting
 
 ARRIVAL_MODES = SETTING["arrival_orbit.mode"].choices
@@ -88,6 +99,7 @@ class Limits:
     dla_max_deg: float | None = None
     tof_min_days: float | None = None
     tof_max_days: float | None = None
+    delivered_mass_min_kg: float | None = None
 
 
 @dataclass(frozen=True)
@@ -116,6 +128,8 @@ class Case:
     element_ecliptic: str = "iau2006"
     description: str = ""
     bodies: tuple[ElementBody, ...] = ()
+    mass: MassModel = field(default_factory=MassModel)
+    launch_site: LaunchSite | None = None
     departure_start_jd_tdb: float = math.nan
     departure_end_jd_tdb: float = math.nan
     arrival_start_jd_tdb: float = math.nan
@@ -225,15 +239,17 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
     if not isinstance(raw, dict):
         raise InputError("case file", type(raw).__name__, "a TOML table")
     for key, value in raw.items():
-        if key == "bodies":
+        if key in ("bodies", *ARRAY_SECTIONS):
             if not isinstance(value, list):
-                raise InputError("bodies", value, "an array of tables ([[bodies]])")
+                raise InputError(key, value, f"an array of tables ([[{key}]])")
             continue
         if key == "sequence":  # multi-leg sequences: validated by solver.sequence.spec
             continue
         if key not in _SECTIONS:
             raise InputError(
-                key, "(section)", "one of " + ", ".join(sorted([*_SECTIONS, "bodies", "sequence"]))
+                key,
+                "(section)",
+                "one of " + ", ".join(sorted([*_SECTIONS, "bodies", "sequence", *ARRAY_SECTIONS])),
             )
         if not isinstance(value, dict):
             raise InputError(key, value, f"a [{key}] table")
@@ -348,6 +364,8 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
             f"no entry speed: {target.name} has no GM and radius",
         )
 
+    mass = read_mass_model(raw, departure, parking)
+    launch_site = read_launch_site(raw, departure)
     limits = Limits(**{name: setting(f"limits.{name}") for name in SECTIONS["limits"]})
     if (
         limits.tof_min_days is not None
@@ -383,6 +401,8 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
         element_ecliptic=ecliptic,
         description=setting("case.description"),
         bodies=tuple(bodies),
+        mass=mass,
+        launch_site=launch_site,
         departure_start_jd_tdb=dates["departure_start"][1],
         departure_end_jd_tdb=dates["departure_end"][1],
         arrival_start_jd_tdb=dates["arrival_start"][1],
@@ -428,6 +448,7 @@ def to_toml_dict(case: Case) -> dict[str, Any]:
         raw["limits"] = limits
     if case.bodies:
         raw["bodies"] = [element_body_dict(b) for b in case.bodies]
+    raw.update(launch_toml(case.mass, case.launch_site))
     return raw
 
 
@@ -435,16 +456,18 @@ def dumps_toml(case: Case) -> str:
     """The case as TOML text (for downloads and for saving an edited case)."""
     lines: list[str] = []
     raw = to_toml_dict(case)
+    arrays = ("bodies", *ARRAY_SECTIONS)
     for section, table in raw.items():
-        if section == "bodies":
+        if section in arrays:
             continue
         lines.append(f"[{section}]")
         lines.extend(f"{k} = {_toml_value(v)}" for k, v in table.items())
         lines.append("")
-    for body in raw.get("bodies", []):
-        lines.append("[[bodies]]")
-        lines.extend(f"{k} = {_toml_value(v)}" for k, v in body.items())
-        lines.append("")
+    for section in arrays:
+        for entry in raw.get(section, []):
+            lines.append(f"[[{section}]]")
+            lines.extend(f"{k} = {_toml_value(v)}" for k, v in entry.items())
+            lines.append("")
     return "\n".join(lines)
 
 
@@ -522,6 +545,10 @@ def _toml_value(value: Any) -> str:
         return "true" if value else "false"
     if isinstance(value, (int, float)):
         return repr(value)
+    if isinstance(value, list):  # arrays and arrays of inline tables ([[vehicles]] performance)
+        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
+    if isinstance(value, dict):
+        return "{ " + ", ".join(f"{k} = {_toml_value(v)}" for k, v in value.items()) + " }"
     escaped = str(value).replace("\\", "\\\\").replace('"', '\\"')
     return f'"{escaped}"'
 

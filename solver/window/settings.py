@@ -356,6 +356,16 @@ SETTINGS: tuple[Setting, ...] = (
         control="number",
         description="Longest time of flight.",
     ),
+    Setting(
+        "limits.delivered_mass_min_kg",
+        "number",
+        "delivered mass min",
+        unit="kg",
+        low=0.0,
+        high=1e7,
+        description="Smallest mass delivered into the final orbit (needs a spacecraft mass: "
+        "[[vehicles]] or spacecraft.wet_mass_max_kg).",
+    ),
     # [ephemeris]
     Setting(
         "ephemeris.source",
@@ -377,6 +387,81 @@ SETTINGS: tuple[Setting, ...] = (
         "element lists (0.042 arcsec apart: up to ~85 km at 2.8 au). A body's frame "
         "'ecliptic_iau2006' or 'ecliptic_iau1976' says it outright. Survey catalogues read "
         "with the base case's choice.",
+    ),
+    # [launch_site]: optional, for Earth departures (see solver.launch.site)
+    Setting(
+        "launch_site.name",
+        "text",
+        "launch site",
+        default="launch site",
+        description="Name of the launch site.",
+    ),
+    Setting(
+        "launch_site.latitude_deg",
+        "number",
+        "site latitude",
+        unit="deg",
+        low=-89.0,
+        high=89.0,
+        description="Geocentric latitude of the site, north positive (spherical Earth); "
+        "required with [launch_site].",
+    ),
+    Setting(
+        "launch_site.longitude_deg",
+        "number",
+        "site longitude",
+        unit="deg",
+        low=-180.0,
+        high=360.0,
+        description="East longitude of the site; required with [launch_site].",
+    ),
+    Setting(
+        "launch_site.azimuth_min_deg",
+        "number",
+        "azimuth from",
+        unit="deg",
+        low=0.0,
+        high=360.0,
+        description="Allowed launch azimuths run clockwise (from north through east) from this; "
+        "required with [launch_site].",
+    ),
+    Setting(
+        "launch_site.azimuth_max_deg",
+        "number",
+        "azimuth to",
+        unit="deg",
+        low=0.0,
+        high=720.0,
+        description="Where the allowed azimuths end, clockwise from azimuth_min_deg: above it "
+        "and at most 360 past it (a range through north is written past 360: 340 to 380); "
+        "required with [launch_site].",
+    ),
+    # [spacecraft]: optional (with [[vehicles]] and [[propulsion]], see solver.window.mass)
+    Setting(
+        "spacecraft.vehicle",
+        "text",
+        "launch vehicle",
+        description="Name of the [[vehicles]] entry the mass metrics use (default: the first).",
+    ),
+    Setting(
+        "spacecraft.wet_mass_max_kg",
+        "number",
+        "wet mass limit",
+        unit="kg",
+        low=1.0,
+        high=1e7,
+        description="Largest spacecraft mass at injection (full tanks); without [[vehicles]], "
+        "the spacecraft's mass at injection.",
+    ),
+    Setting(
+        "spacecraft.required_delivered_mass_kg",
+        "number",
+        "required delivered mass",
+        unit="kg",
+        low=0.0,
+        high=1e7,
+        description="Mass the mission needs in the final orbit; the mass margin is measured "
+        "against it.",
     ),
 )
 """Every scalar setting of a case file, in the order the documentation lists them."""

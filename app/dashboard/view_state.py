@@ -11,6 +11,9 @@ survive small edits to a sample case. The query looks like::
     ?case=tallis_rendezvous&metric=c3_km2_s2&arcs=best
      &dep=2035-11-01~2036-05-31&c3max=25&sel=2036-01-10T00:00Z~2036-08-02T00:00Z
 
+The view also travels back from the page in a ``dcc.Store``; :meth:`ViewState.from_dict` checks
+every value of it (a page can send anything) and refuses a bad one with one line naming it.
+
 Everything here is plain data and string handling, testable without Dash.
 """
 
@@ -23,6 +26,9 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 from urllib.parse import parse_qsl, quote
 
+from solver.errors import InputError
+from solver.mechanics.lambert import BRANCH_HIGH, BRANCH_LOW, BRANCH_NAMES, BRANCH_SINGLE
+from solver.time_units import MINUTES_PER_DAY, MS_PER_DAY, SECONDS_PER_DAY
 from solver.window.case import Case, to_toml_dict
 from solver.window.metrics import METRICS
 from solver.window.settings import SETTINGS, Setting
@@ -35,8 +41,14 @@ MAP_METRICS = ("c3_km2_s2", "vinf_arrival_km_s", "dv_total_km_s", "dla_deg", "to
 
 RANGE_SEPARATOR = "~"  # unreserved in URLs, so links stay readable
 _UNIX_EPOCH = dt.datetime(1970, 1, 1, tzinfo=dt.UTC)
-_CASE_ID_RE = re.compile(r"[A-Za-z0-9_-]{1,80}")
+CASE_ID_RE = re.compile(r"[A-Za-z0-9_-]{1,80}")
+"""What a case id looks like: a sample file's stem or ``upload-<hash>``; nothing else is looked
+up, and an id is only ever a key of the server's catalogue, never part of a path."""
 _ARCS_RE = re.compile(r"best|0|[1-9][0-9]?[LH]")
+_DATE_RE = re.compile(
+    r"[0-9]{4}-[0-9]{2}-[0-9]{2}([T ][0-9]{2}:[0-9]{2}(:[0-9]{2}(\.[0-9]+)?)?)?Z?"
+)
+_MAX_TEXT = 80
 
 
 @dataclass(frozen=True)
@@ -117,17 +129,108 @@ class ViewState:
         }
 
     @classmethod
-    def from_dict(cls, data: dict[str, Any] | None) -> ViewState:
-        if not data:
+    def from_dict(cls, data: Any) -> ViewState:
+        """The view a page's store holds, every value checked.
+
+        Raises
+        ------
+        InputError
+            A value that is not what the page itself writes (one line naming the part, the value
+            cut short, and what is accepted).
+        """
+        if data is None:
             return cls()
+        if not isinstance(data, dict):
+            raise InputError("stored view", _short(data), "a view object")
+        unknown = set(data) - {"case", "changes", "metric", "arcs", "selected"}
+        if unknown:
+            raise InputError(
+                "stored view",
+                _short(sorted(map(str, unknown))[0]),
+                "case, changes, metric, arcs, sel",
+            )
+        case = data.get("case") or DEFAULT_CASE_ID
+        if not isinstance(case, str) or not CASE_ID_RE.fullmatch(case):
+            raise InputError("stored view case", _short(case), "a case name")
+        metric = data.get("metric") or DEFAULT_METRIC
+        if metric not in MAP_METRICS:
+            raise InputError(
+                "stored view metric", _short(metric), "one of " + ", ".join(MAP_METRICS)
+            )
+        arcs = data.get("arcs") or "best"
+        if not isinstance(arcs, str) or not _ARCS_RE.fullmatch(arcs):
+            raise InputError("stored view arcs", _short(arcs), "best, 0, or N followed by L or H")
+        changes = data.get("changes") or []
+        if not isinstance(changes, list) or len(changes) > len(FIELDS) + 4:
+            raise InputError("stored view changes", _short(changes), "a list of [key, value]")
+        checked: dict[str, Any] = {}
+        for item in changes:
+            if not isinstance(item, list | tuple) or len(item) != 2:
+                raise InputError("stored view changes", _short(item), "a [key, value] pair")
+            key, value = item
+            checked[str(key)[:_MAX_TEXT]] = _stored_change(key, value)
         selected = data.get("selected")
+        if selected is not None:
+            if (
+                not isinstance(selected, list | tuple)
+                or len(selected) != 2
+                or not all(isinstance(d, str) and _DATE_RE.fullmatch(d) for d in selected)
+            ):
+                raise InputError("stored view sel", _short(selected), "two ISO 8601 UTC dates")
+            selected = (selected[0], selected[1])
         return cls(
-            case=str(data.get("case") or DEFAULT_CASE_ID),
-            changes=tuple(sorted((str(k), v) for k, v in data.get("changes") or [])),
-            metric=str(data.get("metric") or DEFAULT_METRIC),
-            arcs=str(data.get("arcs") or "best"),
-            selected=(str(selected[0]), str(selected[1])) if selected else None,
+            case=case,
+            changes=tuple(sorted(checked.items())),
+            metric=metric,
+            arcs=arcs,
+            selected=selected,
         )
+
+
+def _short(value: Any, n: int = 40) -> str:
+    printable = isinstance(value, str) and value.isprintable()
+    text = value if printable else repr(value)  # a newline or control character stays visible
+    return text if len(text) <= n else text[: n - 3] + "..."
+
+
+_RANGE_KEYS = {
+    "window.departure_start",
+    "window.departure_end",
+    "window.arrival_start",
+    "window.arrival_end",
+}
+
+
+def _stored_change(key: Any, value: Any) -> Any:
+    """One stored change checked for its kind (bounds are the case parser's job)."""
+    if not isinstance(key, str):
+        raise InputError("stored view changes", _short(key), "a setting's dotted key")
+    if key in _RANGE_KEYS:
+        if isinstance(value, str) and _DATE_RE.fullmatch(value):
+            return value
+        raise InputError(f"stored view {key}", _short(value), "an ISO 8601 UTC date")
+    f = FIELD_BY_KEY.get(key) if isinstance(key, str) else None
+    if f is None:
+        raise InputError("stored view changes", _short(key), "a setting the controls change")
+    if f.kind == "text":
+        if isinstance(value, str) and 0 < len(value) <= _MAX_TEXT:
+            return value
+        raise InputError(
+            f"stored view {key}", _short(value), f"a name of 1 to {_MAX_TEXT} characters"
+        )
+    if value is None and f.kind == "optional_float":
+        return None
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        raise InputError(f"stored view {key}", _short(value), "a number")
+    if f.kind == "int":
+        if isinstance(value, float) and not value.is_integer():
+            raise InputError(f"stored view {key}", _short(value), "an integer")
+        if abs(value) > 10**6:
+            raise InputError(f"stored view {key}", _short(value), "an integer below a million")
+        return int(value)
+    if not math.isfinite(float(value)):
+        raise InputError(f"stored view {key}", _short(value), "a finite number")
+    return float(value)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -187,7 +290,7 @@ def from_query(search: str | None) -> ViewState:
     notes: list[str] = []
     values = dict(parse_qsl(search.lstrip("?"), keep_blank_values=True))
     case = values.get("case", DEFAULT_CASE_ID)
-    if not _CASE_ID_RE.fullmatch(case):
+    if not CASE_ID_RE.fullmatch(case):
         notes.append(f"link: case '{case[:40]}' is not a case name; showing the default case")
         case = DEFAULT_CASE_ID
     changes: dict[str, Any] = {}
@@ -236,28 +339,47 @@ def from_query(search: str | None) -> ViewState:
 # Arc choices
 
 
+def slot_label(revolutions: int, branch: str) -> str:
+    """The name of one arc slot: ``"N = 0"`` or ``"N = 2, high branch"`` (branch names are
+    ``solver.mechanics.lambert.BRANCH_NAMES``)."""
+    return "N = 0" if revolutions == 0 else f"N = {revolutions}, {branch} branch"
+
+
+def arcs_label(arcs: str) -> str:
+    """The name of an arcs choice, as the picker and the map's title show it."""
+    revolutions, branch = parse_arcs(arcs)
+    if revolutions is None:
+        return "best arc of each cell"
+    if revolutions == 0:
+        return "single revolution (N = 0)"
+    return slot_label(revolutions, branch or "low")
+
+
 def arc_choices(max_revolutions: int) -> list[tuple[str, str]]:
     """(value, label) of the arcs a map can show for a case with this many revolutions."""
-    choices = [("best", "best arc of each cell")] if max_revolutions else []
-    choices.append(("0", "single revolution (N = 0)"))
+    values = ["best"] if max_revolutions else []
+    values.append("0")
     for n in range(1, max_revolutions + 1):
-        choices.append((f"{n}L", f"N = {n}, low branch"))
-        choices.append((f"{n}H", f"N = {n}, high branch"))
-    return choices
+        values += [f"{n}L", f"{n}H"]
+    return [(v, arcs_label(v)) for v in values]
+
+
+_SINGLE, _LOW, _HIGH = (BRANCH_NAMES[k] for k in (BRANCH_SINGLE, BRANCH_LOW, BRANCH_HIGH))
 
 
 def parse_arcs(arcs: str) -> tuple[int | None, str | None]:
-    """(revolutions, branch) of an arcs choice; (None, None) for the best arc of each cell."""
+    """(revolutions, branch name) of an arcs choice; (None, None) for the best arc of each cell.
+    Branch names are ``solver.mechanics.lambert.BRANCH_NAMES``; ``L``/``H`` in links."""
     if arcs == "best":
         return None, None
     if arcs == "0":
-        return 0, "single"
-    return int(arcs[:-1]), "low" if arcs.endswith("L") else "high"
+        return 0, _SINGLE
+    return int(arcs[:-1]), _LOW if arcs.endswith("L") else _HIGH
 
 
 def arcs_value(revolutions: int, branch: str) -> str:
     """Inverse of :func:`parse_arcs` for one arc."""
-    return "0" if revolutions == 0 else f"{revolutions}{'L' if branch == 'low' else 'H'}"
+    return "0" if revolutions == 0 else f"{revolutions}{'L' if branch == _LOW else 'H'}"
 
 
 def fit_arcs(arcs: str, max_revolutions: int) -> str:
@@ -280,15 +402,16 @@ def iso_to_unix_days(text: str) -> float:
     if text.endswith("+00:00"):
         text = text[:-6]
     moment = dt.datetime.fromisoformat(text).replace(tzinfo=dt.UTC)
-    return (moment - _UNIX_EPOCH).total_seconds() / 86400.0
+    return (moment - _UNIX_EPOCH).total_seconds() / SECONDS_PER_DAY
 
 
 def unix_days_to_iso(days: float) -> str:
     """ISO 8601 UTC text of a slider value, to the minute (the date alone at midnight)."""
-    moment = _UNIX_EPOCH + dt.timedelta(minutes=round(float(days) * 1440.0))
+    moment = _UNIX_EPOCH + dt.timedelta(minutes=round(float(days) * MINUTES_PER_DAY))
+    day = f"{moment.year:04d}-{moment.month:02d}-{moment.day:02d}"  # %Y does not pad year 1
     if moment.hour == 0 and moment.minute == 0:
-        return moment.strftime("%Y-%m-%d")
-    return moment.strftime("%Y-%m-%dT%H:%M")
+        return day
+    return f"{day}T{moment.hour:02d}:{moment.minute:02d}"
 
 
 def unix_ms_to_iso(ms: float) -> str:
@@ -301,7 +424,7 @@ def plot_x_to_unix_ms(value: Any) -> float:
     """A date-axis coordinate from plotly event data (a number of ms or a date string) in ms."""
     if isinstance(value, (int, float)):
         return float(value)
-    return iso_to_unix_days(str(value)) * 86400000.0
+    return iso_to_unix_days(str(value)) * MS_PER_DAY
 
 
 # ---------------------------------------------------------------------------------------------
@@ -313,52 +436,6 @@ def case_setting(case: Case, key: str) -> Any:
     raw = to_toml_dict(case)
     section, name = key.split(".", 1)
     return raw.get(section, {}).get(name)
-
-
-def _same(a: Any, b: Any) -> bool:
-    if a is None or b is None:
-        return a is None and b is None
-    if isinstance(a, (int, float)) and isinstance(b, (int, float)):
-        # Controls show six significant digits (control_values), so a value read back from a
-        # control is the case's own value when it agrees to that many.
-        return math.isclose(float(a), float(b), rel_tol=1e-6, abs_tol=1e-12)
-    return str(a).strip().lower() == str(b).strip().lower()
-
-
-def _same_date(a: str, b: str) -> bool:
-    try:
-        return abs(iso_to_unix_days(a) - iso_to_unix_days(b)) < 0.5 / 1440.0
-    except ValueError:
-        return False
-
-
-def changes_from_controls(base: Case, controls: dict[str, Any]) -> dict[str, Any]:
-    """The case changes the control values make, relative to the case file ``base``.
-
-    ``controls`` maps dotted keys to control values; the two windows come as
-    ``{"dep": [start_days, end_days], "arr": [...]}`` in slider days. Values equal to the case
-    file's are left out, so the URL only carries what the analyst changed.
-    """
-    changes: dict[str, Any] = {}
-    for url, keys in RANGES.items():
-        values = controls.get(url)
-        if not values or len(values) != 2 or values[0] is None or values[1] is None:
-            continue
-        for key, days in zip(keys, values, strict=True):
-            text = unix_days_to_iso(days)
-            if not _same_date(text, str(case_setting(base, key))):
-                changes[key] = text
-    for f in FIELDS:
-        if f.key not in controls:
-            continue
-        value = controls[f.key]
-        if isinstance(value, str) and not value.strip() and f.kind == "optional_float":
-            value = None
-        if f.kind == "int" and isinstance(value, float) and value.is_integer():
-            value = int(value)
-        if not _same(value, case_setting(base, f.key)):
-            changes[f.key] = value
-    return changes
 
 
 def control_values(case: Case) -> dict[str, Any]:
@@ -379,20 +456,22 @@ def metric_label(metric: str) -> str:
 
 
 __all__ = [
+    "CASE_ID_RE",
     "DEFAULT_CASE_ID",
     "DEFAULT_METRIC",
     "FIELDS",
     "MAP_METRICS",
     "ViewState",
     "arc_choices",
+    "arcs_label",
     "arcs_value",
-    "changes_from_controls",
     "control_values",
     "fit_arcs",
     "from_query",
     "iso_to_unix_days",
     "parse_arcs",
     "plot_x_to_unix_ms",
+    "slot_label",
     "to_query",
     "unix_days_to_iso",
     "unix_ms_to_iso",

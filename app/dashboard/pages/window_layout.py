@@ -1,14 +1,16 @@
-"""The page: header, caution, controls on the left, the three views, details and shortlist.
+"""The window page's layout: header, caution, controls on the left, the map beside the selected
+arc's details, the arc view beside the family chart, and the shared shortlist.
 
 Built from small functions, one per panel. Component ids follow widget-subject-parameter
-(``graph-window-map``, ``slider-departure-range``). The controls start empty: on page load the
-view callback fills them from the URL (or the default case), so a shared link and a fresh page
-take the same path.
+(``graph-window-map``, ``slider-departure-range``); the case controls are made from the table of
+case settings (``controls.CONTROLS``). The controls start empty: the view callback fills them
+from the page's link (or the default case), so a shared link and a fresh page take one path.
 """
 
 from __future__ import annotations
 
 import re
+from urllib.parse import urlencode
 
 from dash import dcc, html
 
@@ -16,54 +18,14 @@ from solver.caution import CAUTION
 from solver.ephemeris.timescales import FUTURE_UTC_NOTE
 from solver.window.metrics import METRICS
 
-from . import theme
-from .cases import MAX_UPLOAD_BYTES
-from .prepare import DetailRow
-from .state import MAP_METRICS
+from .. import theme
+from ..controls import SLIDERS, Slider, control_field, controls_of, error_text, label
+from ..display_data import DetailRow
+from ..view_state import MAP_METRICS
 
-POLL_GRID_MS = 300
 POLL_SHORTLIST_MS = 3000
-
-# Control ids by the case setting they change (dotted keys of solver.window.case.with_changes).
-CONTROL_IDS: dict[str, str] = {
-    "case.departure_body": "dropdown-body-departure",
-    "case.target_body": "dropdown-body-target",
-    "window.departure_step_days": "input-step-departure",
-    "window.arrival_step_days": "input-step-arrival",
-    "transfer.max_revolutions": "input-revolutions-max",
-    "departure_orbit.altitude_km": "input-parking-altitude",
-    "arrival_orbit.mode": "dropdown-arrival-mode",
-    "arrival_orbit.periapsis_altitude_km": "input-capture-periapsis",
-    "arrival_orbit.apoapsis_altitude_km": "input-capture-apoapsis",
-    "limits.c3_max_km2_s2": "input-limit-c3",
-    "limits.vinf_arrival_max_km_s": "input-limit-vinf",
-    "limits.dla_max_deg": "input-limit-dla",
-    "limits.tof_min_days": "input-limit-tofmin",
-    "limits.tof_max_days": "input-limit-tofmax",
-}
-SLIDER_IDS = {"dep": "slider-departure-range", "arr": "slider-arrival-range"}
-
-
-def _label(text: str, unit: str = "", for_id: str | None = None):
-    children = [text] + ([html.Span(f" ({unit})", className="aw-unit")] if unit else [])
-    return html.Label(children, htmlFor=for_id, className="aw-label")
-
-
-def _number(control_id: str, label: str, unit: str, placeholder: str = "none"):
-    return html.Div(
-        [
-            _label(label, unit, control_id),
-            dcc.Input(
-                id=control_id,
-                type="number",
-                debounce=True,
-                placeholder=placeholder,
-                className="aw-input",
-                step="any",
-            ),
-        ],
-        className="aw-field",
-    )
+MAP_HEIGHT_PX = 520
+VIEW_HEIGHT_PX = 400
 
 
 def _section(title: str, *children, class_name: str = ""):
@@ -73,26 +35,32 @@ def _section(title: str, *children, class_name: str = ""):
     )
 
 
+def brand() -> html.Div:
+    return html.Div(
+        [html.Span("arc", className="aw-brand-a"), html.Span("window")], className="aw-brand"
+    )
+
+
 def header() -> html.Header:
     return html.Header(
         [
-            html.Div(
-                [html.Span("arc", className="aw-brand-a"), html.Span("window")],
-                className="aw-brand",
-            ),
+            brand(),
             html.Div(id="text-case-title", className="aw-case-title"),
-            html.Div(
+            html.Nav(
                 [
-                    html.A("Survey results", href="/survey/", className="aw-nav-link"),
-                    dcc.Clipboard(
-                        id="clipboard-view-link",
-                        title="copy a link to this view",
+                    dcc.Link("Survey results", href="/survey", className="aw-nav-link"),
+                    # A real button, so the keyboard reaches it (Tab, then Enter); the page
+                    # copies the address bar, which always holds the current view.
+                    html.Button(
+                        "Copy link to this view",
+                        id="button-copy-link",
                         className="aw-copy",
-                        children=html.Span("Copy link to this view"),
-                        copied_children=html.Span("Link copied"),
+                        title="copy a link to this view",
+                        n_clicks=0,
                     ),
                 ],
                 className="aw-header-tools",
+                **{"aria-label": "pages and sharing"},
             ),
         ],
         className="aw-header",
@@ -111,17 +79,33 @@ def caution() -> html.Div:
 def case_controls() -> html.Section:
     return _section(
         "Case",
-        dcc.Dropdown(id="dropdown-case", clearable=False, className="aw-dropdown"),
+        label("case", for_id="dropdown-case"),
+        dcc.Dropdown(
+            id="dropdown-case",
+            clearable=False,
+            className="aw-dropdown aw-case-picker",
+            optionHeight=44,
+            maxHeight=360,
+        ),
         html.Div(id="text-case-description", className="aw-small"),
+        html.Button(
+            "Remove this upload from my list",
+            id="button-case-remove",
+            className="aw-button-link aw-remove-case",
+            n_clicks=0,
+            style={"display": "none"},
+        ),
         dcc.Upload(
             id="upload-case-file",
             children=html.Div(["Upload a case file (TOML)"]),
             accept=".toml,text/plain,application/toml",
-            # Well above the server's own limit (cases.MAX_UPLOAD_BYTES), so an oversized file
-            # reaches the server and gets a message instead of being dropped in the browser.
-            max_size=4 * MAX_UPLOAD_BYTES,
+            # No limit in the browser: the page checks the size itself and says so
+            # (a file over a browser limit would be dropped without a word).
+            max_size=-1,
+            multiple=False,
             className="aw-upload",
         ),
+        dcc.Store(id="store-upload"),
         html.Div(id="div-message-upload", className="aw-message", role="alert"),
     )
 
@@ -130,37 +114,23 @@ def body_controls() -> html.Section:
     return _section(
         "Bodies",
         html.Div(id="text-central-body", className="aw-small"),
-        html.Div(
-            [
-                html.Div(
-                    [
-                        _label("departure", for_id="dropdown-body-departure"),
-                        dcc.Dropdown(id="dropdown-body-departure", clearable=False, options=[]),
-                    ],
-                    className="aw-field",
-                ),
-                html.Div(
-                    [
-                        _label("target", for_id="dropdown-body-target"),
-                        dcc.Dropdown(id="dropdown-body-target", clearable=False, options=[]),
-                    ],
-                    className="aw-field",
-                ),
-            ],
-            className="aw-pair",
-        ),
+        html.Div([control_field(c) for c in controls_of("bodies")], className="aw-pair"),
     )
 
 
-def _slider(slider_id: str, label: str, text_id: str):
+def _slider(slider: Slider):
+    word = slider.label.split()[0]
     return html.Div(
         [
             html.Div(
-                [_label(label, "UTC"), html.Span(id=text_id, className="aw-range-text")],
+                [
+                    label(slider.label, "UTC", label_id=f"label-{slider.url}"),
+                    html.Span(id=slider.text_id, className="aw-range-text"),
+                ],
                 className="aw-slider-head",
             ),
             dcc.RangeSlider(
-                id=slider_id,
+                id=slider.id,
                 min=0,
                 max=1,
                 value=[0, 1],
@@ -170,24 +140,18 @@ def _slider(slider_id: str, label: str, text_id: str):
                 tooltip={"placement": "bottom", "transform": "arcwindowDate"},
                 className="aw-slider",
             ),
+            error_text(slider.url),
         ],
         className="aw-field aw-slider-field",
+        **{"data-setting": f"{slider.start_key} {slider.end_key}", "data-slider": word},
     )
 
 
 def date_controls() -> html.Section:
     return _section(
         "Dates",
-        _slider("slider-departure-range", "departure window", "text-departure-range"),
-        _slider("slider-arrival-range", "arrival window", "text-arrival-range"),
-        html.Div(
-            [
-                _number("input-step-departure", "departure step", "days", ""),
-                _number("input-step-arrival", "arrival step", "days", ""),
-            ],
-            # one per row: steps of minutes need the width (0.00347 days = 5 min)
-            className="aw-stack",
-        ),
+        *[_slider(s) for s in SLIDERS],
+        html.Div([control_field(c) for c in controls_of("dates")], className="aw-stack"),
         html.Div(id="text-step-hint", className="aw-small"),
         html.Div(FUTURE_UTC_NOTE, className="aw-small aw-note"),
     )
@@ -201,7 +165,7 @@ def map_controls() -> html.Section:
         "Window map",
         html.Div(
             [
-                _label("metric", for_id="dropdown-metric"),
+                label("metric", for_id="dropdown-metric"),
                 dcc.Dropdown(
                     id="dropdown-metric", options=metric_options, clearable=False, value="c3_km2_s2"
                 ),
@@ -210,59 +174,25 @@ def map_controls() -> html.Section:
         ),
         html.Div(
             [
-                _label("arcs shown", for_id="dropdown-arc-slot"),
+                label("arcs shown", for_id="dropdown-arc-slot"),
                 dcc.Dropdown(id="dropdown-arc-slot", clearable=False),
             ],
             className="aw-field",
         ),
-        _number("input-revolutions-max", "maximum revolutions", "", "0"),
+        *[control_field(c) for c in controls_of("map")],
     )
 
 
 def limit_controls() -> html.Section:
     return _section(
         "Limits",
-        html.Div(
-            [
-                _number("input-limit-c3", "C3 max", "km²/s²"),
-                _number("input-limit-vinf", "arrival v∞ max", "km/s"),
-                _number("input-limit-dla", "|DLA| max", "deg"),
-                _number("input-limit-tofmin", "TOF min", "days"),
-                _number("input-limit-tofmax", "TOF max", "days"),
-            ],
-            className="aw-grid2",
-        ),
+        html.Div([control_field(c) for c in controls_of("limits")], className="aw-grid2"),
         html.Div("Leave a box empty for no limit.", className="aw-small"),
     )
 
 
 def orbit_controls() -> html.Section:
-    return _section(
-        "Orbits",
-        _number("input-parking-altitude", "parking orbit altitude", "km"),
-        html.Div(
-            [
-                _label("arrival", for_id="dropdown-arrival-mode"),
-                dcc.Dropdown(
-                    id="dropdown-arrival-mode",
-                    clearable=False,
-                    options=[
-                        {"value": "capture", "label": "capture into orbit"},
-                        {"value": "flyby", "label": "flyby (no burn)"},
-                        {"value": "rendezvous", "label": "rendezvous (match velocity)"},
-                    ],
-                ),
-            ],
-            className="aw-field",
-        ),
-        html.Div(
-            [
-                _number("input-capture-periapsis", "capture periapsis", "km"),
-                _number("input-capture-apoapsis", "capture apoapsis", "km"),
-            ],
-            className="aw-pair",
-        ),
-    )
+    return _section("Orbits", *[control_field(c) for c in controls_of("orbits")])
 
 
 def download_controls() -> html.Section:
@@ -312,11 +242,8 @@ def controls() -> html.Aside:
             download_controls(),
         ],
         className="aw-controls",
+        **{"aria-label": "case and view settings"},
     )
-
-
-MAP_HEIGHT_PX = 560
-VIEW_HEIGHT_PX = 430
 
 
 def _graph(graph_id: str, filename: str, height_px: int):
@@ -330,35 +257,41 @@ def _graph(graph_id: str, filename: str, height_px: int):
     )
 
 
+def progress_strip() -> html.Div:
+    return html.Div(
+        [
+            html.Div(
+                html.Div(id="div-grid-progress-fill", className="aw-progress-fill"),
+                className="aw-progress-track",
+            ),
+            html.Span(id="text-grid-progress", className="aw-progress-text", role="status"),
+            html.Button(
+                "Compute again",
+                id="button-grid-retry",
+                className="aw-button aw-button-small",
+                n_clicks=0,
+                style={"display": "none"},
+            ),
+            html.Button(
+                "Cancel",
+                id="button-grid-cancel",
+                className="aw-button aw-button-small",
+                n_clicks=0,
+            ),
+        ],
+        id="div-grid-progress",
+        className="aw-progress",
+        style={"display": "none"},
+    )
+
+
 def map_card() -> html.Div:
     return html.Div(
         [
             html.Div(
-                [
-                    html.Div(
-                        html.Div(id="div-grid-progress-fill", className="aw-progress-fill"),
-                        className="aw-progress-track",
-                    ),
-                    html.Span(id="text-grid-progress", className="aw-progress-text"),
-                    html.Button(
-                        "Compute again",
-                        id="button-grid-retry",
-                        className="aw-button aw-button-small",
-                        n_clicks=0,
-                        style={"display": "none"},
-                    ),
-                    html.Button(
-                        "Cancel",
-                        id="button-grid-cancel",
-                        className="aw-button aw-button-small",
-                        n_clicks=0,
-                    ),
-                ],
-                id="div-grid-progress",
-                className="aw-progress",
-                style={"display": "none"},
+                [html.H2("Window map", className="aw-card-title"), progress_strip()],
+                className="aw-card-head",
             ),
-            html.H2("Window map", className="aw-card-title"),
             _graph("graph-window-map", "window_map", MAP_HEIGHT_PX),
             html.Div(
                 "Click a cell to inspect its arc. Drag on the map to zoom; double-click to reset.",
@@ -369,27 +302,20 @@ def map_card() -> html.Div:
     )
 
 
-def details_card() -> html.Div:
+def shortlist_form() -> html.Div:
     return html.Div(
         [
-            html.H2("Selected arc", className="aw-card-title"),
-            html.Div(id="div-details-arc", className="aw-details"),
+            html.H3("Keep in the shortlist", className="aw-subtitle"),
+            label("kept by", for_id="input-shortlist-author"),
             html.Div(
                 [
-                    html.H3("Keep in the shortlist", className="aw-subtitle"),
                     dcc.Input(
                         id="input-shortlist-author",
-                        placeholder="your name or initials",
+                        placeholder="name or initials",
                         className="aw-input",
                         maxLength=60,
                         persistence=True,
                         persistence_type="local",
-                    ),
-                    dcc.Textarea(
-                        id="input-shortlist-note",
-                        placeholder="note (why this arc)",
-                        className="aw-input aw-textarea",
-                        maxLength=500,
                     ),
                     html.Button(
                         "Add selected arc",
@@ -397,10 +323,28 @@ def details_card() -> html.Div:
                         className="aw-button",
                         n_clicks=0,
                     ),
-                    html.Div(id="div-message-shortlist", className="aw-message", role="alert"),
                 ],
-                className="aw-shortlist-form",
+                className="aw-inline",
             ),
+            label("note", for_id="input-shortlist-note"),
+            dcc.Textarea(
+                id="input-shortlist-note",
+                placeholder="note (why this arc)",
+                className="aw-input aw-textarea",
+                maxLength=500,
+            ),
+            html.Div(id="div-message-shortlist", className="aw-message", role="alert"),
+        ],
+        className="aw-shortlist-form",
+    )
+
+
+def details_card() -> html.Div:
+    return html.Div(
+        [
+            html.H2("Selected arc", className="aw-card-title"),
+            shortlist_form(),
+            html.Div(id="div-details-arc", className="aw-details"),
         ],
         className="aw-card aw-card-details",
     )
@@ -445,26 +389,33 @@ def views() -> html.Section:
     )
 
 
-def stores() -> html.Div:
+def stores(query: str) -> html.Div:
     return html.Div(
         [
-            dcc.Location(id="location-page-url", refresh=False),
+            dcc.Store(id="store-page-query", data=query),
             dcc.Store(id="store-view-state"),
+            dcc.Store(id="store-view-query"),
+            dcc.Store(id="store-grid-status"),
+            dcc.Store(id="store-grid-polled"),
             dcc.Store(id="store-map-shown"),
-            dcc.Store(id="store-grid-job"),
             dcc.Store(id="store-selected-arc"),
+            dcc.Store(id="store-control-errors"),
+            dcc.Store(id="store-download-stem"),
             dcc.Store(id="store-shortlist-version"),
-            dcc.Interval(id="interval-grid-poll", interval=POLL_GRID_MS, disabled=True),
+            dcc.Interval(id="interval-grid-poll", interval=300, disabled=True),
             dcc.Interval(id="interval-shortlist-poll", interval=POLL_SHORTLIST_MS),
+            # Outputs of client-side helpers that act on the page itself.
+            html.Div(id="div-sink-url", hidden=True),
+            html.Div(id="div-sink-errors", hidden=True),
         ]
     )
 
 
-def page() -> html.Div:
-    """The whole page."""
+def page(query: str = "") -> html.Div:
+    """The whole window page; ``query`` is the link it was opened with."""
     return html.Div(
         [
-            stores(),
+            stores(query),
             header(),
             caution(),
             html.Div(id="div-message-view", className="aw-message aw-message-bar", role="alert"),
@@ -472,6 +423,12 @@ def page() -> html.Div:
         ],
         className="aw-page",
     )
+
+
+def page_from_query(**params) -> html.Div:
+    """The page for Dash's router, which passes the link's query parameters."""
+    params = {k: v for k, v in params.items() if k not in ("pathname_", "search_")}
+    return page("?" + urlencode(params, doseq=True) if params else "")
 
 
 _NUMBER_RE = re.compile(r"^[-+−]?[\d,]*\.?\d+(\s*\(.*\))?$")
@@ -495,7 +452,9 @@ def details_children(sections: list[tuple[str, list[DetailRow]]], note: str = ""
                                     r.value.replace("T", " ").rstrip("Z")
                                     if r.unit == "UTC"
                                     else r.value,
-                                    className="aw-num" if _NUMBER_RE.match(r.value) else "aw-text",
+                                    className="aw-text aw-date"
+                                    if r.unit == "UTC"
+                                    else ("aw-num" if _NUMBER_RE.match(r.value) else "aw-text"),
                                 ),
                                 html.Td(r.unit, className="aw-unit"),
                             ]
@@ -518,6 +477,7 @@ def shortlist_children(entries, current_case: str | None) -> list:
             [
                 html.Th(t)
                 for t in (
+                    "",
                     "case",
                     "departure (UTC)",
                     "arrival (UTC)",
@@ -529,7 +489,6 @@ def shortlist_children(entries, current_case: str | None) -> list:
                     "note",
                     "by",
                     "kept (UTC)",
-                    "",
                 )
             ]
         )
@@ -547,17 +506,7 @@ def shortlist_children(entries, current_case: str | None) -> list:
         rows.append(
             html.Tr(
                 [
-                    html.Td(e.case_title, className="aw-clip"),
-                    html.Td(e.departure_utc.replace("T", " ").rstrip("Z")),
-                    html.Td(e.arrival_utc.replace("T", " ").rstrip("Z")),
-                    html.Td(arc),
-                    html.Td(num(e.metrics.get("c3_km2_s2"), 3), className="aw-num"),
-                    html.Td(num(e.metrics.get("vinf_arrival_km_s"), 3), className="aw-num"),
-                    html.Td(num(e.metrics.get("dv_total_km_s"), 3), className="aw-num"),
-                    html.Td(num(e.metrics.get("tof_days"), 1), className="aw-num"),
-                    html.Td(e.note, className="aw-note-cell"),
-                    html.Td(e.author),
-                    html.Td(e.created_utc.replace("T", " ").rstrip("Z")),
+                    # Actions first, so they show without scrolling the table sideways.
                     html.Td(
                         [
                             dcc.Link("open", href="/" + e.view, className="aw-link"),
@@ -570,9 +519,30 @@ def shortlist_children(entries, current_case: str | None) -> list:
                         ],
                         className="aw-actions",
                     ),
+                    html.Td(e.case_title, className="aw-clip"),
+                    html.Td(e.departure_utc.replace("T", " ").rstrip("Z")),
+                    html.Td(e.arrival_utc.replace("T", " ").rstrip("Z")),
+                    html.Td(arc),
+                    html.Td(num(e.metrics.get("c3_km2_s2"), 3), className="aw-num"),
+                    html.Td(num(e.metrics.get("vinf_arrival_km_s"), 3), className="aw-num"),
+                    html.Td(num(e.metrics.get("dv_total_km_s"), 3), className="aw-num"),
+                    html.Td(num(e.metrics.get("tof_days"), 1), className="aw-num"),
+                    html.Td(e.note, className="aw-note-cell"),
+                    html.Td(e.author),
+                    html.Td(e.created_utc.replace("T", " ").rstrip("Z")),
                 ],
                 className="aw-current" if e.case_id == current_case else "",
                 **{"data-entry-id": e.id},
             )
         )
     return [html.Table([head, html.Tbody(rows)], className="aw-shortlist-table")]
+
+
+__all__ = [
+    "MAP_HEIGHT_PX",
+    "VIEW_HEIGHT_PX",
+    "details_children",
+    "page",
+    "page_from_query",
+    "shortlist_children",
+]

@@ -1,27 +1,35 @@
-"""The survey page (``/survey/``): ranked targets of a results file; each opens its window map.
+"""The survey page (``/survey``): ranked targets of a results file; each opens its window map.
 
-A second Dash app on the dashboard's own server, so the window page's callbacks and URL state
-stay as they are. "open" goes through ``/survey-open``, which builds the target's window case
-around its best arc (``solver.survey.scan.case_for_target``), stores it like an uploaded case, and
-sends the browser to the window page with that case and the best arc selected.
+A page of the one dashboard app. "open" is a link to the window page, ``/?survey=NAME&target=T``:
+the window page builds the target's window case around its best arc
+(``solver.survey.targets.case_for_target``), stores it like an uploaded case (content hash, so
+the link works for every viewer), adds it to the viewer's own case list and shows it with the
+best arc selected. The browser's Back button returns here.
 """
 
 from __future__ import annotations
 
+import logging
 import math
 from urllib.parse import parse_qsl, quote, urlencode
 
-from dash import Dash, Input, Output, State, ctx, dcc, html, no_update
-from flask import redirect, request
+from dash import Input, Output, State, ctx, dcc, html, no_update
 
 from solver.caution import CAUTION
 from solver.errors import InputError
 
-from .config import ASSETS_DIR
-from .surveys import TABLE_ROWS, SurveyShelf, SurveyTable
+from ..surveys import TABLE_ROWS, SurveyShelf, SurveyTable
+from ..view_changes import short
+from .window_layout import brand
 
-BASE_PATH = "/survey/"
-OPEN_PATH = "/survey-open"
+_LOG = logging.getLogger(__name__)
+
+PATH = "/survey"
+TITLE = "arcwindow survey"
+NAME = "Survey results"
+LEGACY_OPEN_PATH = "/survey-open"
+"""Links of earlier versions (``/survey-open?results=..&target=..``) redirect to the window
+page's ``?survey=..&target=..``; the redirect itself changes nothing on the server."""
 
 _COLUMNS = (
     ("rank", "rank", None),
@@ -43,45 +51,19 @@ _STATUS_TEXT = {
 }
 
 
-def create_survey_app(server, shelf: SurveyShelf) -> Dash:
-    """Mount the survey page on ``server`` (the window page's Flask server)."""
-    app = Dash(
-        __name__,
-        server=server,
-        url_base_pathname=BASE_PATH,
-        title="arcwindow survey",
-        update_title=None,
-        assets_folder=str(ASSETS_DIR),
-        serve_locally=True,
-    )
-    app.layout = layout()
-    register(app, shelf)
-
-    @server.route(OPEN_PATH)
-    def open_target():
-        name = request.args.get("results", "")
-        target = request.args.get("target", "")
-        try:
-            return redirect("/" + shelf.open_target(name, target))
-        except InputError as exc:
-            return redirect(BASE_PATH + "?" + urlencode({"results": name, "error": str(exc)}))
-
-    return app
-
-
-def layout() -> html.Div:
+def page_layout(**query) -> html.Div:
+    params = {k: v for k, v in query.items() if k not in ("pathname_", "search_")}
+    search = "?" + urlencode(params, doseq=True) if params else ""
     return html.Div(
         [
-            dcc.Location(id="location-survey-url", refresh=False),
+            dcc.Store(id="store-survey-query", data=search),
+            html.Div(id="div-sink-survey-url", hidden=True),
             html.Header(
                 [
-                    html.Div(
-                        [html.Span("arc", className="aw-brand-a"), html.Span("window")],
-                        className="aw-brand",
-                    ),
+                    brand(),
                     html.Div("Survey results", className="aw-case-title"),
-                    html.Div(
-                        html.A("Window map", href="/", className="aw-nav-link"),
+                    html.Nav(
+                        dcc.Link("Window map", href="/", className="aw-nav-link"),
                         className="aw-header-tools",
                     ),
                 ],
@@ -101,7 +83,8 @@ def layout() -> html.Div:
                         ),
                         html.P(id="text-survey-summary", className="aw-small"),
                         html.P(
-                            "Choose a target to open its window map around its best arc.",
+                            "Choose a target to open its window map around its best arc; the "
+                            "browser's Back button returns here.",
                             className="aw-small",
                         ),
                         html.Div(id="div-survey-table", className="aw-survey-table-wrap"),
@@ -115,15 +98,15 @@ def layout() -> html.Div:
     )
 
 
-def register(app: Dash, shelf: SurveyShelf) -> None:
+def register_callbacks(app, shelf: SurveyShelf) -> None:
     @app.callback(
         Output("dropdown-survey-file", "options"),
         Output("dropdown-survey-file", "value"),
         Output("div-survey-table", "children"),
         Output("text-survey-summary", "children"),
         Output("div-survey-message", "children"),
-        Output("location-survey-url", "search"),
-        Input("location-survey-url", "search"),
+        Output("div-sink-survey-url", "children"),
+        Input("store-survey-query", "data"),
         Input("dropdown-survey-file", "value"),
         State("dropdown-survey-file", "options"),
     )
@@ -131,31 +114,56 @@ def register(app: Dash, shelf: SurveyShelf) -> None:
         names = shelf.names()
         new_options = [{"label": n, "value": n} for n in names]
         params = dict(parse_qsl((search or "").lstrip("?")))
-        message = params.get("error", "")
+        message = short(params.get("error", ""))
         if ctx.triggered_id == "dropdown-survey-file" and chosen:
             name = chosen
         else:
             name = params.get("results") or (names[0] if names else None)
         if name is None:
             empty = (
-                f"No survey results yet. Run `arcwindow survey ... --out "
-                f"{shelf.folder}/NAME.parquet`, or serve with --survey-dir pointing at "
-                "a folder of results."
+                "No survey results yet. Run `arcwindow survey ... --out NAME.parquet` into the "
+                "server's survey folder, or serve with --survey-dir pointing at a folder of "
+                "results."
             )
             return new_options, None, html.Div(empty, className="aw-small"), "", message, no_update
         try:
             table = shelf.table(name)
         except InputError as exc:
-            return new_options, None, "", "", str(exc), no_update
-        query = "?" + urlencode({"results": name})
+            return new_options, None, "", "", short(str(exc)), no_update
+        except Exception:  # a damaged file: say so, keep serving
+            _LOG.exception("survey results %s could not be read", name)
+            text = f"The results file '{name}' could not be read (damaged or not a survey)."
+            return new_options, None, "", "", text, no_update
         return (
             new_options,
             name,
             table_children(table),
             table.summary,
             message,
-            query if query != search else no_update,
+            no_update,
         )
+
+    # The address bar follows the file shown (replaced, so Back still leaves the page).
+    app.clientside_callback(
+        "function(name) { return window.arcwindow.replaceSurveyQuery(name); }",
+        Output("div-sink-survey-url", "children", allow_duplicate=True),
+        Input("dropdown-survey-file", "value"),
+        prevent_initial_call=True,
+    )
+
+    from flask import redirect, request
+
+    @app.server.route(LEGACY_OPEN_PATH)
+    def open_target_legacy():
+        query = urlencode(
+            {"survey": request.args.get("results", ""), "target": request.args.get("target", "")}
+        )
+        return redirect("/?" + query)
+
+
+def open_href(results: str, target: str) -> str:
+    """The window page's link that opens a survey target."""
+    return f"/?survey={quote(results)}&target={quote(target)}"
 
 
 def table_children(table: SurveyTable) -> list:
@@ -172,18 +180,17 @@ def table_children(table: SurveyTable) -> list:
             elif digits is None:
                 text, cls = str(value).replace("T", " ").rstrip("Z"), "aw-text"
             else:
-                ok = isinstance(value, (int, float)) and math.isfinite(value)
+                ok = isinstance(value, int | float) and math.isfinite(value)
                 text, cls = (f"{value:.{digits}f}" if ok else "—"), "aw-num"
             cells.append(html.Td(text, className=cls))
         has_arc = isinstance(record.get("departure_jd_tdb"), float) and math.isfinite(
             record["departure_jd_tdb"]
         )
         link = (
-            html.A(
+            dcc.Link(
                 "open",
                 className="aw-link",
-                href=f"{OPEN_PATH}?results={quote(table.name)}"
-                f"&target={quote(str(record['target']))}",
+                href=open_href(table.name, str(record["target"])),
             )
             if has_arc
             else html.Span(record.get("reason", ""), className="aw-small")
@@ -200,3 +207,15 @@ def table_children(table: SurveyTable) -> list:
     if more > 0:
         out.append(html.P(f"... {more} more targets in the file.", className="aw-small"))
     return out
+
+
+__all__ = [
+    "LEGACY_OPEN_PATH",
+    "NAME",
+    "PATH",
+    "TITLE",
+    "open_href",
+    "page_layout",
+    "register_callbacks",
+    "table_children",
+]

@@ -5,7 +5,10 @@ dataclasses made here. This module calls the engine (``solver.window``,
 ``solver.mechanics.kepler``, ``solver.ephemeris.states``, ``solver.mechanics.families``) and does
 the unit conversions for display, so the figures stay pure and fast to test.
 
-Dates on the plots are milliseconds since 1970-01-01 UTC, the number a plotly date axis reads.
+Dates on the plots are milliseconds since 1970-01-01 UTC, the number a plotly date axis reads,
+rounded to the second (:func:`display_ms`): grid nodes are evenly spaced in TDB, so a node on a
+UTC midnight can fall a few milliseconds before it, and a date axis printing hours and minutes
+would show it one minute early, on the previous day.
 """
 
 from __future__ import annotations
@@ -20,6 +23,7 @@ from solver.constants import AU_KM
 from solver.ephemeris.frames import ECLIPTIC, ICRF, equator_frame, rotate
 from solver.ephemeris.states import states
 from solver.ephemeris.timescales import jd_tdb_to_utc, split_jd, tdb_jd_to_utc_jd
+from solver.errors import InputError
 from solver.mechanics.families import (
     FamilyCurve,
     classify,
@@ -30,8 +34,9 @@ from solver.mechanics.families import (
     parabolic_tau,
 )
 from solver.mechanics.kepler import sample_arc, state_to_elements
+from solver.mechanics.lambert import BRANCH_NAMES
 from solver.reasons import describe
-from solver.time_units import SECONDS_PER_DAY
+from solver.time_units import JD_UNIX_EPOCH, MS_PER_DAY, SECONDS_PER_DAY
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc
@@ -40,7 +45,7 @@ from solver.window.limits import LIMIT_RULES, breaches
 from solver.window.metrics import METRICS, dv_conventions
 from solver.window.outputs import arc_burns, case_outputs
 
-from .state import parse_arcs
+from .view_state import arcs_label, parse_arcs, slot_label
 
 DISPLAY_MAX_POINTS = 600
 """Largest number of heat-map columns or rows sent to the browser. A map panel is about 900 x
@@ -52,9 +57,6 @@ its time grows with the cell count; lines drawn from 160 x 160 cells are smooth 
 
 PREVIEW_MAX_POINTS = 60
 """Grid size per axis of the coarse preview computed while a date slider is dragged."""
-
-_UNIX_EPOCH_JD = 2440587.5
-_MS_PER_DAY = 86_400_000.0
 
 # The numbers every heat-map cell carries for its hover label: (metric column, label, unit,
 # format), float32 each. Every number of the cell's arc; large responses go out gzip-compressed
@@ -88,7 +90,17 @@ def jd_tdb_to_unix_ms(jd_tdb: NDArray[np.float64] | float) -> NDArray[np.float64
     as 23:59:59.997 on a date axis."""
     day, frac = split_jd(np.asarray(jd_tdb, dtype=float))
     utc1, utc2 = tdb_jd_to_utc_jd(day, frac)
-    return np.round(((utc1 - _UNIX_EPOCH_JD) + utc2) * _MS_PER_DAY)
+    return np.round(((utc1 - JD_UNIX_EPOCH) + utc2) * MS_PER_DAY)
+
+
+def display_ms(jd_tdb: NDArray[np.float64] | float) -> NDArray[np.float64]:
+    """The plot coordinate of a grid date: :func:`jd_tdb_to_unix_ms` rounded to the second.
+
+    Grid dates are whole seconds of UTC (whole minutes or days in practice), but the nodes are
+    evenly spaced in TDB and the periodic TDB-TT term puts a node up to ~2 ms before its UTC
+    second; shown to the minute, 00:00:00 would read as 23:59 of the day before.
+    """
+    return np.round(jd_tdb_to_unix_ms(jd_tdb) / 1000.0) * 1000.0
 
 
 def display_name(name: str) -> str:
@@ -154,6 +166,8 @@ class MapData:
     ----------
     outside : (ny, nx) bool
         Cells of ``heat`` whose arc exists but breaks a limit.
+    no_arc : (ny, nx) bool
+        Cells of ``heat`` with no arc shown (a click there asks why).
     hover : (ny, nx, len(hover_fields)) float32 or None
         Every number of a ``heat`` cell, for its hover label (None for previews).
     hover_fields : tuple of (column, label, unit, format)
@@ -168,6 +182,7 @@ class MapData:
     heat: MapLayer
     lines: MapLayer
     outside: NDArray[np.bool_]
+    no_arc: NDArray[np.bool_]
     hover: NDArray[np.float32] | None
     arc_text: NDArray[np.str_] | None
     limit: float | None
@@ -179,6 +194,7 @@ class MapData:
     arcs_label: str = ""
     preview: bool = False
     title: str = ""
+    note: str = ""  # shown on the map (no arc within the limits)
     hover_fields: tuple[tuple[str, str, str, str], ...] = HOVER_FIELDS
 
     # The heat layer's axes, used by the markers, TOF lines and ranges.
@@ -195,16 +211,28 @@ class MapData:
         return self.heat.values
 
 
+_BRANCH_CODES = {name: code for code, name in BRANCH_NAMES.items()}
+
+
 def shown_slot(grid: WindowGrid, arcs: str) -> int | None:
-    """Slot index for an arcs choice ("best" gives None: the best slot of each cell)."""
+    """Slot index for an arcs choice: None for "best" (the best slot of each cell), -1 when the
+    grid has no such revolution count and branch (never another slot in its place)."""
     revolutions, branch = parse_arcs(arcs)
     if revolutions is None:
         return None
-    branch_code = {"single": 0, "low": 1, "high": 2}[branch or "single"]
+    branch_code = _BRANCH_CODES[branch or "single"]
     for k in range(len(grid.revolutions)):
         if int(grid.revolutions[k]) == revolutions and int(grid.branch[k]) == branch_code:
             return k
-    return 0
+    return -1
+
+
+def any_arc_shown(grid: WindowGrid, arcs: str) -> bool:
+    """Whether the grid has any arc of the kind shown (a revolution count and branch, or any)."""
+    slot = shown_slot(grid, arcs)
+    if slot == -1:
+        return False
+    return bool(grid.converged.any() if slot is None else grid.converged[..., slot].any())
 
 
 class _Sampler:
@@ -238,8 +266,8 @@ class _Sampler:
         if METRICS[metric].rank_by_magnitude:
             values = np.abs(values)
         return MapLayer(
-            departure_ms=jd_tdb_to_unix_ms(self.grid.departure_jd_tdb[self.i]),
-            arrival_ms=jd_tdb_to_unix_ms(self.grid.arrival_jd_tdb[self.j]),
+            departure_ms=display_ms(self.grid.departure_jd_tdb[self.i]),
+            arrival_ms=display_ms(self.grid.arrival_jd_tdb[self.j]),
             values=values,
             transfer_angle_deg=self.field("transfer_angle_deg"),
         )
@@ -257,8 +285,15 @@ def map_data(
     preview: bool = False,
     title: str = "",
 ) -> MapData:
-    """Display arrays of one metric over a grid, decimated to at most ``max_points`` per axis."""
+    """Display arrays of one metric over a grid, decimated to at most ``max_points`` per axis.
+
+    Raises InputError when the grid has no arc slot for ``arcs`` (a grid of fewer revolutions).
+    """
     slot = shown_slot(grid, arcs)
+    if slot == -1:
+        raise InputError(
+            "arcs", arcs, f"an arc the grid holds (up to {int(grid.revolutions.max())} revolutions)"
+        )
     if slot is None:
         slot_per_cell = grid.best_slot(metric)
         within = grid.cell_within()
@@ -284,7 +319,7 @@ def map_data(
     if len(grid.revolutions) > 1:
         labels = np.array(
             [
-                _slot_label(int(n), int(b))
+                slot_label(int(n), BRANCH_NAMES[int(b)])
                 for n, b in zip(grid.revolutions, grid.branch, strict=True)
             ]
             + ["no arc"]
@@ -301,6 +336,7 @@ def map_data(
         heat=heat.layer(metric),
         lines=lines.layer(metric),
         outside=(heat.exists & ~within[heat.cells]).T,
+        no_arc=(~heat.exists).T,
         hover=hover,
         arc_text=arc_text,
         limit=limit,
@@ -309,26 +345,11 @@ def map_data(
         best=best,
         selected=selected,
         full_shape=(len(grid.departure_jd_tdb), len(grid.arrival_jd_tdb)),
-        arcs_label=_arcs_label(arcs),
+        arcs_label=arcs_label(arcs),
         preview=preview,
         title=title,
         hover_fields=fields,
     )
-
-
-def _slot_label(revolutions: int, branch: int) -> str:
-    if revolutions == 0:
-        return "N = 0"
-    return f"N = {revolutions}, {'low' if branch == 1 else 'high'} branch"
-
-
-def _arcs_label(arcs: str) -> str:
-    revolutions, branch = parse_arcs(arcs)
-    if revolutions is None:
-        return "best arc of each cell"
-    if revolutions == 0:
-        return "single revolution"
-    return f"N = {revolutions}, {branch} branch"
 
 
 def map_point(arc: Arc, metric: str, label: str) -> MapPoint:
@@ -337,8 +358,8 @@ def map_point(arc: Arc, metric: str, label: str) -> MapPoint:
     if METRICS[metric].rank_by_magnitude:
         value = abs(value)
     return MapPoint(
-        float(jd_tdb_to_unix_ms(arc.departure_jd_tdb)),
-        float(jd_tdb_to_unix_ms(arc.arrival_jd_tdb)),
+        float(display_ms(arc.departure_jd_tdb)),
+        float(display_ms(arc.arrival_jd_tdb)),
         float(value),
         label,
     )
@@ -715,6 +736,80 @@ def arc_details(
     return sections
 
 
+@dataclass(frozen=True)
+class LimitsBlock:
+    """Why a view has no arc within limits.
+
+    Attributes
+    ----------
+    closest : Arc or None
+        The best arc by the view's metric among the arcs shown, limits ignored (None when the
+        grid has no arc at all).
+    breaches : list of str
+        The limits ``closest`` breaks, in words.
+    excluded_by : list of (str, int)
+        Each limit in force with the number of arcs that lifting it alone would admit, most
+        first (limits whose lifting admits nothing are left out).
+    breaking : list of (str, int)
+        Each limit in force with the number of arcs that break it, most first.
+    arcs : int
+        Arcs of the kind shown in the grid.
+    """
+
+    closest: Arc | None
+    breaches: list[str]
+    excluded_by: list[tuple[str, int]]
+    breaking: list[tuple[str, int]] = field(default_factory=list)
+    arcs: int = 0
+
+
+def limits_block(
+    case: Case, grid: WindowGrid, metric: str, arcs: str, bodies: CaseBodies
+) -> LimitsBlock:
+    """Which limits keep every arc of the view out, and the closest arc they exclude."""
+    from solver.window.best import slot_arc
+
+    slot = shown_slot(grid, arcs)
+    slots = list(range(grid.shape[2])) if slot is None else [max(slot, 0)]
+    exists = grid.converged[..., slots]
+    closest = None
+    found = grid.best_cell(metric, slots=None if slot is None else slots, mask=grid.converged)
+    if found is not None:
+        closest = slot_arc(case, bodies, grid, *found)
+    wanted = {rule.quantity for rule in LIMIT_RULES} | {"periapsis_km"}
+    values = {name: grid.metric(name)[..., slots] for name in wanted}
+    meets = []
+    for rule in LIMIT_RULES:
+        limit = rule.limit(case.limits)
+        if limit is not None:
+            meets.append(
+                (
+                    f"{rule.label} {'max' if rule.bound == 'max' else 'min'}",
+                    rule.meets(values[rule.quantity], limit),
+                )
+            )
+    radius = bodies.central.radius_km
+    if math.isfinite(radius):
+        with np.errstate(invalid="ignore"):
+            meets.append(("periapsis above the surface", values["periapsis_km"] > radius))
+    excluded = []
+    for k, (label, _) in enumerate(meets):
+        others = exists.copy()
+        for m, (_, ok) in enumerate(meets):
+            if m != k:
+                others &= ok
+        admitted = int(others.sum())
+        if admitted:
+            excluded.append((label, admitted))
+    excluded.sort(key=lambda item: -item[1])
+    breaking = [(label, int((exists & ~ok).sum())) for label, ok in meets]
+    breaking = sorted([b for b in breaking if b[1]], key=lambda item: -item[1])
+    closest_breaches = []
+    if closest is not None:
+        closest_breaches = limit_breaches(case, closest, bodies)
+    return LimitsBlock(closest, closest_breaches, excluded, breaking, int(exists.sum()))
+
+
 __all__ = [
     "CONTOUR_MAX_POINTS",
     "DISPLAY_MAX_POINTS",
@@ -726,16 +821,20 @@ __all__ = [
     "DetailRow",
     "FamilyData",
     "FamilyPoint",
+    "LimitsBlock",
     "MapData",
     "MapLayer",
     "MapPoint",
+    "any_arc_shown",
     "arc_details",
     "arc_scene",
     "display_indices",
+    "display_ms",
     "display_name",
     "family_data",
     "jd_tdb_to_unix_ms",
     "limit_breaches",
+    "limits_block",
     "map_data",
     "map_point",
     "shown_slot",

@@ -1,18 +1,18 @@
-"""The dashboard's model: what the callbacks ask for, without Dash.
+"""The window page's server side: cases, grids, best arcs, figures and the shortlist, joined for
+the page's callbacks (which only unpack values, call one method here and pack the answer).
 
-One ``DashboardModel`` per server holds the case catalogue, the grid store (memory LRU, disk
-cache, background jobs) and the shortlist. Its methods turn a view (``state.ViewState``) into
-cases, grids, arcs and figures. Callbacks stay thin: they unpack component values, call one
-method here and pack the result.
+One ``WindowService`` per server. Its methods turn a view (``view_state.ViewState``) into cases,
+grid tickets, arcs and figures; the branching of what to do when is in ``view_changes`` and
+``map_loop`` (pure functions).
 """
 
 from __future__ import annotations
 
+import functools
 import logging
 import math
 import threading
 from collections import OrderedDict
-from concurrent.futures import Future, ThreadPoolExecutor, TimeoutError
 from dataclasses import dataclass, replace
 from typing import Any
 from urllib.parse import parse_qs
@@ -23,40 +23,45 @@ import plotly.graph_objects as go
 from solver.ephemeris.timescales import utc_to_jd_tdb
 from solver.errors import InputError
 from solver.files.cache import GridCache
-from solver.window.best import best_grid_arc
+from solver.time_units import MINUTE_DAYS, SECOND_DAYS
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, select_arc, solve_cell
 from solver.window.grid import WindowGrid, grid_axes
 from solver.window.metrics import METRICS
 from solver.window.outputs import case_outputs
-from solver.window.provenance import case_hash, window_cache_key
+from solver.window.provenance import case_hash
 
 from . import figures
-from .cases import CaseCatalogue
+from .best_arcs import BestArcs
+from .case_catalogue import CaseCatalogue
 from .config import Settings
-from .jobs import GridStore, Job
-from .prepare import (
+from .display_data import (
     DISPLAY_MAX_POINTS,
     PREVIEW_MAX_POINTS,
+    LimitsBlock,
     MapPoint,
+    any_arc_shown,
     arc_details,
     arc_scene,
+    display_ms,
     display_name,
     family_data,
-    jd_tdb_to_unix_ms,
+    limits_block,
     map_data,
     map_point,
-    shown_slot,
     utc_text,
 )
+from .grid_jobs import GridJobs, Ticket, grid_key
 from .shortlist import Shortlist
-from .state import (
+from .slowdown import Slowdown
+from .view_state import (
     MAP_METRICS,
     ViewState,
-    changes_from_controls,
+    arcs_label,
     fit_arcs,
     from_query,
+    metric_label,
     parse_arcs,
     plot_x_to_unix_ms,
     to_query,
@@ -64,9 +69,6 @@ from .state import (
 )
 
 _MEMO_SIZE = 32
-_MS_PER_DAY = 86_400_000.0
-
-
 _LOG = logging.getLogger(__name__)
 
 
@@ -101,14 +103,11 @@ class Selection:
     arcs: list[Arc]
     arc: Arc
     is_best: bool
-    refined: bool = True  # False: the best arc's grid node, while its refinement runs
+    refined: bool = True  # False: the best arc's grid node (refining, or refinement gave up)
 
 
 def _jd(text: str, field: str) -> float:
     return float(utc_to_jd_tdb(text, field=field))
-
-
-_SNAP_DAYS = 1.0 / 86400.0
 
 
 def _snap(jd_tdb: float, axis: np.ndarray) -> float:
@@ -119,103 +118,46 @@ def _snap(jd_tdb: float, axis: np.ndarray) -> float:
     those of the grid cell exactly. Other dates are kept as given.
     """
     k = int(np.argmin(np.abs(axis - jd_tdb)))
-    return float(axis[k]) if abs(axis[k] - jd_tdb) < _SNAP_DAYS else jd_tdb
+    return float(axis[k]) if abs(axis[k] - jd_tdb) < SECOND_DAYS else jd_tdb
 
 
-def grid_best_arc(
-    case: Case, grid: WindowGrid, metric: str, arcs: str, bodies: CaseBodies
-) -> Arc | None:
-    """The best arc within limits among the arcs shown, at its grid node (None if no arc of
-    the grid is within limits)."""
-    slot = shown_slot(grid, arcs)
-    return best_grid_arc(case, grid, metric, slots=None if slot is None else [slot], bodies=bodies)
+@functools.lru_cache(maxsize=64)
+def _display_axes(case: Case) -> tuple[np.ndarray, np.ndarray]:
+    """The plot coordinates of a case's grid dates (computed once per case; read only)."""
+    dep_jd, arr_jd = grid_axes(case)
+    return display_ms(dep_jd), display_ms(arr_jd)
 
 
-class BestArcs:
-    """Best arcs by (grid, metric, arcs shown): the grid node at once, refined in the background.
-
-    Refining the best arc off the grid (``solver.window.refine``) takes from a tenth of a second to
-    several seconds depending on the metric, too long to hold a click or a metric change; so
-    callers get the grid node's arc while a worker thread refines it, and pick the refined arc
-    up on a later poll.
-    """
-
-    def __init__(self) -> None:
-        self._nodes = _Memo(64)
-        self._refined = _Memo(64)
-        self._pending: dict[tuple, Future] = {}
-        self._lock = threading.Lock()
-        self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="arcwindow-refine")
-
-    def get(self, case, grid, metric, arcs, bodies) -> tuple[Arc | None, bool]:
-        """(best arc, refined?) now; starts the refinement if it has not started."""
-        key = (window_cache_key(grid.case), metric, arcs)
-        refined = self._refined.get(key)
-        if refined is not None:
-            return refined or None, True
-        self._start(key, case, grid, metric, arcs)
-        node = self._nodes.get(key)
-        if node is None:
-            node = self._nodes.put(key, grid_best_arc(case, grid, metric, arcs, bodies) or False)
-        return node or None, False
-
-    def _start(self, key, case, grid, metric, arcs) -> None:
-        with self._lock:
-            if key in self._pending:
-                return
-            self._pending[key] = self._pool.submit(self._refine, key, case, grid, metric, arcs)
-
-    def _refine(self, key, case, grid, metric, arcs) -> None:
-        from solver.window.refine import refine_best  # scipy.optimize: imported when first needed
-
-        revolutions, branch = parse_arcs(arcs)
-        try:
-            arc = refine_best(case, grid, metric, revolutions=revolutions, branch=branch).arc
-        except InputError:
-            arc = None  # no arc of the grid within limits
-        except Exception:  # keep the grid node rather than lose the page to a failed refinement
-            _LOG.exception("refining the best arc failed; keeping the grid node")
-            arc = self._nodes.get(key) or None
-        self._refined.put(key, arc or False)
-        with self._lock:
-            self._pending.pop(key, None)
-
-    def wait(self, case, grid, metric, arcs, timeout_s: float) -> None:
-        """Wait up to ``timeout_s`` for a pending refinement (tests and the benchmark)."""
-        key = (window_cache_key(grid.case), metric, arcs)
-        with self._lock:
-            future = self._pending.get(key)
-        if future is not None:
-            try:
-                future.result(timeout=timeout_s)
-            except TimeoutError:
-                pass
-
-    def shutdown(self) -> None:
-        self._pool.shutdown(wait=False, cancel_futures=True)
-
-
-class DashboardModel:
+class WindowService:
     """Cases, grids, arcs, figures and the shortlist for one server."""
 
-    def __init__(self, settings: Settings, *, store: GridStore | None = None) -> None:
+    def __init__(
+        self,
+        settings: Settings,
+        *,
+        jobs: GridJobs | None = None,
+        slowdown: Slowdown | None = None,
+    ) -> None:
         self.settings = settings
+        slowdown = slowdown or Slowdown.from_environment()
         self.catalogue = CaseCatalogue(settings.cases_dir, settings.uploads_dir)
-        self.grids = store or GridStore(GridCache(settings.cache_dir))
+        self.grids = jobs or GridJobs(GridCache(settings.cache_dir), slowdown=slowdown)
         self.shortlist = Shortlist(settings.shortlist_path)
-        self.best = BestArcs()
+        self.best = BestArcs(slowdown)
         self._map = _Memo(8)
         self._bodies = _Memo()
+        self._shelf = None
 
     # -- views -----------------------------------------------------------------------------
     def view_from_url(self, search: str | None) -> tuple[ViewState, Case, list[str]]:
         """The view a link asks for, made valid: unreadable or refused parts are dropped and
-        named in the returned notes."""
+        named in the returned notes. A link ``?survey=NAME&target=T`` opens a survey target."""
+        params = parse_qs((search or "").lstrip("?"))
+        if "survey" in params or "target" in params:
+            return self._survey_view(params)
         view = from_query(search)
         notes = list(view.notes)
-        try:
-            self.catalogue.load(view.case)
-        except InputError:
+        if not self.catalogue.exists(view.case):
             notes.append(f"link: there is no case '{view.case}' here; showing the default case")
             view = ViewState(case=self.catalogue.default_id(), metric=view.metric)
         try:
@@ -232,9 +174,33 @@ class DashboardModel:
                 notes.append(f"link: {exc}; selecting the best arc")
                 view = replace(view, selected=None)
         view = replace(view, arcs=fit_arcs(view.arcs, case.max_revolutions), notes=())
-        if "metric" not in parse_qs((search or "").lstrip("?")):
+        if "metric" not in params:
             view = replace(view, metric=self.suited_metric(case, view.metric))
         return view, case, notes
+
+    def _survey_view(self, params: dict) -> tuple[ViewState, Case, list[str]]:
+        name = (params.get("survey") or [""])[0]
+        target = (params.get("target") or [""])[0]
+        try:
+            query = self.shelf.open_target(name, target)
+        except InputError as exc:
+            view, case, notes = self.view_from_url("")
+            return view, case, [f"survey: {exc}", *notes]
+        except Exception:  # a damaged results file: say so, keep serving
+            _LOG.exception("survey target %s of %s could not be opened", target[:40], name[:40])
+            view, case, notes = self.view_from_url("")
+            return view, case, [f"survey: the results file '{name[:60]}' could not be read"]
+        view, case, notes = self.view_from_url(query)
+        return view, case, notes
+
+    @property
+    def shelf(self):
+        """The survey shelf of this server (its results folder)."""
+        if self._shelf is None:
+            from .surveys import SurveyShelf
+
+            self._shelf = SurveyShelf(self.settings.surveys_dir, self.catalogue)
+        return self._shelf
 
     def view_for_case(self, case_id: str, metric: str) -> tuple[ViewState, Case]:
         """A fresh view of a case file (the case picker), on a metric that suits it."""
@@ -243,42 +209,21 @@ class DashboardModel:
         view = replace(view, metric=self.suited_metric(case, metric))
         return replace(view, arcs=fit_arcs("best", case.max_revolutions)), case
 
-    def view_from_controls(self, current: ViewState, controls: dict[str, Any]) -> tuple:
-        """The view the controls describe; InputError (naming the setting) if the case they
-        make is refused, in which case the page keeps the current view."""
-        base = self.catalogue.load(current.case)
-        view = current.with_changes(changes_from_controls(base, controls))
-        case = self.catalogue.effective(view)
-        selected = view.selected if self._inside(view.selected, case) else None
-        return replace(
-            view, arcs=fit_arcs(view.arcs, case.max_revolutions), selected=selected
-        ), case
-
-    @staticmethod
-    def _inside(selected: tuple[str, str] | None, case: Case) -> bool:
-        if not selected:
-            return False
-        dep, arr = _jd(selected[0], "sel"), _jd(selected[1], "sel")
-        tol = 1e-6
-        return (
-            case.departure_start_jd_tdb - tol <= dep <= case.departure_end_jd_tdb + tol
-            and case.arrival_start_jd_tdb - tol <= arr <= case.arrival_end_jd_tdb + tol
-        )
-
     def select_point(self, view: ViewState, case: Case, x: Any, y: Any) -> ViewState:
         """The view with the grid cell nearest a clicked map point selected (exact node dates)."""
+        if x is None or y is None:
+            raise ValueError("no coordinates")
         dep_jd, arr_jd = grid_axes(case)
         x_ms, y_ms = plot_x_to_unix_ms(x), plot_x_to_unix_ms(y)
-        i = int(np.argmin(np.abs(jd_tdb_to_unix_ms(dep_jd) - x_ms)))
-        j = int(np.argmin(np.abs(jd_tdb_to_unix_ms(arr_jd) - y_ms)))
+        if not (math.isfinite(x_ms) and math.isfinite(y_ms)):
+            raise ValueError("coordinates are not dates")
+        dep_ms, arr_ms = _display_axes(case)
+        i = int(np.argmin(np.abs(dep_ms - x_ms)))
+        j = int(np.argmin(np.abs(arr_ms - y_ms)))
         return replace(view, selected=(utc_text(dep_jd[i]), utc_text(arr_jd[j])))
 
-    # -- grids -----------------------------------------------------------------------------
     def case(self, view: ViewState) -> Case:
         return self.catalogue.effective(view)
-
-    def request_grid(self, case: Case) -> tuple[WindowGrid | None, Job | None]:
-        return self.grids.request(case)
 
     def suited_metric(self, case: Case, metric: str) -> str:
         """``metric``, unless it does not describe the case's arcs (C3 or DLA of a transfer that
@@ -296,24 +241,45 @@ class DashboardModel:
         ]
 
     def bodies(self, case: Case) -> CaseBodies:
-        key = case.normalized().__repr__()
+        key = repr(case.normalized())
         hit = self._bodies.get(key)
         return hit if hit is not None else self._bodies.put(key, CaseBodies.of(case))
 
+    # -- grids and best arcs ---------------------------------------------------------------
+    def request_grid(self, case: Case, viewer: str, address: str = "") -> Ticket:
+        return self.grids.request(case, viewer, address)
+
+    def ticket(self, key: str, viewer: str) -> Ticket:
+        return self.grids.ticket(key, viewer)
+
+    def grid(self, case: Case) -> WindowGrid | None:
+        return self.grids.memory_get(grid_key(case))
+
+    def best_state(self, view: ViewState, case: Case, grid: WindowGrid | None) -> str:
+        """ "refined", "refining" or "none" for the view's best arc; "lost" without its grid."""
+        if grid is None:
+            return "lost"
+        return self.best.state(case, grid, view.metric, view.arcs, self.bodies(case))
+
     def best_arc(
-        self, case: Case, grid: WindowGrid, metric: str, arcs: str
-    ) -> tuple[Arc | None, bool]:
-        """(best arc within limits among the arcs shown, refined?): the grid node's arc until
-        the background refinement has finished (None if no arc is within limits)."""
-        return self.best.get(case, grid, metric, arcs, self.bodies(case))
+        self, case: Case, grid: WindowGrid, metric: str, arcs: str, *, refined: bool
+    ) -> Arc | None:
+        """The best arc within limits among the arcs shown: the grid node, or the refined arc."""
+        return self.best.get(case, grid, metric, arcs, self.bodies(case), refined=refined)
+
+    def limits_block(self, view: ViewState, case: Case, grid: WindowGrid) -> LimitsBlock:
+        return limits_block(case, grid, view.metric, view.arcs, self.bodies(case))
 
     def shutdown(self) -> None:
-        """Stop the worker threads (tests and benchmarks that build many models)."""
+        """Stop the worker threads (tests and benchmarks that build many services)."""
         self.grids.shutdown()
         self.best.shutdown()
 
-    def selection(self, view: ViewState, case: Case, grid: WindowGrid | None) -> Selection | None:
-        """The selected cell's arcs and the arc shown (None while the best arc awaits its grid)."""
+    def selection(
+        self, view: ViewState, case: Case, grid: WindowGrid | None, best: str = "node"
+    ) -> Selection | None:
+        """The selected cell's arcs and the arc shown (None while the best arc awaits its grid,
+        or when no arc is within limits). ``best`` is the status's best-arc state."""
         revolutions, branch = parse_arcs(view.arcs)
         if view.selected:
             dep_axis, arr_axis = grid_axes(case)
@@ -323,21 +289,27 @@ class DashboardModel:
             return Selection(arcs, select_arc(arcs, revolutions, branch, view.metric), False)
         if grid is None:
             return None
-        best, refined = self.best_arc(case, grid, view.metric, view.arcs)
-        if best is None:
+        refined = best == "refined"
+        arc = self.best_arc(case, grid, view.metric, view.arcs, refined=refined)
+        if arc is None:
             return None
-        arcs = solve_cell(case, best.departure_jd_tdb, best.arrival_jd_tdb, self.bodies(case))
-        return Selection(arcs, select_arc(arcs, revolutions, branch, view.metric), True, refined)
+        arcs = solve_cell(case, arc.departure_jd_tdb, arc.arrival_jd_tdb, self.bodies(case))
+        # The best arc itself: the same revolutions and branch as the star on the map.
+        chosen = next(
+            (a for a in arcs if (a.revolutions, a.branch) == (arc.revolutions, arc.branch)),
+            select_arc(arcs, revolutions, branch, view.metric),
+        )
+        return Selection(arcs, chosen, True, refined)
 
     # -- shortlist -------------------------------------------------------------------------
     SHORTLIST_METRICS = ("c3_km2_s2", "vinf_arrival_km_s", "dv_total_km_s", "dla_deg", "tof_days")
 
-    def keep(self, view: ViewState, note: str | None, author: str | None):
+    def keep(self, view: ViewState, note: str | None, author: str | None, best: str = "refined"):
         """Add the view's selected arc to the shortlist, recomputed here from the view (nothing
         the page sends is written as is), with a link that opens it."""
         case = self.case(view)
-        grid = self.grids.memory_get(window_cache_key(case))
-        sel = self.selection(view, case, grid)
+        grid = self.grid(case)
+        sel = self.selection(view, case, grid, best)
         if sel is None or not sel.arc.ok:
             raise InputError("selected arc", "none", "a selected cell with an arc")
         arc = sel.arc
@@ -361,63 +333,90 @@ class DashboardModel:
         )
 
     # -- figures ---------------------------------------------------------------------------
-    def _points(self, view: ViewState, case: Case, grid: WindowGrid):
-        best_arc, refined = self.best_arc(case, grid, view.metric, view.arcs)
-        label = "best arc" if refined else "best arc (grid node; refining)"
-        best = map_point(best_arc, view.metric, label) if best_arc is not None else None
+    def _points(self, view: ViewState, case: Case, grid: WindowGrid, best: str):
+        refined = best == "refined"
+        arc = self.best_arc(case, grid, view.metric, view.arcs, refined=refined)
+        label = {
+            "refined": "best arc",
+            "node": "best arc (grid node; refining)",
+            "unrefined": "best arc (grid node; refinement did not finish)",
+        }.get(best, "best arc")
+        star = map_point(arc, view.metric, label) if arc is not None else None
         selected = None
         if view.selected:
             selected = MapPoint(
-                float(jd_tdb_to_unix_ms(_jd(view.selected[0], "sel"))),
-                float(jd_tdb_to_unix_ms(_jd(view.selected[1], "sel"))),
+                float(display_ms(_jd(view.selected[0], "sel"))),
+                float(display_ms(_jd(view.selected[1], "sel"))),
                 math.nan,
                 "selected",
             )
-        elif best is not None:
-            selected = replace(best, label="selected (best arc)")
-        return best, selected, refined
+        elif star is not None:
+            selected = replace(star, label="selected (best arc)")
+        return star, selected
 
-    def best_refined(self, view: ViewState, case: Case, grid: WindowGrid) -> bool:
-        """Whether the best arc of a view has been refined (without starting anything new)."""
-        return self.best_arc(case, grid, view.metric, view.arcs)[1]
-
-    def map_figure(self, view: ViewState, case: Case, grid: WindowGrid) -> go.Figure:
-        """The full window map for a view whose grid is ready."""
-        best, selected, _ = self._points(view, case, grid)
-        key = (window_cache_key(grid.case), view.metric, view.arcs)
+    def _map_data(self, view: ViewState, case: Case, grid: WindowGrid):
+        key = (grid_key(grid.case), view.metric, view.arcs)
         data = self._map.get(key)
         if data is None:
             data = self._map.put(
                 key, map_data(grid, view.metric, view.arcs, max_points=DISPLAY_MAX_POINTS)
             )
-        data = replace(data, best=best, selected=selected, title=self.map_title(view, case))
+        return data
+
+    def map_figure(self, view: ViewState, case: Case, grid: WindowGrid, best: str) -> go.Figure:
+        """The full window map for a view whose grid is ready."""
+        star, selected = self._points(view, case, grid, best)
+        data = replace(
+            self._map_data(view, case, grid),
+            best=star,
+            selected=selected,
+            title=self.map_title(view, case),
+            note=self._no_arc_note(star, view, grid),
+        )
         return figures.window_map_figure(data)
 
-    def map_title(self, view: ViewState, case: Case) -> str:
-        from .state import metric_label
+    @staticmethod
+    def _no_arc_note(star: MapPoint | None, view: ViewState, grid: WindowGrid) -> str:
+        """What the map says when it has no best arc: none of the arcs shown exist, or none is
+        within the limits."""
+        if star is not None:
+            return ""
+        if not any_arc_shown(grid, view.arcs):
+            return f"No {arcs_label(view.arcs)} arc in this window."
+        return "No arc within the limits: see the details panel."
 
+    def map_title(self, view: ViewState, case: Case) -> str:
+        arcs = (
+            "" if view.arcs == "best" or case.max_revolutions == 0 else f", {arcs_label(view.arcs)}"
+        )
         return (
             f"{metric_label(view.metric)} — {display_name(case.departure_body)} to "
-            f"{display_name(case.target_body)}"
+            f"{display_name(case.target_body)}{arcs}"
         )
 
-    def map_patch(self, patch, view: ViewState, case: Case, grid: WindowGrid, metric_changed: bool):
+    def map_patch(
+        self, patch, view: ViewState, case: Case, grid: WindowGrid, best: str, metric: bool
+    ):
         """Fill a ``dash.Patch`` of the shown map: markers only, or a new metric as well."""
-        best, selected, _ = self._points(view, case, grid)
-        if metric_changed:  # the caller checked that the cells keep their arcs
-            key = (window_cache_key(grid.case), view.metric, view.arcs)
-            data = self._map.get(key) or self._map.put(
-                key, map_data(grid, view.metric, view.arcs, max_points=DISPLAY_MAX_POINTS)
+        star, selected = self._points(view, case, grid, best)
+        if metric:  # the caller checked that the cells keep their arcs
+            data = replace(
+                self._map_data(view, case, grid),
+                best=star,
+                selected=selected,
+                title=self.map_title(view, case),
+                note=self._no_arc_note(star, view, grid),
             )
-            data = replace(data, best=best, selected=selected, title=self.map_title(view, case))
             return figures.map_metric_patch(patch, data)
-        return figures.set_markers(patch, best, selected, METRICS[view.metric].unit)
+        return figures.set_markers(
+            patch, star, selected, METRICS[view.metric].unit, self._no_arc_note(star, view, grid)
+        )
 
     def preview_figure(self, view: ViewState, case: Case, dep_days, arr_days) -> go.Figure:
         """A coarse window map for slider positions being dragged (InputError if refused)."""
         from solver.window.grid import compute_window
 
-        changes = {}
+        changes: dict[str, Any] = {}
         for (start_key, end_key, step_key), days in (
             (
                 ("window.departure_start", "window.departure_end", "window.departure_step_days"),
@@ -430,17 +429,36 @@ class DashboardModel:
             span = max(float(days[1]) - float(days[0]), 1e-3)
             changes[start_key] = unix_days_to_iso(days[0])
             changes[end_key] = unix_days_to_iso(days[1])
-            changes[step_key] = max(span / (PREVIEW_MAX_POINTS - 1), 1.0 / 1440.0)
+            changes[step_key] = max(span / (PREVIEW_MAX_POINTS - 1), MINUTE_DAYS)
         coarse = case.with_changes(**changes)
+        from .case_catalogue import check_dates
+
+        check_dates(coarse)
         grid = compute_window(coarse)
         data = map_data(
             grid, view.metric, view.arcs, preview=True, title=self.map_title(view, case)
         )
         return figures.window_map_figure(data)
 
-    def selection_figures(self, view: ViewState, case: Case, grid: WindowGrid | None):
-        """(arc view, family chart, details sections, selection) for a view."""
-        sel = self.selection(view, case, grid)
+    def closest_figures(self, view: ViewState, case: Case, grid: WindowGrid, arc: Arc):
+        """(arc view, family chart, details sections) of an arc the limits exclude."""
+        bodies = self.bodies(case)
+        arcs = solve_cell(case, arc.departure_jd_tdb, arc.arrival_jd_tdb, bodies)
+        chosen = next(
+            (a for a in arcs if (a.revolutions, a.branch) == (arc.revolutions, arc.branch)), None
+        )
+        if chosen is None:
+            return None
+        scene = arc_scene(case, chosen, bodies)
+        fam = family_data(case, arcs, chosen, bodies)
+        details = arc_details(case, chosen, grid.provenance, bodies)
+        return figures.arc_view_figure(scene), figures.family_chart_figure(fam), details
+
+    def selection_figures(
+        self, view: ViewState, case: Case, grid: WindowGrid | None, best: str = "node"
+    ):
+        """(arc view, family chart, details sections, selection) for a view, or None."""
+        sel = self.selection(view, case, grid, best)
         if sel is None:
             return None
         bodies = self.bodies(case)
@@ -458,3 +476,6 @@ class DashboardModel:
             details,
             sel,
         )
+
+
+__all__ = ["Selection", "WindowService"]

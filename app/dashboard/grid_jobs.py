@@ -1,0 +1,470 @@
+"""Solved grids for the dashboard: an in-process LRU in front of the disk cache, and fair
+background jobs that make them.
+
+A grid request is answered from memory when the grid was solved recently (a metric change or a
+second viewer costs no solving); otherwise a job is queued. The callback that asked returns at
+once with a :class:`Ticket` (what the page shows: queued, solving with its progress, ready,
+failed, cancelled, lost) and the page polls the ticket.
+
+Fairness, as a shared server needs it:
+
+* **A pool with a queue, in two lanes.** Grids up to :data:`LARGE_JOB_CELL_ARCS` cell-arcs go to
+  the small lane (two workers), larger ones to the large lane (one worker), so a grid just under
+  the cap never holds up another viewer's small grid.
+* **Jobs are shared and owned by their waiters.** Every viewer (one browser tab) that asks for a
+  grid becomes one of its job's waiters. A viewer may cancel only its own wait; the job stops
+  when nobody waits for it any more. A viewer that moves on to another grid stops waiting for
+  the previous one, and a waiter that stops polling (a closed tab) is dropped after
+  :data:`LEASE_S` seconds.
+* **Limits per client.** One address may keep at most :data:`MAX_JOBS_PER_ADDRESS` jobs of its
+  own in the queue at once, and the queue holds at most :data:`MAX_QUEUED_JOBS`; beyond that the
+  request is refused with a message (joining a job that already exists is always allowed).
+
+Jobs never vanish silently: a job whose worker raised, or whose grid was dropped from memory
+before anyone drew it, reports so (``failed`` or ``lost``), and the page restarts or reports it.
+The disk cache is written after the grid is in memory, on a writer thread of its own, so a large
+grid's file write neither delays its map nor holds a lane.
+
+Why threads and not a task queue: the grid engine spends its time in numpy and compiled kernels
+that let other threads run, one server process serves a team, and threads need no broker, no
+extra process and no extra dependency. Cancellation is heard between chunks of departure dates,
+when the engine reports progress.
+"""
+
+from __future__ import annotations
+
+import functools
+import logging
+import threading
+import time
+from collections import OrderedDict
+from collections.abc import Callable
+from concurrent.futures import Future, ThreadPoolExecutor
+from dataclasses import dataclass, field
+
+from solver.errors import InputError
+from solver.files.cache import GridCache
+from solver.window.case import Case
+from solver.window.grid import Cancelled, WindowGrid, check_grid_size, compute_window
+from solver.window.provenance import window_cache_key
+
+from .slowdown import Slowdown
+
+DEFAULT_MEMORY_GRIDS = 8
+DEFAULT_MEMORY_BYTES = 2 * 1024**3
+"""In-memory LRU bounds: a 1000 x 1000 single-revolution grid holds about 0.15 GB of arrays, a
+five-slot one about 0.7 GB, so 2 GiB keeps a few large grids and many small ones."""
+LARGE_JOB_CELL_ARCS = 2_000_000
+"""Grids above this many cell-arcs (a few seconds of solving) go to the large lane."""
+SMALL_LANE_WORKERS = 2
+LARGE_LANE_WORKERS = 1
+LEASE_S = 30.0
+"""A waiter that has not polled for this long is dropped (the page polls every 2 s at most)."""
+STALL_S = 120.0
+"""A running job that has reported no progress for this long is reported as stalled."""
+MAX_JOBS_PER_ADDRESS = 8
+MAX_QUEUED_JOBS = 24
+_FINISHED_JOBS_KEPT = 64
+
+_LOG = logging.getLogger(__name__)
+
+PHASES = ("ready", "queued", "running", "failed", "cancelled", "lost")
+
+
+@dataclass(frozen=True)
+class Ticket:
+    """What a viewer is told about a grid: JSON-able, no live objects.
+
+    Attributes
+    ----------
+    key : str
+        The grid's cache key (``window_cache_key``).
+    phase : {"ready", "queued", "running", "failed", "cancelled", "lost"}
+        ``lost``: the job is unknown to the server or its grid was dropped from memory before it
+        was drawn; ask again.
+    fraction : float
+        Departure rows solved, 0 to 1.
+    elapsed_s : float
+        Seconds since the job was queued.
+    ahead : int
+        Jobs ahead of it in its lane's queue (0 when running).
+    stalled : bool
+        Running, with no progress for :data:`STALL_S` seconds.
+    message : str
+        Why a job failed or was cancelled.
+    """
+
+    key: str
+    phase: str
+    fraction: float = 0.0
+    elapsed_s: float = 0.0
+    ahead: int = 0
+    stalled: bool = False
+    message: str = ""
+
+
+@dataclass
+class _Job:
+    key: str
+    case: Case
+    cell_arcs: int
+    lane: str
+    address: str
+    state: str = "queued"  # queued, running, done, failed, cancelled
+    done_rows: int = 0
+    total_rows: int = 0
+    message: str = ""
+    queued_at: float = 0.0
+    progress_at: float = 0.0
+    finished_at: float | None = None
+    waiters: dict[str, float] = field(default_factory=dict)  # viewer -> last seen (monotonic)
+    cancel_event: threading.Event = field(default_factory=threading.Event)
+    done_event: threading.Event = field(default_factory=threading.Event)
+
+    @property
+    def fraction(self) -> float:
+        return self.done_rows / self.total_rows if self.total_rows else 0.0
+
+    @property
+    def active(self) -> bool:
+        return self.state in ("queued", "running")
+
+
+@functools.lru_cache(maxsize=1024)
+def grid_key(case: Case) -> str:
+    """The grid's cache key (``window_cache_key``: a SHA-256 of the normalized case), computed
+    once per case (cases are frozen and hashable; a view's case is the same object each time)."""
+    return window_cache_key(case)
+
+
+def grid_nbytes(grid: WindowGrid) -> int:
+    return sum(a.nbytes for a in grid.to_arrays().values())
+
+
+class GridJobs:
+    """Solved grids by cache key: memory LRU, disk cache, fair background jobs.
+
+    Parameters
+    ----------
+    cache : GridCache or None
+        Disk cache read and written by the jobs (None: memory only).
+    small_workers, large_workers : int
+        Workers of each lane.
+    large_cell_arcs : int
+        Grids above this many cell-arcs go to the large lane.
+    max_grids, max_bytes : int
+        Bounds of the in-memory LRU.
+    compute : callable, optional
+        The grid engine (``compute_window``); tests pass a slow or failing stand-in.
+    slowdown : Slowdown, optional
+        Test-only delay added to every job (default: from ``ARCWINDOW_TEST_SLOWDOWN``).
+    clock : callable, optional
+        Monotonic seconds (tests pass a fake clock to age leases).
+    """
+
+    def __init__(
+        self,
+        cache: GridCache | None,
+        *,
+        small_workers: int = SMALL_LANE_WORKERS,
+        large_workers: int = LARGE_LANE_WORKERS,
+        large_cell_arcs: int = LARGE_JOB_CELL_ARCS,
+        max_grids: int = DEFAULT_MEMORY_GRIDS,
+        max_bytes: int = DEFAULT_MEMORY_BYTES,
+        compute: Callable[..., WindowGrid] = compute_window,
+        slowdown: Slowdown | None = None,
+        clock: Callable[[], float] = time.monotonic,
+        lease_s: float = LEASE_S,
+        max_per_address: int = MAX_JOBS_PER_ADDRESS,
+        max_queued: int = MAX_QUEUED_JOBS,
+    ) -> None:
+        self.cache = cache
+        self.max_grids = max_grids
+        self.max_bytes = max_bytes
+        self.large_cell_arcs = large_cell_arcs
+        self.lease_s = lease_s
+        self.max_per_address = max_per_address
+        self.max_queued = max_queued
+        self.slowdown = slowdown or Slowdown.from_environment()
+        self._compute = compute
+        self._clock = clock
+        self._lock = threading.Lock()
+        self._grids: OrderedDict[str, tuple[WindowGrid, int]] = OrderedDict()
+        self._jobs: OrderedDict[str, _Job] = OrderedDict()
+        self._interest: dict[str, str] = {}  # viewer -> key of the grid it waits for
+        self._lanes = {
+            "small": ThreadPoolExecutor(small_workers, thread_name_prefix="arcwindow-grid"),
+            "large": ThreadPoolExecutor(large_workers, thread_name_prefix="arcwindow-large"),
+        }
+        self._writer = ThreadPoolExecutor(1, thread_name_prefix="arcwindow-cache-write")
+
+    # -- memory ----------------------------------------------------------------------------
+    def memory_get(self, key: str) -> WindowGrid | None:
+        with self._lock:
+            hit = self._grids.get(key)
+            if hit is None:
+                return None
+            self._grids.move_to_end(key)
+            return hit[0]
+
+    def memory_put(self, key: str, grid: WindowGrid) -> None:
+        size = grid_nbytes(grid)
+        with self._lock:
+            self._grids[key] = (grid, size)
+            self._grids.move_to_end(key)
+            total = sum(s for _, s in self._grids.values())
+            while len(self._grids) > 1 and (
+                len(self._grids) > self.max_grids or total > self.max_bytes
+            ):
+                _, (_, dropped) = self._grids.popitem(last=False)
+                total -= dropped
+
+    # -- requests --------------------------------------------------------------------------
+    def request(self, case: Case, viewer: str, address: str = "") -> Ticket:
+        """The grid of ``case`` for ``viewer``: ready, or the (new or shared) job that makes it.
+
+        The viewer stops waiting for any other grid. Raises InputError when the grid is over the
+        cell-arc cap, or when this address or the whole queue already holds too many jobs.
+        """
+        key = grid_key(case)
+        now = self._clock()
+        with self._lock:
+            self._expire_leases(now)
+            self._leave(viewer, keep=key)
+            if key in self._grids:
+                self._grids.move_to_end(key)
+                self._interest.pop(viewer, None)
+                return Ticket(key, "ready")
+            job = self._jobs.get(key)
+            if job is not None and job.active:
+                job.waiters[viewer] = now
+                self._interest[viewer] = key
+                return self._ticket(job, now)
+        n_dep, n_arr, slots = check_grid_size(case)  # arithmetic: no date axis is built
+        cell_arcs = n_dep * n_arr * slots
+        with self._lock:
+            job = self._jobs.get(key)
+            if job is not None and job.active:  # another viewer started it meanwhile
+                job.waiters[viewer] = now
+                self._interest[viewer] = key
+                return self._ticket(job, now)
+            queued = [j for j in self._jobs.values() if j.active]
+            if len(queued) >= self.max_queued:
+                raise InputError(
+                    "grid",
+                    f"{len(queued)} grids being solved",
+                    f"at most {self.max_queued} at once on this server; try again in a moment",
+                )
+            mine = [j for j in queued if address and j.address == address]
+            if len(mine) >= self.max_per_address:
+                raise InputError(
+                    "grid",
+                    f"{len(mine)} grids being solved for this address",
+                    f"at most {self.max_per_address} at once per address; cancel one or wait",
+                )
+            lane = "large" if cell_arcs > self.large_cell_arcs else "small"
+            job = _Job(
+                key=key,
+                case=case,
+                cell_arcs=cell_arcs,
+                lane=lane,
+                address=address,
+                queued_at=now,
+                progress_at=now,
+            )
+            job.waiters[viewer] = now
+            self._interest[viewer] = key
+            self._jobs[key] = job
+            self._jobs.move_to_end(key)
+            self._trim_jobs()
+        future = self._lanes[lane].submit(self._run, job)
+        future.add_done_callback(lambda f, job=job: self._worker_ended(job, f))
+        return self._ticket(job, now)
+
+    def ticket(self, key: str, viewer: str) -> Ticket:
+        """The state of grid ``key`` for ``viewer`` (refreshes the viewer's wait)."""
+        now = self._clock()
+        with self._lock:
+            self._expire_leases(now)
+            if key in self._grids:
+                return Ticket(key, "ready")
+            job = self._jobs.get(key)
+            if job is None:
+                return Ticket(key, "lost", message="The server no longer knows this grid job.")
+            if job.active and viewer in job.waiters:
+                job.waiters[viewer] = now
+            if job.state == "done":  # solved, then dropped from memory before it was drawn
+                return Ticket(key, "lost", message="The grid was dropped from memory.")
+            return self._ticket(job, now)
+
+    def cancel(self, key: str, viewer: str) -> bool:
+        """Stop ``viewer`` waiting for grid ``key``; the job stops if nobody else waits.
+
+        Returns False when the viewer was not waiting for it (another viewer's job is never
+        touched).
+        """
+        with self._lock:
+            job = self._jobs.get(key)
+            if job is None or not job.active or viewer not in job.waiters:
+                return False
+            del job.waiters[viewer]
+            if self._interest.get(viewer) == key:
+                del self._interest[viewer]
+            if not job.waiters:
+                job.cancel_event.set()
+            return True
+
+    def release(self, viewer: str) -> None:
+        """``viewer`` waits for nothing any more (its tab closed or moved to a ready grid)."""
+        with self._lock:
+            self._leave(viewer, keep=None)
+
+    def waiters(self, key: str) -> int:
+        with self._lock:
+            job = self._jobs.get(key)
+            return len(job.waiters) if job is not None and job.active else 0
+
+    def wait(self, key: str, timeout_s: float) -> WindowGrid | None:
+        """Wait up to ``timeout_s`` for grid ``key``; the grid if it is ready by then."""
+        with self._lock:
+            job = self._jobs.get(key)
+        if job is not None and job.active:
+            job.done_event.wait(timeout_s)
+        return self.memory_get(key)
+
+    def active_jobs(self) -> int:
+        with self._lock:
+            return sum(1 for j in self._jobs.values() if j.active)
+
+    # -- internals (callers hold the lock) -------------------------------------------------
+    def _ticket(self, job: _Job, now: float) -> Ticket:
+        ahead = 0
+        if job.state == "queued":
+            ahead = sum(
+                1
+                for j in self._jobs.values()
+                if j.lane == job.lane and j.state == "queued" and j.queued_at < job.queued_at
+            )
+        phase = {"done": "ready"}.get(job.state, job.state)
+        return Ticket(
+            key=job.key,
+            phase=phase,
+            fraction=round(job.fraction, 4),
+            elapsed_s=round((job.finished_at or now) - job.queued_at, 2),
+            ahead=ahead,
+            stalled=job.state == "running" and now - job.progress_at > STALL_S,
+            message=job.message,
+        )
+
+    def _leave(self, viewer: str, keep: str | None) -> None:
+        previous = self._interest.get(viewer)
+        if previous is None or previous == keep:
+            return
+        del self._interest[viewer]
+        job = self._jobs.get(previous)
+        if job is not None and job.active:
+            job.waiters.pop(viewer, None)
+            if not job.waiters:
+                job.cancel_event.set()
+
+    def _expire_leases(self, now: float) -> None:
+        for job in self._jobs.values():
+            if not job.active:
+                continue
+            stale = [v for v, seen in job.waiters.items() if now - seen > self.lease_s]
+            for viewer in stale:
+                del job.waiters[viewer]
+                if self._interest.get(viewer) == job.key:
+                    del self._interest[viewer]
+            if stale and not job.waiters:
+                job.cancel_event.set()
+
+    def _trim_jobs(self) -> None:
+        finished = [k for k, j in self._jobs.items() if not j.active]
+        for k in finished[: max(0, len(finished) - _FINISHED_JOBS_KEPT)]:
+            del self._jobs[k]
+
+    # -- the worker ------------------------------------------------------------------------
+    def _run(self, job: _Job) -> None:
+        with self._lock:
+            if job.cancel_event.is_set():  # nobody waits for it any more: do not start
+                self._finish(job, "cancelled", "Nobody waits for this grid any more.")
+                return
+            job.state = "running"
+            job.progress_at = self._clock()
+
+        def check() -> None:
+            job.progress_at = self._clock()
+            if job.cancel_event.is_set():
+                raise Cancelled()
+
+        def progress(done: int, total: int) -> None:
+            job.done_rows, job.total_rows = done, total
+            check()
+
+        grid = None
+        try:
+            self.slowdown.grid_pause(check)
+            grid = self._cached(job.case, job.key)
+            if grid is None:
+                grid = self._compute(job.case, cache=None, progress=progress)
+        except Cancelled:
+            self._finish(job, "cancelled", "Computation cancelled.")
+        except InputError as exc:
+            self._finish(job, "failed", str(exc))
+        except Exception as exc:  # a failed job must be reported, not lost with its thread
+            _LOG.exception("grid job failed")
+            self._finish(job, "failed", f"Grid computation failed: {exc!r}"[:300])
+        else:
+            self.memory_put(job.key, grid)
+            self._finish(job, "done", "read from the disk cache" if grid.from_cache else "computed")
+            if self.cache is not None and not grid.from_cache:
+                self._writer.submit(self._store, job.key, grid)
+
+    def _cached(self, case: Case, key: str) -> WindowGrid | None:
+        if self.cache is None:
+            return None
+        hit = self.cache.get(key)
+        return None if hit is None else WindowGrid.from_arrays(case, hit.arrays, hit.metadata)
+
+    def _store(self, key: str, grid: WindowGrid) -> None:
+        try:
+            self.cache.put(key, grid.to_arrays(), grid.provenance)  # type: ignore[union-attr]
+        except OSError:
+            _LOG.warning("could not write grid %s to the disk cache", key[:12])
+
+    def _finish(self, job: _Job, state: str, message: str) -> None:
+        if job.finished_at is not None:
+            return
+        job.state, job.message = state, message
+        if state == "done":
+            job.done_rows = job.total_rows = max(job.total_rows, 1)
+        job.finished_at = self._clock()
+        job.done_event.set()
+
+    def _worker_ended(self, job: _Job, future: Future) -> None:
+        """A worker that ended without settling its job (it raised past every handler, or the
+        pool was shut down before it ran) leaves the job failed, never running for ever."""
+        if job.finished_at is None:
+            error = future.exception() if not future.cancelled() else None
+            self._finish(job, "failed", f"The grid worker stopped: {error!r}"[:300])
+
+    def shutdown(self) -> None:
+        with self._lock:
+            for job in self._jobs.values():
+                job.cancel_event.set()
+        for pool in (*self._lanes.values(), self._writer):
+            pool.shutdown(wait=False, cancel_futures=True)
+
+
+__all__ = [
+    "LARGE_JOB_CELL_ARCS",
+    "LEASE_S",
+    "MAX_JOBS_PER_ADDRESS",
+    "PHASES",
+    "STALL_S",
+    "GridJobs",
+    "Ticket",
+    "grid_key",
+    "grid_nbytes",
+]

@@ -1,0 +1,73 @@
+"""A test-only setting that slows the server's background work down on purpose.
+
+Races between a viewer's actions and the server's background work (a grid being solved, a best
+arc being refined) decide what a page shows; on a fast machine they happen only by chance. The
+browser tests and the dashboard's soak benchmark set ``ARCWINDOW_TEST_SLOWDOWN`` on the server
+they start so that every grid job and every refinement takes seconds, and each race happens on
+every run::
+
+    ARCWINDOW_TEST_SLOWDOWN="grid=3,refine=4" arcwindow serve --port 8123
+
+``grid`` seconds are added to every grid job (spent in ten steps before the solve, so a cancel
+is heard between steps); ``refine`` seconds are added to
+every refinement of a best arc. Unset (the default), nothing is slowed.
+"""
+
+from __future__ import annotations
+
+import os
+import threading
+from dataclasses import dataclass
+
+from solver.errors import InputError
+
+ENV_SLOWDOWN = "ARCWINDOW_TEST_SLOWDOWN"
+_STEPS = 10
+
+
+@dataclass(frozen=True)
+class Slowdown:
+    """Seconds added to each grid job and each refinement (0: none)."""
+
+    grid_s: float = 0.0
+    refine_s: float = 0.0
+
+    @classmethod
+    def from_text(cls, text: str | None) -> Slowdown:
+        """Read ``"grid=3,refine=4"`` (either part may be left out)."""
+        values = {"grid": 0.0, "refine": 0.0}
+        for part in (text or "").split(","):
+            if not part.strip():
+                continue
+            name, sep, value = part.partition("=")
+            name = name.strip()
+            try:
+                seconds = float(value)
+            except ValueError:
+                seconds = -1.0
+            if not sep or name not in values or not 0.0 <= seconds <= 600.0:
+                raise InputError(ENV_SLOWDOWN, text, "grid=SECONDS,refine=SECONDS (0 to 600)")
+            values[name] = seconds
+        return cls(grid_s=values["grid"], refine_s=values["refine"])
+
+    @classmethod
+    def from_environment(cls) -> Slowdown:
+        return cls.from_text(os.environ.get(ENV_SLOWDOWN))
+
+    def grid_pause(self, check) -> None:
+        """Spend ``grid_s`` in ten steps, calling ``check()`` after each.
+
+        ``check`` may raise (a cancelled job's check does) to stop early.
+        """
+        if self.grid_s <= 0:
+            return
+        for _ in range(_STEPS):
+            threading.Event().wait(self.grid_s / _STEPS)
+            check()
+
+    def refine_pause(self) -> None:
+        if self.refine_s > 0:
+            threading.Event().wait(self.refine_s)
+
+
+__all__ = ["ENV_SLOWDOWN", "Slowdown"]
