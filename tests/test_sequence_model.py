@@ -162,6 +162,13 @@ def test_without_compiled_tables_the_search_scores_through_the_numpy_stages():
     bounds = np.array(model.spec.variable_bounds(case))
     x = bounds[:, 0] + 0.5 * np.ptp(bounds, 1)
     assert np.isfinite(model.score(x[None, :])).all()
+    # A limit on a quantity the pass does not compute (a one-leg case's delivered mass) too.
+    massed = load("orrery_jupiter_flyby")
+    assert massed.limits.delivered_mass_min_kg is not None
+    model = SequenceModel(massed, sequence_case_from_case(massed).sequences[0])
+    assert model.fused() is None
+    x = np.array([[massed.departure_start_jd_tdb + 10.0, 800.0]])
+    assert model.score(x).shape == (1,)
 
 
 def test_the_best_arc_path_is_the_brute_force_best():
