@@ -359,8 +359,7 @@ def test_grid_search_flies_a_resonant_leg_on_its_resonance_circle():
     sequence_case = _sample("harrow_jupiter_veega")
     base = sequence_case.sequences[0]
     legs = tuple(
-        dataclasses.replace(leg, tof_step_days=5.0 if leg.resonance else 20.0)
-        for leg in base.legs
+        dataclasses.replace(leg, tof_step_days=5.0 if leg.resonance else 20.0) for leg in base.legs
     )
     spec = dataclasses.replace(base, legs=legs, events=())
     case = dataclasses.replace(
