@@ -273,7 +273,7 @@ def test_mass_budget_follows_the_vehicle_table_and_the_rocket_equation():
     rows = detail_rows(sections)
     budget = {label: row for (heading, label), row in rows.items() if heading == "Mass budget"}
     assert budget["launch vehicle"].value == "Heron M"
-    assert number(budget["vehicle capability"].value) == pytest.approx(capability, abs=0.051)
+    assert number(budget["capability"].value) == pytest.approx(capability, abs=0.051)
     assert number(budget["injected mass"].value) == pytest.approx(injected, abs=0.051)
     assert number(budget["arrival propellant"].value) == pytest.approx(
         injected - delivered, abs=0.051

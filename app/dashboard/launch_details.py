@@ -64,8 +64,8 @@ def mass_sections(case: Case, arc: Arc, bodies: CaseBodies) -> list[Section]:
     if budget["vehicle"] is not None:
         rows += [
             DetailRow("launch vehicle", budget["vehicle"]),
-            DetailRow("curve read at C3", fmt(budget["vehicle_c3_km2_s2"], 3), "km²/s²"),
-            DetailRow("vehicle capability", _kg(budget["vehicle_capability_kg"]), "kg"),
+            DetailRow("read at C3", fmt(budget["vehicle_c3_km2_s2"], 3), "km²/s²"),
+            DetailRow("capability", _kg(budget["vehicle_capability_kg"]), "kg"),
         ]
     if budget["wet_mass_max_kg"] is not None:
         rows.append(DetailRow("wet mass limit", _kg(budget["wet_mass_max_kg"]), "kg"))
@@ -127,8 +127,8 @@ def launch_window_sections(case: Case, arc: Arc, bodies: CaseBodies) -> list[Sec
         DetailRow("site", site["name"]),
         DetailRow("latitude", fmt(site["latitude_deg"], 2), "deg"),
         DetailRow("azimuths", f"{site['azimuth_min_deg']:g} to {site['azimuth_max_deg']:g}", "deg"),
-        DetailRow("inclinations reached", f"{low:.2f} to {high:.2f}", "deg"),
-        DetailRow("largest |DLA| reached", fmt(report["max_reachable_dla_deg"], 2), "deg"),
+        DetailRow("inclinations", f"{low:.2f} to {high:.2f}", "deg"),
+        DetailRow("largest |DLA|", fmt(report["max_reachable_dla_deg"], 2), "deg"),
     ]
     if window is None:
         rows.append(DetailRow("window", f"none: {report['reason']}"))
