@@ -12,8 +12,12 @@ the survey results, as pages of one Dash app.
 * ``display_data``: solver results to display arrays; ``figures``: pure figure builders;
   ``theme``: colours and fonts;
 * ``window_service``: the above joined for the window page's callbacks;
-* ``pages``: ``window_page`` (``/``, layout in ``window_layout``) and ``survey_page``
-  (``/survey``);
+* ``pages``: ``window_page`` (``/``, layout in ``window_layout``), ``sequence_page``
+  (``/sequence``, layout in ``sequence_layout``) and ``survey_page`` (``/survey``);
+* the sequence page's own: ``sequence_view`` (its view, URL and settings), ``search_loop``
+  (its live loop, pure), ``sequence_service`` (searches in the job pool, candidates, leg maps,
+  figures, shortlist, downloads), ``sequence_display`` and ``sequence_figures`` (its display
+  data and pure figure builders);
 * ``slowdown``: the test-only setting that slows grid jobs and refinement down.
 """
 
@@ -67,7 +71,8 @@ def create_app(
     dash.Dash
         Serve ``app.server`` (a Flask WSGI app) with a production WSGI server.
     """
-    from .pages import survey_page, window_page
+    from .pages import sequence_page, survey_page, window_page
+    from .sequence_service import SequenceService
 
     if service is None:
         service = WindowService(Settings.resolve(cache_dir, data_dir, cases_dir, surveys_dir))
@@ -83,7 +88,7 @@ def create_app(
         # compressed they cross a team's network a few times faster.
         compress=True,
     )
-    for page in (window_page, survey_page):
+    for page in (window_page, sequence_page, survey_page):
         dash.register_page(
             page.__name__,
             path=page.PATH,
@@ -94,5 +99,8 @@ def create_app(
     app.layout = _shell
     window_page.register_callbacks(app, service)
     survey_page.register_callbacks(app, service.shelf)
+    sequences = SequenceService(service)
+    sequence_page.register_callbacks(app, sequences)
+    app.server.config["ARCWINDOW_SEQUENCES"] = sequences
     app.server.config["ARCWINDOW_SERVICE"] = service
     return app
