@@ -34,9 +34,14 @@ SUBCOMMANDS: dict[str, tuple[str, str]] = {
     "best": ("app.commands.best_cmd", "the best arc within limits, refined to the minute"),
     "period": (
         "app.commands.period_cmd",
-        "place a launch period of L days to minimize its largest C3",
+        "place a launch period of L days to minimize its largest C3 (or maximize its smallest "
+        "delivered mass)",
     ),
     "arc": ("app.commands.arc_cmd", "one arc between two dates (OEM and JSON exports)"),
+    "launch": (
+        "app.commands.launch_cmd",
+        "the daily launch window of a departure date (UTC open/close, azimuths, coast)",
+    ),
     "survey": ("app.commands.survey_cmd", "rank many targets by their best arcs over years (Dask)"),
     "sequence": (
         "app.commands.sequence_cmd",

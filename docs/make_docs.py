@@ -48,6 +48,36 @@ ELEMENT_FIELDS = (
     ),
 )
 
+# Launch vehicles ([[vehicles]]) and propulsion systems ([[propulsion]]): name, unit, what it is.
+VEHICLE_FIELDS = (
+    ("name", "", "Name of the vehicle, unique in the case (required)."),
+    (
+        "performance",
+        "",
+        "Array of at least two rows `{ c3_km2_s2 = ..., mass_kg = ... }`: C3 strictly "
+        "increasing, mass >= 0 and never increasing (required). Read with monotone cubic (PCHIP) "
+        "interpolation; no mass outside the table's C3 range (never extrapolated).",
+    ),
+    ("performance[].c3_km2_s2", "km²/s²", "Launch energy of the row."),
+    ("performance[].mass_kg", "kg", "Mass the vehicle injects at that C3."),
+    ("adapter_kg", "kg", "Deducted from the curve's mass (payload adapter); default 0."),
+    (
+        "margin_fraction",
+        "",
+        "Fraction of the curve's mass held back, 0 to 0.99, applied before the adapter; default 0.",
+    ),
+)
+PROPULSION_FIELDS = (
+    ("name", "", "Name of the system (required)."),
+    ("isp_s", "s", "Specific impulse, above 0 (required)."),
+    (
+        "burns",
+        "",
+        'The burns it makes: "departure" (from the parking orbit, instead of the launch '
+        'vehicle; or leaving a body without mass) and/or "arrival"; each burn by one system.',
+    ),
+)
+
 
 def _cell(text: object) -> str:
     return str(text).replace("|", "\\|").replace("\n", " ")
@@ -64,7 +94,8 @@ def case_format() -> str:
         "     python docs/make_docs.py. -->",
         "",
         "A case is a TOML file: the bodies, the date windows, the transfer, the orbits at each",
-        "end, the limits and, optionally, bodies of your own given by orbital elements. Unknown",
+        "end, the limits and, optionally, bodies of your own given by orbital elements, launch",
+        "vehicles, a launch site, the spacecraft and its propulsion (mass and launch). Unknown",
         "keys are refused, so a misspelt limit is never silently ignored; every refusal names the",
         "key, the value and what is accepted. The sample cases in `sample_cases/` are invented",
         "missions.",
@@ -113,6 +144,30 @@ def case_format() -> str:
     lines += [
         f"| `{name}` | {_cell(unit)} | {_cell(what)} |" for name, unit, what in ELEMENT_FIELDS
     ]
+    for title, intro, fields in (
+        (
+            "[[vehicles]]",
+            "Any number of launch vehicles, compared side by side; the mass metrics use "
+            "`spacecraft.vehicle`, else the first. Only for departures from a body with mass.",
+            VEHICLE_FIELDS,
+        ),
+        (
+            "[[propulsion]]",
+            "The spacecraft's propulsion systems and the burns each makes (rocket equation per "
+            "burn). A burn no system makes gives no delivered mass, unless its Δv is 0.",
+            PROPULSION_FIELDS,
+        ),
+    ):
+        lines += [
+            "",
+            f"## {title}",
+            "",
+            intro,
+            "",
+            "| key | unit | what it is |",
+            "| --- | --- | --- |",
+        ]
+        lines += [f"| `{name}` | {_cell(unit)} | {_cell(what)} |" for name, unit, what in fields]
     example = (ROOT / "sample_cases" / "vesper_venus_orbiter.toml").read_text().strip()
     lines += ["", "## Example", "", "```toml", example, "```", ""]
     lines += sequence_sections()

@@ -113,3 +113,16 @@ RADIUS_MEAN_KM: dict[str, float] = {
     "uranus": 25_362.0,
     "neptune": 24_622.0,  # [MEMORY]
 }
+
+# ---------------------------------------------------------------------------------------------
+# Mass and launch
+# ---------------------------------------------------------------------------------------------
+STANDARD_GRAVITY_M_S2 = 9.80665
+"""Standard acceleration of gravity g0, m/s², exact by definition (3rd CGPM, 1901); the g0 of
+the rocket equation Δv = Isp·g0·ln(m0/m1) [MEMORY, docs/references.md 11.1]."""
+STANDARD_GRAVITY_KM_S2 = STANDARD_GRAVITY_M_S2 / 1000.0
+
+EARTH_ROTATION_TURNS_PER_UT1_DAY = 1.00273781191135448
+"""Rate of the Earth Rotation Angle, turns per UT1 day (IAU 2000 Resolution B1.8; the rate in
+ERFA's ``era00``) [MEMORY; checked against ERFA era00 by tests/test_daily_window.py;
+docs/references.md 11.4]."""

@@ -60,3 +60,50 @@ def describe(code: int) -> str:
         return Reason(int(code)).description
     except ValueError:
         return "unknown reason"
+
+
+class MassReason(IntEnum):
+    """Why an arc that exists has no mass numbers (injected, propellant, delivered), as ``int8``.
+
+    Mass is missing for a reason of the case (no vehicle and no wet mass given), of the vehicle
+    (the C3 lies outside its performance table, which is never extrapolated) or of the
+    spacecraft (a burn that no propulsion system makes).
+    """
+
+    OK = 0
+    NO_ARC = 1
+    NO_MASS_GIVEN = 2
+    C3_BELOW_TABLE = 3
+    C3_ABOVE_TABLE = 4
+    NOTHING_LEFT_AFTER_DEDUCTIONS = 5
+    NO_DEPARTURE_PROPULSION = 6
+    NO_ARRIVAL_PROPULSION = 7
+
+    @property
+    def description(self) -> str:
+        """Plain-language explanation, as shown in exports and details."""
+        return _MASS_DESCRIPTIONS[self]
+
+
+_MASS_DESCRIPTIONS = {
+    MassReason.OK: "mass computed",
+    MassReason.NO_ARC: "no arc",
+    MassReason.NO_MASS_GIVEN: (
+        "no spacecraft mass: the case gives neither [[vehicles]] nor spacecraft.wet_mass_max_kg"
+    ),
+    MassReason.C3_BELOW_TABLE: "C3 below the launch vehicle's performance table (not extrapolated)",
+    MassReason.C3_ABOVE_TABLE: "C3 above the launch vehicle's performance table (not extrapolated)",
+    MassReason.NOTHING_LEFT_AFTER_DEDUCTIONS: (
+        "the vehicle lifts nothing at this C3 after its adapter and margin deductions"
+    ),
+    MassReason.NO_DEPARTURE_PROPULSION: "no propulsion system makes the departure burn",
+    MassReason.NO_ARRIVAL_PROPULSION: "no propulsion system makes the arrival burn",
+}
+
+
+def describe_mass(code: int) -> str:
+    """Description of an integer mass reason code (``"unknown reason"`` for foreign codes)."""
+    try:
+        return MassReason(int(code)).description
+    except ValueError:
+        return "unknown reason"

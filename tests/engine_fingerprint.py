@@ -57,7 +57,13 @@ def compute() -> dict[str, str]:
         out[f"{path.stem}.axes"] = _digest(
             np.concatenate([grid.departure_jd_tdb, grid.arrival_jd_tdb])
         )
-        for name in ("c3_km2_s2", "vinf_arrival_km_s", "dv_total_km_s", "dla_deg"):
+        for name in (
+            "c3_km2_s2",
+            "vinf_arrival_km_s",
+            "dv_total_km_s",
+            "dla_deg",
+            "delivered_mass_kg",
+        ):
             out[f"{path.stem}.{name}"] = _digest(grid.metric(name))
         out[f"{path.stem}.tof_days"] = _digest(grid.tof_days)
         out[f"{path.stem}.within"] = _digest(grid.within)

@@ -40,7 +40,7 @@ def test_no_module_of_the_engine_is_in_an_import_cycle() -> None:
 def test_each_subpackage_lists_its_public_api() -> None:
     import importlib
 
-    for name in ("mechanics", "ephemeris", "window", "sequence", "files", "survey"):
+    for name in ("mechanics", "ephemeris", "launch", "window", "sequence", "files", "survey"):
         package = importlib.import_module(f"solver.{name}")
         assert package.__all__, name
         for public in package.__all__:

@@ -41,6 +41,27 @@ def test_lambert_baseline_solves_the_same_problem():
         assert np.linalg.norm(v2 - sol.v2_km_s[i, 0]) <= 1e-9 * np.linalg.norm(v2)
 
 
+def test_quick_launch_section_reports_both_goals():
+    lines = run_sections(["launch"], size="quick")
+    assert [line.unit for line in lines] == ["s", "ms"]
+    for line in lines:
+        assert line.value > 0 and line.baseline_value and line.ratio and line.goal
+
+
+def test_launch_window_baseline_finds_the_same_windows():
+    """The sampled baseline must find the windows the closed form finds, or its ratio means
+    nothing: the day's minutes agree to the sampling step."""
+    from app.bench.launch_bench import sampled_window_minutes
+    from solver.launch.daily_window import daily_launch_window
+    from solver.launch.site import LaunchSite
+
+    site = LaunchSite("s", 28.5, -80.6, 35.0, 55.0)
+    for dla, rla in ((40.0, 200.0), (10.0, 120.0), (-20.0, 300.0)):
+        ours = daily_launch_window(site, 2462870.5, dla, rla, 3.0, mu_km3_s2=398600.4)
+        sampled = sampled_window_minutes(site, 2462870.5, dla, rla)
+        assert abs(ours.total_minutes - sampled) <= 4.0 / 60.0  # a second per opening end
+
+
 def test_sequence_bench_baseline_scores_the_same_candidates():
     """The loop baseline of the sequence section evaluates the same numbers as the batched
     call (the exact path against the compiled one), or its ratio means nothing."""
@@ -58,5 +79,19 @@ def test_sequence_bench_baseline_scores_the_same_candidates():
 def test_quick_sequence_evaluation_line_reports_a_ratio():
     from app.bench.sequence_bench import evaluation_lines
 
-    (line,) = evaluation_lines("quick")
+    line, against_stages = evaluation_lines("quick")
     assert line.value > 0 and line.baseline_value and line.ratio > 1
+    assert "load average" in line.notes and line.extra["load_average"] >= 0
+    assert against_stages.baseline_value and against_stages.ratio > 0
+
+
+def test_instruction_counts_are_read_from_one_callgrind_dump_per_phase(tmp_path):
+    """The counting run marks each phase with a sleep; callgrind writes one numbered dump per
+    mark. The parser takes them in order (without running valgrind here)."""
+    from app.bench.sequence_instructions import _part_number
+
+    names = ["callgrind.out", "callgrind.out.10", "callgrind.out.2", "callgrind.out.1"]
+    order = sorted((tmp_path / n for n in names), key=_part_number)
+    assert [p.name for p in order] == [
+        "callgrind.out.1", "callgrind.out.2", "callgrind.out.10", "callgrind.out"
+    ]  # fmt: skip

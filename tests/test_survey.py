@@ -23,6 +23,7 @@ from solver.ephemeris.element_input import element_body, read_element_csv
 from solver.ephemeris.mean_elements import TABLE_1
 from solver.ephemeris.timescales import utc_to_jd_tdb
 from solver.errors import InputError
+from solver.files.atomic import checksum_path
 from solver.survey.cluster import run_survey, start_local_cluster
 from solver.survey.results import (
     RESULT_COLUMNS,
@@ -283,9 +284,10 @@ def test_resume_computes_only_the_missing_chunks(serial, tmp_path):
     out = tmp_path / "results.parquet"
     folder = chunk_folder(out)
     folder.mkdir()
-    for chunk in plan.chunks:  # start from the serial run's finished chunks
+    for chunk in plan.chunks:  # start from the serial run's finished chunks (and checksums)
         source = chunk_path(chunk_folder(serial.out_path), chunk)
         chunk_path(folder, chunk).write_bytes(source.read_bytes())
+        checksum_path(chunk_path(folder, chunk)).write_bytes(checksum_path(source).read_bytes())
     deleted = [plan.chunks[1], plan.chunks[6]]
     for chunk in deleted:
         chunk_path(folder, chunk).unlink()

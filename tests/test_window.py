@@ -35,7 +35,7 @@ def vesper():
 # Cell by cell against astropy's ephemeris and a separately written Lambert solver
 
 
-def test_grid_agrees_with_astropy_and_independent_lambert(vesper):
+def test_grid_agrees_with_astropy_and_independent_lambert(vesper, validation):
     """Every sampled cell of the Vesper grid recomputed with astropy's built-in ephemeris
     (ERFA epv00 for the Earth, plan94 for Venus) and tests/reference_lambert.py.
 
@@ -60,6 +60,7 @@ def test_grid_agrees_with_astropy_and_independent_lambert(vesper):
     r_dep, v_dep = helio("earth", grid.departure_jd_tdb[rows])
     r_arr, v_arr = helio("venus", grid.arrival_jd_tdb[cols])
     checked = 0
+    worst_vinf = 0.0
     for a, i in enumerate(rows):
         for b, j in enumerate(cols):
             tof_s = (grid.arrival_jd_tdb[j] - grid.departure_jd_tdb[i]) * 86400.0
@@ -77,6 +78,11 @@ def test_grid_agrees_with_astropy_and_independent_lambert(vesper):
             tol_v = 2e-3 + 1e-4 * vd  # km/s
             assert ours["vinf_departure_km_s"] == pytest.approx(vd, abs=tol_v)
             assert ours["vinf_arrival_km_s"] == pytest.approx(va, abs=tol_v)
+            worst_vinf = max(
+                worst_vinf,
+                abs(ours["vinf_departure_km_s"] - vd),
+                abs(ours["vinf_arrival_km_s"] - va),
+            )
             assert ours["c3_km2_s2"] == pytest.approx(vd**2, abs=2 * vd * tol_v)
             tol_angle = math.degrees(tol_v / min(vd, va)) + 0.01
             dla = math.degrees(math.asin(vinf_d[2] / vd))
@@ -87,6 +93,16 @@ def test_grid_agrees_with_astropy_and_independent_lambert(vesper):
             )
             checked += 1
     assert checked > 100
+    validation.record(
+        f"Vesper grid, {checked} cells: departure and arrival v∞ against astropy's built-in "
+        "ephemeris and an independent universal-variable Lambert solver",
+        source="astropy (ERFA epv00, plan94) and tests/reference_lambert.py",
+        tag="independent library",
+        measured=worst_vinf,
+        tolerance=2e-3,
+        unit="km/s",
+        note="the tolerance follows plan94's error for Venus (2,400 km, 0.7 m/s over 2031)",
+    )
 
 
 def test_grid_cells_equal_single_arc_solutions(vesper):
@@ -128,7 +144,7 @@ tof_max_days = {tof_max}
 """)
 
 
-def test_venus_minimum_c3_against_handbook(reference_data):
+def test_venus_minimum_c3_against_handbook(reference_data, validation):
     """Lowest launch energy of each Earth-Venus opportunity against JPL Publication 82-43,
     Vol. I Part 1 (values [SECONDARY], see the data file for the tolerance's reasons)."""
     for row in _rows(reference_data, "venus_minimum_c3.csv"):
@@ -141,9 +157,18 @@ def test_venus_minimum_c3_against_handbook(reference_data):
             f"({100 * (ours / expected - 1):+.2f} %)"
         )
         assert ours == pytest.approx(expected, rel=float(row["tolerance_rel"])), row["opportunity"]
+        validation.record(
+            f"Lowest Earth-Venus C3 of the {row['opportunity']} opportunity",
+            source=row["source"],
+            tag=row["tag"],
+            measured=abs(ours / expected - 1.0),
+            tolerance=float(row["tolerance_rel"]),
+            unit="relative",
+            note=f"ours {ours:.3f}, handbook {expected:.3f} km²/s²",
+        )
 
 
-def test_venus_best_c3_dates_near_flown_missions(reference_data):
+def test_venus_best_c3_dates_near_flown_missions(reference_data, validation):
     """The minimum-C3 dates of two opportunities lie near the launch and arrival dates of
     missions that flew them (dates [MEMORY]; see the data file)."""
     for row in _rows(reference_data, "venus_mission_dates.csv"):
@@ -154,9 +179,17 @@ def test_venus_best_c3_dates_near_flown_missions(reference_data):
         tol = float(row["tolerance_days"])
         assert abs(arc.departure_jd_tdb - launch) <= tol, row["mission"]
         assert abs(arc.arrival_jd_tdb - arrival) <= tol, row["mission"]
+        validation.record(
+            f"{row['mission']}: minimum-C3 launch and arrival dates against the flown ones",
+            source="flown mission dates (tests/reference_data/venus_mission_dates.csv)",
+            tag=row["tag"],
+            measured=max(abs(arc.departure_jd_tdb - launch), abs(arc.arrival_jd_tdb - arrival)),
+            tolerance=tol,
+            unit="days",
+        )
 
 
-def test_curtis_earth_mars_example_with_mean_elements():
+def test_curtis_earth_mars_example_with_mean_elements(validation):
     """Curtis, Example 8.8 (edition-dependent numbering) [MEMORY]: Earth 1996-11-07 to Mars
     1997-09-12, v∞ 3.1651 km/s leaving and 2.8852 km/s arriving with the book's mean elements;
     with the Standish 1800-2050 set we use [COMPUTED in docs/references.md 1.2] 3.16566 and 2.88519.
@@ -179,13 +212,26 @@ source = "mean"
     assert arc.metrics["vinf_departure_km_s"] == pytest.approx(3.16566, abs=1e-3)
     assert arc.metrics["vinf_arrival_km_s"] == pytest.approx(2.88519, abs=1e-3)
     assert arc.transfer_angle_deg == pytest.approx(219.66, abs=0.05)  # [COMPUTED] Type II
+    validation.record(
+        "Curtis's Earth-Mars example (1996-11-07 to 1997-09-12), mean elements: v∞ leaving and "
+        "arriving",
+        source="Curtis, Orbital Mechanics for Engineering Students, Example 8.8 "
+        "(docs/references.md 1.2)",
+        tag="[MEMORY], [COMPUTED]",
+        measured=max(
+            abs(arc.metrics["vinf_departure_km_s"] - 3.16566),
+            abs(arc.metrics["vinf_arrival_km_s"] - 2.88519),
+        ),
+        tolerance=1e-3,
+        unit="km/s",
+    )
 
 
 # ---------------------------------------------------------------------------------------------
 # Hohmann limit with invented circular coplanar bodies
 
 
-def test_hohmann_limit_between_circular_bodies():
+def test_hohmann_limit_between_circular_bodies(validation):
     """Between circular coplanar orbits, the least C3 that reaches the outer orbit is the
     Hohmann transfer's, and it arrives with the Hohmann arrival v∞ after half the transfer
     ellipse's period (common practice: vis-viva on a = (r1 + r2)/2)."""
@@ -240,6 +286,14 @@ mean_anomaly_deg = {outer_m0}
     assert refined.metrics["vinf_arrival_km_s"] == pytest.approx(v_arr, rel=1e-3)
     assert refined.tof_days == pytest.approx(t_h / 86400.0, abs=1.0)
     assert refined.transfer_angle_deg == pytest.approx(180.0, abs=0.5)
+    validation.record(
+        "Hohmann limit between invented circular coplanar orbits: least C3",
+        source="vis-viva on the Hohmann ellipse",
+        tag="common practice",
+        measured=abs(refined.metrics["c3_km2_s2"] / v_dep**2 - 1.0),
+        tolerance=1e-4,
+        unit="relative",
+    )
 
 
 # ---------------------------------------------------------------------------------------------

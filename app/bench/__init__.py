@@ -21,12 +21,16 @@ SECTIONS: dict[str, str] = {
     "ephemeris": "app.bench.ephemeris_bench",
     "cache": "app.bench.cache_bench",
     "grid": "app.bench.grid_bench",
+    "launch": "app.bench.launch_bench",
     "dashboard": "app.bench.dashboard_bench",
 }
 # Sections run only when asked for (``--section NAME`` or their own flag, e.g. ``--survey``).
 OPTIONAL_SECTIONS: dict[str, str] = {
     "survey": "app.bench.survey_bench",
     "sequence": "app.bench.sequence_bench",  # about 10 minutes in full: ten 20 s searches twice
+    # valgrind's callgrind: several minutes (half an hour the first time, when the kernels are
+    # compiled for the CPU valgrind presents)
+    "sequence-instructions": "app.bench.sequence_instructions",
 }
 
 

@@ -762,7 +762,15 @@ def run(size: str = "full") -> list[BenchLine]:
             SOAK_SECONDS_QUICK if quick else SOAK_SECONDS_FULL,
             SOAK_VIEWERS_QUICK if quick else VIEWERS,
         )
+        lines += _crowd_lines(folder / "crowd", size)
     return lines
+
+
+def _crowd_lines(folder: Path, size: str) -> list[BenchLine]:
+    """50 viewers for 60 s: errors, p95 click and page load, server memory (crowd_bench)."""
+    from app.bench.crowd_bench import crowd_lines
+
+    return crowd_lines(folder, size)
 
 
 __all__ = ["DashClient", "run", "stale_reason"]

@@ -42,6 +42,7 @@ def run(args: argparse.Namespace) -> int:
     from app.samples import load
     from solver.ephemeris.timescales import utc_to_jd_tdb
     from solver.errors import InputError
+    from solver.files.atomic import write_bytes_atomic
     from solver.files.export import arc_json, arc_oem_text
     from solver.reasons import describe
     from solver.window.cell import select_arc, solve_cell
@@ -66,7 +67,7 @@ def run(args: argparse.Namespace) -> int:
             f"dates with an arc ({describe(arc.reason)})",
         )
     if oem_path is not None:
-        oem_path.write_text(arc_oem_text(case, arc), encoding="ascii")
+        write_bytes_atomic(oem_path, arc_oem_text(case, arc).encode("ascii"), checksum=True)
     report = arc_json(case, arc)
     if args.json:
         print(json.dumps(report, indent=2))

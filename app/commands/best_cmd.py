@@ -27,8 +27,8 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         "--metric",
         default=None,
         choices=metric_choices(),
-        help="what 'best' minimizes (default: c3_km2_s2 for a launch, dv_total_km_s for a "
-        "transfer that starts with a burn; DLA by its magnitude)",
+        help="what 'best' optimizes (default: c3_km2_s2 for a launch, dv_total_km_s for a "
+        "transfer that starts with a burn; DLA by its magnitude; masses are maximized)",
     )
     add_arc_choice(parser, "only arcs of N revolutions")
     parser.add_argument(
@@ -88,6 +88,7 @@ def format_arc_report(report: dict) -> str:
     """Plain-text summary of an arc (shared with ``arcwindow arc``): the numbers that fit the
     case (solver.window.outputs): a launch's C3 and asymptote, or the burns and phasing of a
     transfer that starts with a burn."""
+    from app.commands._mass_text import mass_lines, window_lines
     from solver.window.metrics import METRICS
 
     lines = [
@@ -116,6 +117,10 @@ def format_arc_report(report: dict) -> str:
             continue
         meta = METRICS[name]
         lines.append(f"    {meta.label:<28} {value:>14.6f} {meta.unit}")
+    if "delivered_mass_kg" in report["units"]:  # the case gives a spacecraft mass
+        lines.extend(mass_lines(report["mass_budget"], report["vehicles"]))
+    if report["launch_window"]["site"] is not None:
+        lines.extend(window_lines(report["launch_window"]))
     prov = report["provenance"]
     lines.append(
         f"  ephemeris: {prov['ephemeris']}; {prov['engine']}; case hash {prov['case_hash']}"

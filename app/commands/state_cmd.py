@@ -39,7 +39,7 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
     parser.add_argument(
         "--elements-csv",
         metavar="FILE",
-        help="also know the element bodies of this CSV (format: DEVELOPERS.md; rows in the "
+        help="also know the element bodies of this CSV (format: docs/case-format.md; rows in the "
         "ecliptic read with the --case's ephemeris.ecliptic, else IAU 2006)",
     )
     parser.add_argument("--json", action="store_true", help="print machine-readable JSON")

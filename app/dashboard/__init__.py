@@ -7,7 +7,8 @@ the survey results, as pages of one Dash app.
   table of case settings; ``view_changes``: how a view changes (pure);
 * ``case_catalogue``: sample, uploaded and survey-opened cases by id; ``grid_jobs``: grids in
   memory and fair background jobs; ``best_arcs``: best arcs and their refinement;
-  ``shortlist``: the shared shortlist file; ``exports``: downloads; ``surveys``: results files;
+  ``shortlist``: the shared shortlist store (SQLite); ``exports``: downloads; ``surveys``:
+  results files;
 * ``map_loop``: the map's live loop (grid status, poll, what to draw; pure);
 * ``display_data``: solver results to display arrays; ``figures``: pure figure builders;
   ``theme``: colours and fonts;
@@ -18,7 +19,10 @@ the survey results, as pages of one Dash app.
   (its live loop, pure), ``sequence_service`` (searches in the job pool, candidates, leg maps,
   figures, shortlist, downloads), ``sequence_display`` and ``sequence_figures`` (its display
   data and pure figure builders);
-* ``slowdown``: the test-only setting that slows grid jobs and refinement down.
+* ``slowdown``: the test-only setting that slows grid jobs and refinement down;
+* ``access``: the token, Host check, same-origin writes and security headers on every request;
+  ``budget``: the memory budget of one request; ``downloads``: grid tables streamed from files
+  through a route of their own.
 """
 
 from __future__ import annotations
@@ -29,6 +33,7 @@ import uuid
 import dash
 from dash import Dash, dcc, html
 
+from .access import AccessPolicy
 from .config import ASSETS_DIR, Settings
 from .window_service import WindowService
 
@@ -54,6 +59,7 @@ def create_app(
     cases_dir: str | os.PathLike | None = None,
     surveys_dir: str | os.PathLike | None = None,
     service: WindowService | None = None,
+    access: AccessPolicy | None = None,
 ) -> Dash:
     """Build the dashboard app.
 
@@ -65,12 +71,18 @@ def create_app(
         (see ``config``).
     service : WindowService, optional
         A ready service (tests pass one with a stand-in grid engine).
+    access : AccessPolicy, optional
+        Token and served host names (``arcwindow serve`` builds it from ``--host``); default:
+        a localhost server without a token. Host check, same-origin writes, the body limit and
+        the security headers apply either way.
 
     Returns
     -------
     dash.Dash
         Serve ``app.server`` (a Flask WSGI app) with a production WSGI server.
     """
+    from . import access as access_module
+    from . import downloads
     from .pages import sequence_page, survey_page, window_page
     from .sequence_service import SequenceService
 
@@ -88,6 +100,9 @@ def create_app(
         # compressed they cross a team's network a few times faster.
         compress=True,
     )
+    access_module.install(
+        app.server, access or AccessPolicy.for_address("127.0.0.1", 0, token=None)
+    )
     for page in (window_page, sequence_page, survey_page):
         dash.register_page(
             page.__name__,
@@ -99,8 +114,11 @@ def create_app(
     app.layout = _shell
     window_page.register_callbacks(app, service)
     survey_page.register_callbacks(app, service.shelf)
+    downloads.register(app, service)
     sequences = SequenceService(service)
     sequence_page.register_callbacks(app, sequences)
     app.server.config["ARCWINDOW_SEQUENCES"] = sequences
     app.server.config["ARCWINDOW_SERVICE"] = service
+    # What the data folder could not use (a store kept aside, entries refused): `serve` prints it.
+    app.server.config["ARCWINDOW_STARTUP_NOTES"] = service.shortlist.problems()
     return app

@@ -1,10 +1,10 @@
-"""Downloads: the grid as CSV, the selected arc as CCSDS OEM and JSON, figures as HTML, and the
+"""Downloads: the selected arc as CCSDS OEM and JSON, figures as HTML, and the
 names of every downloaded file.
 
-The grid and arc formats are ``solver.files.export``'s own: the grid CSV is written by
-``write_grid`` exactly as ``arcwindow grid --out FILE.csv`` writes it, provenance header
-included. Figures also download as PNG in the browser (the page's PNG buttons, which print the
-caution on the image); the HTML version inlines plotly.js so it opens offline, and carries the
+The grid and arc formats are ``solver.files.export``'s own; the grid table (CSV or Parquet, with
+the provenance header of ``arcwindow grid --out``) is streamed from a file by ``downloads``.
+Figures also download as PNG in the browser (the page's PNG buttons, which print the caution on
+the image); the HTML version inlines plotly.js so it opens offline, and carries the
 caution under the figure. File names say which case and which view they come from.
 """
 
@@ -12,17 +12,14 @@ from __future__ import annotations
 
 import json
 import re
-import tempfile
-from pathlib import Path
 
 import plotly.graph_objects as go
 
 from solver.caution import CAUTION
 from solver.files.export import arc_json as _arc_json
-from solver.files.export import arc_oem_text, write_grid
+from solver.files.export import arc_oem_text
 from solver.window.case import Case
 from solver.window.cell import Arc
-from solver.window.grid import WindowGrid
 
 from .theme import NO_CLOUD_CONFIG
 from .view_state import ViewState
@@ -47,15 +44,6 @@ def view_stem(case: Case, view: ViewState) -> str:
     return safe_name("_".join(parts))
 
 
-def grid_csv_bytes(grid: WindowGrid) -> bytes:
-    """Every arc of the grid, one row per cell and arc, with the provenance header of
-    ``arcwindow grid --out FILE.csv`` (written by the same function)."""
-    with tempfile.TemporaryDirectory(prefix="arcwindow-csv-") as folder:
-        path = Path(folder) / "grid.csv"
-        write_grid(grid, path)
-        return path.read_bytes()
-
-
 def arc_oem(case: Case, arc: Arc) -> str:
     """CCSDS OEM 2.0 text of the arc."""
     return arc_oem_text(case, arc)
@@ -74,4 +62,4 @@ def figure_html(fig: go.Figure) -> str:
     return page.replace("</body>", note + "</body>", 1)
 
 
-__all__ = ["arc_json", "arc_oem", "figure_html", "grid_csv_bytes", "safe_name", "view_stem"]
+__all__ = ["arc_json", "arc_oem", "figure_html", "safe_name", "view_stem"]

@@ -12,6 +12,7 @@ selected-cell markers as layout annotations and shapes, so a click moves them wi
 from __future__ import annotations
 
 import base64
+import html
 import math
 
 import numpy as np
@@ -124,8 +125,14 @@ def _label(data: MapData) -> str:
     return f"{data.metric_label} ({data.unit})" if data.unit else data.metric_label
 
 
+def _text(value: str) -> str:
+    """Text as Plotly shows it: Plotly reads a subset of HTML (links, bold, line breaks) in titles,
+    legends and hover labels, so names a case or an upload chose are escaped and show as typed."""
+    return html.escape(str(value), quote=False)
+
+
 def _title(data: MapData) -> str:
-    title = data.title or f"{_label(data)} — {data.arcs_label}"
+    title = _text(data.title) if data.title else f"{_label(data)} — {data.arcs_label}"
     return f"{title} (preview while dragging)" if data.preview else title
 
 
@@ -523,28 +530,30 @@ def arc_view_figure(scene: ArcScene) -> go.Figure:
         color=theme.REFERENCE_PLANE_COLOR,
         opacity=0.10,
         hoverinfo="skip",
-        name=f"{scene.plane_label} plane",
+        name=f"{_text(scene.plane_label)} plane",
         showlegend=True,
     )
     traces: list = [plane]
     if scene.central_radius > 0:
-        traces.append(_sphere(scene.central_radius, theme.PLANET_SURFACE_COLOR, scene.central_name))
+        traces.append(
+            _sphere(scene.central_radius, theme.PLANET_SURFACE_COLOR, _text(scene.central_name))
+        )
     else:
         traces.append(
             _point3d(
                 np.zeros(3),
-                scene.central_name,
+                _text(scene.central_name),
                 "circle",
                 theme.CENTRAL_BODY_COLOR,
                 9,
-                hovertemplate=f"{scene.central_name}<extra></extra>",
+                hovertemplate=f"{_text(scene.central_name)}<extra></extra>",
             )
         )
     for track, color in (
         (scene.departure, theme.DEPARTURE_BODY_COLOR),
         (scene.target, theme.TARGET_BODY_COLOR),
     ):
-        name = display_name(track.name)
+        name = _text(display_name(track.name))
         if track.orbit is not None:
             traces.append(
                 _line3d(
@@ -604,7 +613,8 @@ def arc_view_figure(scene: ArcScene) -> go.Figure:
         data=traces,
         layout=theme.base_layout(
             title={
-                "text": f"{scene.title}<br><span style='font-size:11px;color:{theme.INK_MUTED}'>"
+                "text": f"{_text(scene.title)}<br><span style='font-size:11px;"
+                f"color:{theme.INK_MUTED}'>"
                 "● at departure  ◆ at arrival; dotted: one full orbit</span>",
                 "x": 0.01,
                 "font": {"size": theme.TITLE_SIZE},
@@ -761,7 +771,8 @@ def family_chart_figure(data: FamilyData) -> go.Figure:
         data=traces,
         layout=theme.base_layout(
             title={
-                "text": f"{data.title}<br><span style='font-size:11px;color:{theme.INK_MUTED}'>"
+                "text": f"{_text(data.title)}<br><span style='font-size:11px;"
+                f"color:{theme.INK_MUTED}'>"
                 "solid: before the minimum-energy time · dashed: after · dash-dot: hyperbolic"
                 "</span>",
                 "x": 0.01,

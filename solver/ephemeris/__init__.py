@@ -62,6 +62,8 @@ __all__, __getattr__, __dir__ = lazy_api(
             "BodyRegistry",
             "DE423",
             "ELEMENTS",
+            "ELEMENT_JD_TDB_MAX",
+            "ELEMENT_JD_TDB_MIN",
             "MEAN",
             "SOURCES",
             "SourceRange",

@@ -30,6 +30,13 @@ from solver.errors import InputError
 DE423 = ephem_de.DE_NAME
 MEAN = ephem_mean.SOURCE_NAME
 ELEMENTS = "elements"
+ELEMENT_JD_TDB_MIN = 2086302.5
+"""1000-01-01 TDB (proleptic Gregorian, ``erfa.cal2jd``): the first date of element bodies."""
+ELEMENT_JD_TDB_MAX = 2816787.5
+"""3000-01-01 TDB: the last date of element bodies. Two-body motion is exact at any date, but
+dates must stay where the time-scale conversions and the date axes of plots and files work
+(year 1 already prints as year 0 in UTC), so element bodies get this range of their own, as
+the ephemerides have theirs; a case's windows and an element epoch are checked against it."""
 SOURCES: tuple[str, ...] = (DE423, MEAN)
 """Sources a caller may choose for the built-in planets (``source=`` of
 :func:`solver.ephemeris.states.states`)."""
@@ -163,7 +170,7 @@ def has_mass(body: Body) -> bool:
 
 
 def body_from_elements(elements: ElementBody) -> Body:
-    """Registry entry for an element body (valid at all dates; two-body motion)."""
+    """Registry entry for an element body (two-body motion, from 1000 to 3000 TDB)."""
     return Body(
         name=elements.name,
         gm_km3_s2=elements.gm_km3_s2,
@@ -171,7 +178,10 @@ def body_from_elements(elements: ElementBody) -> Body:
         central_body=elements.central_body,
         sources=(
             SourceRange(
-                ELEMENTS, -math.inf, math.inf, "two-body orbit from its elements (exact Kepler)"
+                ELEMENTS,
+                ELEMENT_JD_TDB_MIN,
+                ELEMENT_JD_TDB_MAX,
+                "two-body orbit from its elements (exact Kepler)",
             ),
         ),
         note=f"elements in the {frame_text(elements.frame)}",
@@ -268,6 +278,8 @@ def default_registry() -> BodyRegistry:
 __all__ = [
     "DE423",
     "ELEMENTS",
+    "ELEMENT_JD_TDB_MAX",
+    "ELEMENT_JD_TDB_MIN",
     "MEAN",
     "SOURCES",
     "Body",

@@ -28,13 +28,18 @@ from __future__ import annotations
 import csv
 import io
 import math
-from collections.abc import Iterable
+from collections.abc import Iterable, Iterator
 from pathlib import Path
 
 import numpy as np
 
 from solver.constants import AU_KM
-from solver.ephemeris.bodies import BodyRegistry, default_registry
+from solver.ephemeris.bodies import (
+    ELEMENT_JD_TDB_MAX,
+    ELEMENT_JD_TDB_MIN,
+    BodyRegistry,
+    default_registry,
+)
 from solver.ephemeris.element_bodies import (
     ECLIPTICS,
     ELEMENT_FRAMES,
@@ -44,8 +49,11 @@ from solver.ephemeris.element_bodies import (
 )
 from solver.ephemeris.frames import FRAME_ALIASES, ICRF
 from solver.ephemeris.timescales import utc_to_jd_tdb
-from solver.errors import InputError
+from solver.errors import InputError, has_control_characters
 from solver.mechanics.kepler import true_to_mean_anomaly
+
+MAX_NAME_CHARS = 60
+"""Longest element body name: names label plots, files and table rows."""
 
 
 def element_body(
@@ -92,8 +100,15 @@ def element_body(
     reg = registry if registry is not None else default_registry()
     pre = field_prefix
 
-    if not isinstance(name, str) or not name.strip():
-        raise InputError(pre + "name", name, "a non-empty name")
+    if (
+        not isinstance(name, str)
+        or not name.strip()
+        or len(name.strip()) > MAX_NAME_CHARS
+        or has_control_characters(name)
+    ):
+        raise InputError(
+            pre + "name", name, f"a name of 1 to {MAX_NAME_CHARS} characters, no control characters"
+        )
     name = name.strip()
     central = reg.get(central_body, field=pre + "central_body")
     if not (np.isfinite(central.gm_km3_s2) and central.gm_km3_s2 > 0):
@@ -104,6 +119,13 @@ def element_body(
         epoch_jd = float(utc_to_jd_tdb(str(epoch[1]), field=pre + "epoch_utc"))
     else:
         epoch_jd = _number(pre + "epoch_jd_tdb", epoch[1])
+    if not ELEMENT_JD_TDB_MIN <= epoch_jd <= ELEMENT_JD_TDB_MAX:
+        raise InputError(
+            pre + epoch[0],
+            epoch[1],
+            f"an epoch from 1000-01-01 to 3000-01-01 (JD {ELEMENT_JD_TDB_MIN} to "
+            f"{ELEMENT_JD_TDB_MAX} TDB), the dates element bodies cover",
+        )
 
     sma = _one_of(pre, semi_major_axis_km=semi_major_axis_km,
                   semi_major_axis_au=semi_major_axis_au)  # fmt: skip
@@ -207,7 +229,7 @@ def _blank(value: object) -> bool:
 def _number(field_name: str, value: object) -> float:
     try:
         number = float(value)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         raise InputError(field_name, value, "a finite number") from None
     if not math.isfinite(number):
         raise InputError(field_name, value, "a finite number")
@@ -277,7 +299,7 @@ def read_element_csv(
         label = label or "elements CSV"
         handle = source
     lines = (line for line in handle if line.strip() and not line.lstrip().startswith("#"))
-    reader = csv.reader(lines)
+    reader = _rows(csv.reader(lines), label)
     try:
         header = next(reader)
     except StopIteration:
@@ -314,6 +336,22 @@ def read_element_csv(
     if not bodies:
         raise InputError(label, "no rows", "at least one body")
     return ElementSet(bodies)
+
+
+def _rows(reader: Iterator[list[str]], label: str) -> Iterator[list[str]]:
+    """The CSV reader's rows; a line it cannot read (a NUL byte, a cell over the csv module's
+    field limit, an unclosed quote) is one InputError naming the line, not a traceback."""
+    while True:
+        try:
+            row = next(reader)
+        except StopIteration:
+            return
+        except csv.Error as exc:
+            line = getattr(reader, "line_num", "?")
+            raise InputError(
+                f"{label} line {line}", str(exc), "comma-separated text cells (RFC 4180)"
+            ) from None
+        yield row
 
 
 __all__ = [

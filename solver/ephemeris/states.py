@@ -2,7 +2,7 @@
 
     r_km, v_km_s = states("mars", jd_tdb, central="sun", frame="icrf")
 
-Sources (see DEVELOPERS.md, "Ephemerides, time scales and frames"):
+Sources (see docs/engine.md, "Ephemerides, time scales and frames"):
 
 * ``"de423"`` (default for the Sun, planets, Moon, EMB, SSB): JPL DE423, 1799-12-16 to 2200-02-01,
   barycentric, ICRF (``solver.ephemeris.de``). Mars-Pluto are system barycentres.

@@ -12,6 +12,16 @@ from solver._lazy import lazy_api
 __all__, __getattr__, __dir__ = lazy_api(
     __name__,
     {
+        "atomic": [
+            "CHECKSUM_SUFFIX",
+            "STALE_TEMPORARY_AGE_S",
+            "DamagedFile",
+            "atomic_output",
+            "checksum_path",
+            "sweep_temporaries",
+            "verify_checksum",
+            "write_bytes_atomic",
+        ],
         "gridfile": [
             "FORMAT_VERSION",
             "DamagedGridFile",
@@ -25,7 +35,6 @@ __all__, __getattr__, __dir__ = lazy_api(
             "DEFAULT_MAX_BYTES",
             "ENV_DIRECTORY",
             "ENV_MAX_BYTES",
-            "STALE_TEMPORARY_AGE_S",
             "CacheEntry",
             "CachedGrid",
             "GridCache",
@@ -44,7 +53,13 @@ __all__, __getattr__, __dir__ = lazy_api(
             "format_oem_segments",
             "write_oem",
         ],
-        "export": ["GRID_COLUMNS", "arc_json", "arc_oem_text", "grid_to_frame", "read_provenance"],
+        "export": [
+            "GRID_COLUMNS",
+            "arc_json",
+            "arc_oem_text",
+            "grid_to_frame",
+            "read_provenance",
+        ],
         "sequence_export": [
             "ENCOUNTER_FIELDS",
             "candidate_json",

@@ -29,7 +29,6 @@ from __future__ import annotations
 import logging
 import os
 import re
-import secrets
 import stat as stat_module
 import time
 from collections.abc import Mapping
@@ -41,6 +40,7 @@ from typing import Any
 import numpy as np
 
 from solver.errors import InputError
+from solver.files.atomic import STALE_TEMPORARY_AGE_S, atomic_output, sweep_temporaries
 from solver.files.gridfile import UnknownFormatVersion, encode_grid, read_grid, write_grid
 
 logger = logging.getLogger(__name__)
@@ -53,13 +53,9 @@ DEFAULT_MAX_BYTES = 4 * 1024**3
 keeps the last few large windows and many small ones, while staying small next to a typical
 disk. Set ``ARCWINDOW_CACHE_MAX_BYTES`` or ``max_bytes`` to change it."""
 
-STALE_TEMPORARY_AGE_S = 3600.0
-"""Temporary files untouched for this long belong to writers that died; eviction removes them."""
-
 _SUFFIX = ".awgrid"
 _KEY_RE = re.compile(r"[A-Za-z0-9_-]{1,128}")
 _ENTRY_RE = re.compile(r"([A-Za-z0-9_-]{1,128})\.awgrid")
-_TEMP_RE = re.compile(r"\.[A-Za-z0-9_-]{1,128}\.\d+\.[0-9a-f]{8}\.tmp")
 
 
 # --------------------------------------------------------------------------------------------
@@ -202,8 +198,8 @@ class GridCache:
 
     Notes
     -----
-    Only files named ``<key>.awgrid`` and temporaries named ``.<key>.<pid>.<hex>.tmp`` are ever
-    read, listed or removed, so a cache folder shared with other files is safe. Safe for any
+    Only files named ``<key>.awgrid`` and temporaries named ``.<key>.awgrid.<pid>.<hex>.tmp`` are
+    ever read, listed or removed, so a cache folder shared with other files is safe. Safe for any
     number of threads and processes at once: no locks, only atomic renames.
 
     Examples
@@ -335,21 +331,10 @@ class GridCache:
         final_path = self.path_for(key)
         encoded = encode_grid(key, arrays, metadata)
         self.directory.mkdir(parents=True, exist_ok=True)
-        temp_path = self.directory / f".{key}.{os.getpid()}.{secrets.token_hex(4)}.tmp"
-        flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_BINARY", 0)
-        fd = os.open(temp_path, flags, 0o644)
-        try:
-            try:
-                write_grid(fd, encoded)
-                os.fsync(fd)
-            finally:
-                os.close(fd)
+        with atomic_output(final_path, buffering=0) as handle:
+            write_grid(handle.fileno(), encoded)
             now_ns = time.time_ns()  # fine-grained clock: file systems' own stamps are coarse
-            os.utime(temp_path, ns=(now_ns, now_ns))
-            os.replace(temp_path, final_path)
-        except BaseException:
-            _unlink_quietly(temp_path)
-            raise
+            os.utime(handle.fileno(), ns=(now_ns, now_ns))
         self._evict(protect=final_path)
         return final_path
 
@@ -394,21 +379,11 @@ class GridCache:
         return found
 
     def _sweep_temporaries(self) -> None:
-        try:
-            listing = list(os.scandir(self.directory))
-        except (FileNotFoundError, NotADirectoryError):
-            return
-        oldest_live_ns = time.time_ns() - int(STALE_TEMPORARY_AGE_S * 1e9)
-        for item in listing:
-            if _TEMP_RE.fullmatch(item.name) is None:
-                continue
-            try:
-                stat = item.stat(follow_symlinks=False)
-            except FileNotFoundError:
-                continue
-            if _is_regular(stat) and stat.st_mtime_ns < oldest_live_ns:
-                logger.debug("grid cache: removing stale temporary %s", item.path)
-                _unlink_quietly(Path(item.path))
+        sweep_temporaries(
+            self.directory,
+            max_age_s=STALE_TEMPORARY_AGE_S,
+            name_matches=lambda name: _ENTRY_RE.fullmatch(name) is not None,
+        )
 
     def _evict(self, protect: Path) -> None:
         self._sweep_temporaries()

@@ -22,11 +22,13 @@ from solver.files.oem import format_oem
 from solver.mechanics.families import Family, family_label
 from solver.mechanics.kepler import propagate, sample_arc, state_to_elements
 from solver.mechanics.lambert import BRANCH_NAMES
-from solver.reasons import Reason, describe
+from solver.reasons import MassReason, Reason, describe, describe_mass
+from solver.window.arc_launch import arc_launch_window, mass_budget, vehicle_comparison
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc
 from solver.window.grid import WindowGrid
+from solver.window.mass import MASS_METRICS, mass_reasons
 from solver.window.metrics import METRICS
 from solver.window.outputs import (
     arc_burns,
@@ -62,8 +64,14 @@ GRID_COLUMNS = (
     "apoapsis_km",
     "a_km",
     "e",
+    "injected_mass_kg",
+    "propellant_departure_kg",
+    "propellant_arrival_kg",
+    "delivered_mass_kg",
+    "mass_margin_kg",
     "within_limits",
     "reason",
+    "mass_reason",
     "departure_jd_tdb",
     "arrival_jd_tdb",
 )
@@ -97,8 +105,10 @@ BURN_GRID_COLUMNS = (
     "apoapsis_km",
     "a_km",
     "e",
+    *MASS_METRICS,
     "within_limits",
     "reason",
+    "mass_reason",
     "departure_jd_tdb",
     "arrival_jd_tdb",
 )
@@ -115,6 +125,10 @@ def grid_columns(case: Case) -> tuple[str, ...]:
         columns = tuple(
             c for c in BURN_GRID_COLUMNS if c not in METRICS or c in fit.metrics or c == "tof_days"
         )
+    # Mass columns only where the case gives a mass (how it is counted: the provenance).
+    columns = tuple(c for c in columns if c not in MASS_METRICS or c in fit.metrics)
+    if not any(c in fit.metrics for c in MASS_METRICS):
+        columns = tuple(c for c in columns if c != "mass_reason")
     if not fit.planet_centred:
         columns = tuple(c for c in columns if c != "tof_hours")
     elif "tof_hours" not in columns:
@@ -122,9 +136,10 @@ def grid_columns(case: Case) -> tuple[str, ...]:
     return columns
 
 
-def _burn_columns(grid: WindowGrid, i, j, k) -> dict[str, Any]:
+def _burn_columns(grid: WindowGrid, i, j, k, phase=None) -> dict[str, Any]:
     """Burn components and phasing per row, from the grid's per-arc v∞ magnitudes and angles
-    (the v∞ vectors are v_arc - v_body, ICRF) and the bodies' states at the nodes."""
+    (the v∞ vectors are v_arc - v_body, ICRF) and the bodies' states at the nodes. ``phase``:
+    the phase angle at every departure date, when already computed."""
     arcs = grid.arcs
     leave = vector_from_angles(
         arcs["vinf_departure_km_s"][i, j, k], arcs["dla_deg"][i, j, k], arcs["rla_deg"][i, j, k]
@@ -138,7 +153,8 @@ def _burn_columns(grid: WindowGrid, i, j, k) -> dict[str, Any]:
         meet = np.where(np.isfinite(meet), 0.0, np.nan)
     dep = in_rtn(leave, grid.departure_r_km[i], grid.departure_v_km_s[i])
     arr = in_rtn(meet, grid.arrival_r_km[j], grid.arrival_v_km_s[j])
-    phase = phase_angles_deg(grid.case, CaseBodies.of(grid.case), grid.departure_jd_tdb)
+    if phase is None:
+        phase = phase_angles_deg(grid.case, CaseBodies.of(grid.case), grid.departure_jd_tdb)
     out: dict[str, Any] = {"phase_deg": phase[i]}
     for n, name in enumerate(BURN_DIRECTION_COLUMNS[:3]):
         out[name] = dep[:, n]
@@ -147,99 +163,188 @@ def _burn_columns(grid: WindowGrid, i, j, k) -> dict[str, Any]:
     return out
 
 
-def grid_to_frame(grid: WindowGrid) -> pd.DataFrame:
+ROWS_PER_BLOCK = 250_000
+"""Rows of the grid table built and written at a time: a block costs about 100 MB while it is
+written, whatever the grid's size, so exporting a grid needs little memory beyond the grid."""
+
+
+def grid_to_frame(grid: WindowGrid, departures: slice | None = None) -> pd.DataFrame:
     """One row per cell and arc; a cell with no arc at all is one row carrying its reason.
 
     Multi-revolution slots that do not exist for a cell (its TOF is below the N-revolution
     minimum) are not arcs and have no row; every cell appears at least once. The columns are
     :func:`grid_columns` of the case: a launch's (:data:`GRID_COLUMNS`) or a transfer that
     starts with a burn (:data:`BURN_GRID_COLUMNS`); ``tof_hours`` about a planet.
+
+    Parameters
+    ----------
+    grid : WindowGrid
+        The solved window.
+    departures : slice, optional
+        Only the rows of these departure dates (``slice(start, stop)``), for writing a large grid
+        block by block; default all. The blocks of :func:`departure_blocks` put end to end give
+        the whole table.
     """
-    _n_dep, _n_arr, _slots = grid.shape
-    converged = grid.converged
-    no_arc = ~converged.any(axis=-1)
-    keep = converged.copy()
-    keep[..., 0] |= no_arc  # the cell's one row, with the slot-0 reason
-    i, j, k = np.nonzero(keep)
-    # Text columns are categoricals: a million rows share a few hundred distinct strings.
-    dep_utc = list(np.atleast_1d(jd_tdb_to_utc(grid.departure_jd_tdb, digits=0)))
-    arr_utc = list(np.atleast_1d(jd_tdb_to_utc(grid.arrival_jd_tdb, digits=0)))
-    family_names = [""] + [Family(code).label for code in range(1, max(Family) + 1)]
-    reason_names = [describe(code) for code in range(max(Reason) + 1)]
-    branch_names = [BRANCH_NAMES[b] for b in sorted(BRANCH_NAMES)]
-    reasons = grid.reason[i, j, k]
+    return _FrameMaker(grid).frame(departures or slice(0, grid.shape[0]))
 
-    def categorical(codes, names):
-        return pd.Categorical.from_codes(np.asarray(codes, dtype=np.int64), categories=names)
 
-    columns: dict[str, Any] = {
-        "departure_utc": categorical(i, dep_utc),
-        "arrival_utc": categorical(j, arr_utc),
-        "tof_days": grid.tof_days[i, j],
-        "revolutions": grid.revolutions[k],
-        "branch": categorical(grid.branch[k], branch_names),
-        "transfer_type": categorical(
-            (grid.transfer_angle_deg[i, j] >= 180.0).astype(int), ["I", "II"]
-        ),
-        "family": categorical(grid.family[i, j, k], family_names),
-    }
-    names = grid_columns(grid.case)
-    for name in names:
-        if name in grid.arcs:
-            columns[name] = grid.arcs[name][i, j, k]
-    if "tof_hours" in names:
-        columns["tof_hours"] = columns["tof_days"] * 24.0
-    if "phase_deg" in names:
-        columns.update(_burn_columns(grid, i, j, k))
-    columns["transfer_angle_deg"] = grid.transfer_angle_deg[i, j]
-    columns["within_limits"] = grid.within[i, j, k]
-    columns["reason"] = categorical(reasons, reason_names)
-    columns["departure_jd_tdb"] = grid.departure_jd_tdb[i]
-    columns["arrival_jd_tdb"] = grid.arrival_jd_tdb[j]
-    return pd.DataFrame({name: columns[name] for name in names})
+def departure_blocks(grid: WindowGrid, rows: int | None = None) -> list[slice]:
+    """Slices of departure dates, each giving about ``rows`` table rows (default
+    :data:`ROWS_PER_BLOCK`; at least one date each)."""
+    n_dep, n_arr, slots = grid.shape
+    step = max(1, (rows or ROWS_PER_BLOCK) // max(1, n_arr * slots))
+    return [slice(start, min(n_dep, start + step)) for start in range(0, n_dep, step)]
+
+
+class _FrameMaker:
+    """What every block of a grid's table shares: columns, date texts, category names."""
+
+    def __init__(self, grid: WindowGrid) -> None:
+        self.grid = grid
+        self.names = grid_columns(grid.case)
+        # Text columns are categoricals: a million rows share a few hundred distinct strings.
+        self.dep_utc = list(np.atleast_1d(jd_tdb_to_utc(grid.departure_jd_tdb, digits=0)))
+        self.arr_utc = list(np.atleast_1d(jd_tdb_to_utc(grid.arrival_jd_tdb, digits=0)))
+        self.family_names = [""] + [Family(code).label for code in range(1, max(Family) + 1)]
+        self.reason_names = [describe(code) for code in range(max(Reason) + 1)]
+        self.branch_names = [BRANCH_NAMES[b] for b in sorted(BRANCH_NAMES)]
+        self.mass_reason_names = [describe_mass(code) for code in range(max(MassReason) + 1)]
+        self.bodies = CaseBodies.of(grid.case)
+        self.phase = None
+        if "phase_deg" in self.names:
+            self.phase = phase_angles_deg(grid.case, self.bodies, grid.departure_jd_tdb)
+
+    def frame(self, departures: slice) -> pd.DataFrame:
+        grid = self.grid
+        converged = grid.converged[departures]
+        keep = converged.copy()
+        keep[..., 0] |= ~converged.any(axis=-1)  # the cell's one row, with the slot-0 reason
+        i, j, k = np.nonzero(keep)
+        i = i + (departures.start or 0)
+        reasons = grid.reason[i, j, k]
+
+        def categorical(codes, names):
+            return pd.Categorical.from_codes(np.asarray(codes, dtype=np.int64), categories=names)
+
+        columns: dict[str, Any] = {
+            "departure_utc": categorical(i, self.dep_utc),
+            "arrival_utc": categorical(j, self.arr_utc),
+            "tof_days": grid.tof_days[i, j],
+            "revolutions": grid.revolutions[k],
+            "branch": categorical(grid.branch[k], self.branch_names),
+            "transfer_type": categorical(
+                (grid.transfer_angle_deg[i, j] >= 180.0).astype(int), ["I", "II"]
+            ),
+            "family": categorical(grid.family[i, j, k], self.family_names),
+        }
+        names = self.names
+        for name in names:
+            if name in grid.arcs:
+                columns[name] = grid.arcs[name][i, j, k]
+        if "tof_hours" in names:
+            columns["tof_hours"] = columns["tof_days"] * 24.0
+        if "phase_deg" in names:
+            columns.update(_burn_columns(grid, i, j, k, self.phase))
+        columns["transfer_angle_deg"] = grid.transfer_angle_deg[i, j]
+        columns["within_limits"] = grid.within[i, j, k]
+        columns["reason"] = categorical(reasons, self.reason_names)
+        if "mass_reason" in names:
+            arcs = grid.arcs
+            mass_codes = mass_reasons(
+                grid.case,
+                self.bodies,
+                arcs["c3_km2_s2"][i, j, k],
+                arcs["dv_departure_km_s"][i, j, k],
+                arcs["dv_arrival_km_s"][i, j, k],
+            )
+            columns["mass_reason"] = categorical(mass_codes, self.mass_reason_names)
+        columns["departure_jd_tdb"] = grid.departure_jd_tdb[i]
+        columns["arrival_jd_tdb"] = grid.arrival_jd_tdb[j]
+        return pd.DataFrame({name: columns[name] for name in names})
+
+
+GRID_FORMATS = (".csv", ".parquet")
 
 
 def write_grid(grid: WindowGrid, path: str | Path) -> Path:
-    """Write the grid table to ``.csv`` or ``.parquet`` (chosen by the suffix)."""
+    """Write the grid table to ``.csv`` or ``.parquet`` (chosen by the suffix).
+
+    The file is written block by block (:data:`ROWS_PER_BLOCK` rows at a time), atomically, with
+    its SHA-256 beside it (``NAME.sha256``; see :mod:`solver.files.atomic`): a run killed while
+    writing leaves the previous file as it was. Stale temporary files of the same name are
+    swept first.
+    """
+    from solver.files.atomic import atomic_output, sweep_temporaries
+
     path = Path(path)
     suffix = path.suffix.lower()
-    if suffix not in (".csv", ".parquet"):
+    if suffix not in GRID_FORMATS:
         raise InputError("--out", str(path), "a file name ending in .csv or .parquet")
-    frame = grid_to_frame(grid)
-    prov = grid.provenance or provenance(grid.case)
+    sweep_temporaries(path.parent, name_matches=lambda name: name == path.name)
+    with atomic_output(path, checksum=True) as handle:
+        write_grid_to(handle, grid, suffix)
+    return path
+
+
+def csv_header(prov: dict[str, Any]) -> str:
+    """The ``#`` lines that open a grid CSV: provenance, then units (one line per item)."""
+    lines = [f"# {key}: {_one_line(value)}\n" for key, value in prov.items()]
+    lines.append("# units: in the column names; dates UTC (ISO 8601), JD in TDB\n")
+    return "".join(lines)
+
+
+def _one_line(value: Any) -> str:
+    """Provenance text on one line: control characters (a newline in a title) become spaces."""
+    return "".join(" " if ord(c) < 32 or ord(c) == 127 else c for c in str(value))
+
+
+def write_grid_to(handle: Any, grid: WindowGrid, suffix: str) -> None:
+    """Write the grid table as ``.csv`` or ``.parquet`` to an open binary file, block by block."""
     import pyarrow as pa
 
-    table = pa.Table.from_pandas(frame, preserve_index=False)
+    prov = grid.provenance or provenance(grid.case)
+    maker = _FrameMaker(grid)
+    blocks = departure_blocks(grid)
+    first = pa.Table.from_pandas(maker.frame(blocks[0]), preserve_index=False)
+    schema = first.schema
     if suffix == ".csv":
         import pyarrow.csv as pacsv
 
         # pyarrow writes CSV an order of magnitude faster than pandas for million-row grids;
         # categoricals are written as their text.
-        plain = table.cast(
-            pa.schema(
-                [
-                    pa.field(f.name, pa.string()) if pa.types.is_dictionary(f.type) else f
-                    for f in table.schema
-                ]
-            )
+        plain = pa.schema(
+            [pa.field(f.name, pa.string()) if pa.types.is_dictionary(f.type) else f for f in schema]
         )
-        with open(path, "wb") as handle:
-            header = "".join(f"# {key}: {value}\n" for key, value in prov.items())
-            header += "# units: in the column names; dates UTC (ISO 8601), JD in TDB\n"
-            handle.write(header.encode("utf-8"))
-            pacsv.write_csv(plain, handle)
-    else:
-        import pyarrow.parquet as pq
+        handle.write(csv_header(prov).encode("utf-8"))
+        with pacsv.CSVWriter(handle, plain) as writer:
+            writer.write_table(first.cast(plain))
+            del first
+            for block in blocks[1:]:
+                table = pa.Table.from_pandas(
+                    maker.frame(block), schema=schema, preserve_index=False
+                )
+                writer.write_table(table.cast(plain))
+        return
+    import pyarrow.parquet as pq
 
-        metadata = dict(table.schema.metadata or {})
-        metadata[b"arcwindow.provenance"] = json.dumps(prov).encode()
-        pq.write_table(table.replace_schema_metadata(metadata), path)
-    return path
+    metadata = dict(schema.metadata or {})
+    metadata[b"arcwindow.provenance"] = json.dumps(prov).encode()
+    schema = schema.with_metadata(metadata)
+    with pq.ParquetWriter(handle, schema) as writer:
+        writer.write_table(first.replace_schema_metadata(metadata))
+        del first
+        for block in blocks[1:]:
+            table = pa.Table.from_pandas(maker.frame(block), schema=schema, preserve_index=False)
+            writer.write_table(table.replace_schema_metadata(metadata))
 
 
 def read_provenance(path: str | Path) -> dict[str, str]:
-    """Provenance of a grid file written by :func:`write_grid`."""
+    """Provenance of a grid file written by :func:`write_grid`, once the file has matched its
+    SHA-256 (:class:`solver.files.atomic.DamagedFile` otherwise)."""
+    from solver.files.atomic import verify_checksum
+
     path = Path(path)
+    verify_checksum(path)
     if path.suffix.lower() == ".parquet":
         import pyarrow.parquet as pq
 
@@ -267,6 +372,8 @@ def arc_json(case: Case, arc: Arc) -> dict[str, Any]:
         return float(value) if math.isfinite(value) else None
 
     fit = case_outputs(case)
+    bodies = CaseBodies.of(case)
+    budget = mass_budget(case, arc, bodies=bodies)
     report: dict[str, Any] = {
         "case_title": case.title,
         "departure_utc": str(jd_tdb_to_utc(arc.departure_jd_tdb, digits=0)),
@@ -290,6 +397,10 @@ def arc_json(case: Case, arc: Arc) -> dict[str, Any]:
         "units": {name: METRICS[name].unit for name in arc.metrics if name in fit.metrics},
         "transfer_time": transfer_time_text(arc.tof_days, fit.planet_centred),
         "tof_hours": arc.tof_days * 24.0,
+        "mass_reason": budget.reason or describe_mass(MassReason.OK),
+        "mass_budget": budget.as_dict(),
+        "vehicles": [b.as_dict() for b in vehicle_comparison(case, arc, bodies)],
+        "launch_window": arc_launch_window(case, arc, bodies).as_dict(),
         "frame": "ICRF",
         "r1_km": arc.r1_km.tolist(),
         "v1_km_s": arc.v1_km_s.tolist(),
@@ -387,10 +498,15 @@ __all__ = [
     "BURN_DIRECTION_COLUMNS",
     "BURN_GRID_COLUMNS",
     "GRID_COLUMNS",
+    "GRID_FORMATS",
+    "ROWS_PER_BLOCK",
     "arc_json",
     "arc_oem_text",
+    "csv_header",
+    "departure_blocks",
     "grid_columns",
     "grid_to_frame",
     "read_provenance",
     "write_grid",
+    "write_grid_to",
 ]

@@ -291,7 +291,8 @@ def write_oem(
     interpolation: str | None = None,
     interpolation_degree: int | None = None,
 ) -> Path:
-    """Write :func:`format_oem`'s message to ``path`` (ASCII, ``\\n`` line ends).
+    """Write :func:`format_oem`'s message to ``path`` (ASCII, ``\\n`` line ends), atomically and
+    with its SHA-256 beside it (``NAME.sha256``, see :mod:`solver.files.atomic`).
 
     Parameters
     ----------
@@ -322,10 +323,9 @@ def write_oem(
         interpolation=interpolation,
         interpolation_degree=interpolation_degree,
     )
-    out = Path(path)
-    with open(out, "w", encoding="ascii", newline="\n") as handle:
-        handle.write(text)
-    return out
+    from solver.files.atomic import write_bytes_atomic
+
+    return write_bytes_atomic(path, text.encode("ascii"), checksum=True)
 
 
 # --------------------------------------------------------------------------------------------

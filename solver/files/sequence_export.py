@@ -102,27 +102,29 @@ def write_candidates(
     *,
     extra: dict[str, Any] | None = None,
 ) -> Path:
-    """Write the candidates table to ``.csv`` or ``.parquet`` (chosen by the suffix)."""
+    """Write the candidates table to ``.csv`` or ``.parquet`` (chosen by the suffix), atomically
+    and with its SHA-256 beside it (:mod:`solver.files.atomic`)."""
+    from solver.files.atomic import atomic_output
+    from solver.files.export import csv_header
+
     path = Path(path)
     suffix = path.suffix.lower()
     if suffix not in (".csv", ".parquet"):
         raise InputError("--out", str(path), "a file name ending in .csv or .parquet")
     frame = candidates_frame(candidates)
     prov = {**sequence_provenance(sequence_case), **(extra or {})}
-    if suffix == ".csv":
-        with open(path, "w", encoding="utf-8", newline="") as handle:
-            for key, value in prov.items():
-                handle.write(f"# {key}: {value}\n")
-            handle.write("# units: in the column names; dates UTC (ISO 8601), JD in TDB\n")
-            frame.to_csv(handle, index=False)
-    else:
-        import pyarrow as pa
-        import pyarrow.parquet as pq
+    with atomic_output(path, checksum=True) as handle:
+        if suffix == ".csv":
+            handle.write(csv_header(prov).encode("utf-8"))
+            handle.write(frame.to_csv(index=False).encode("utf-8"))  # a few hundred rows
+        else:
+            import pyarrow as pa
+            import pyarrow.parquet as pq
 
-        table = pa.Table.from_pandas(frame, preserve_index=False)
-        metadata = dict(table.schema.metadata or {})
-        metadata[b"arcwindow.provenance"] = json.dumps(prov).encode()
-        pq.write_table(table.replace_schema_metadata(metadata), path)
+            table = pa.Table.from_pandas(frame, preserve_index=False)
+            metadata = dict(table.schema.metadata or {})
+            metadata[b"arcwindow.provenance"] = json.dumps(prov).encode()
+            pq.write_table(table.replace_schema_metadata(metadata), handle)
     return path
 
 

@@ -88,6 +88,10 @@ _WINDOW_SCOPES: dict[str, tuple[Scope, float]] = {
     "dla_max_deg": ("departure", 10.0),
     "tof_min_days": ("leg", 100.0),
     "tof_max_days": ("leg", 100.0),
+    # The mass left after the last burn: in a one-leg sequence the last (only) leg's delivered
+    # mass is the window engine's. Sequences do not yet count the mass of flyby and stop burns,
+    # so a sequence of several legs with this limit is refused (solver.sequence.spec).
+    "delivered_mass_min_kg": ("arrival", 100.0),
 }
 
 

@@ -346,6 +346,13 @@ def sequence_case_from_dict(raw: dict[str, Any], source_path: str = "") -> Seque
     sequences = []
     for table, where in tables:
         sequences.append(_sequence(case, registry, table, where))
+    if case.limits.delivered_mass_min_kg is not None and any(len(q.legs) > 1 for q in sequences):
+        raise InputError(
+            "limits.delivered_mass_min_kg",
+            case.limits.delivered_mass_min_kg,
+            "no delivered-mass limit in a case with multi-leg sequences: the mass of flyby and "
+            "stop burns is not counted for sequences yet (the one-leg window counts it)",
+        )
     seen: set[str] = set()
     for seq, (_table, where) in zip(sequences, tables, strict=True):
         if seq.name.lower() in seen:

@@ -8,9 +8,9 @@ on one compiled-kernel thread (as each worker runs), and scales:
     seconds = pending target-years x measured seconds each / (workers x efficiency)
               + worker start-up (a cluster's workers import the engine first)
 
-with the parallel efficiency measured for chunks of ~1 s (DEVELOPERS.md, "What a chunk costs":
-0.79-0.80 on 2 workers). While the survey runs, :func:`remaining_seconds` replaces the estimate
-by the rate the finished chunks show.
+with the parallel efficiency measured for chunks of ~1 s (0.79-0.80 on 2 local workers,
+`arcwindow bench --survey`; docs/cluster.md, "Sizing a survey"). While the survey runs,
+:func:`remaining_seconds` replaces the estimate by the rate the finished chunks show.
 """
 
 from __future__ import annotations
@@ -23,11 +23,11 @@ from solver.survey.scan import SurveyPlan, SurveySettings, scan_target
 
 PARALLEL_EFFICIENCY = 0.8
 """Fraction of ``workers`` times the single-worker rate a cluster delivers (measured 0.79-0.80
-with 2 local workers; see DEVELOPERS.md)."""
+with 2 local workers; see docs/cluster.md)."""
 DEFAULT_SAMPLES = 3
 WORKER_STARTUP_S = 3.0
 """A worker process's first chunk waits for its imports and compiled kernels from numba's cache
-(~2 s measured, DEVELOPERS.md); a cluster pays it once, in parallel."""
+(~2 s measured by `arcwindow bench --survey`); a cluster pays it once, in parallel."""
 
 
 @dataclass(frozen=True)

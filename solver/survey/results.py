@@ -18,7 +18,7 @@ import pandas as pd
 
 from solver.errors import InputError
 from solver.window.case import Case, parse_case
-from solver.window.metrics import METRICS
+from solver.window.metrics import ranking_values
 
 PROVENANCE_KEY = b"arcwindow.provenance"
 SURVEY_KEY = b"arcwindow.survey"
@@ -111,9 +111,7 @@ def rank_results(span_rows: pd.DataFrame) -> pd.DataFrame:
     if rows.empty:
         return pd.DataFrame(columns=list(RESULT_COLUMNS)).astype(dict(RESULT_SCHEMA))
     metric = str(rows["metric"].iloc[0])
-    magnitude = METRICS[metric].rank_by_magnitude
-    values = rows["metric_value"].to_numpy(dtype=float)
-    score = np.abs(values) if magnitude else values
+    score = ranking_values(rows["metric_value"].to_numpy(dtype=float), metric)
     order = pd.DataFrame(
         {
             "status": rows["status"].map(STATUS_ORDER).fillna(len(STATUS_ORDER)).to_numpy(),
@@ -153,9 +151,7 @@ def load_results(path: str | Path) -> pd.DataFrame:
     InputError
         The file is missing or is not a survey results file.
     """
-    path = Path(path)
-    if not path.is_file():
-        raise InputError("results", str(path), "an existing survey results file (.parquet)")
+    path = _verified(path)
     try:
         frame = pd.read_parquet(path)
     except Exception as exc:  # any unreadable file is the same user error
@@ -172,10 +168,29 @@ def read_survey_metadata(path: str | Path) -> dict[str, Any]:
     """The survey's own record in a results file: base case TOML, years, settings, counts."""
     import pyarrow.parquet as pq
 
-    meta = pq.read_schema(Path(path)).metadata or {}
+    meta = pq.read_schema(_verified(path)).metadata or {}
     if SURVEY_KEY not in meta:
         raise InputError("results", str(path), "a survey results file (no survey metadata)")
     return json.loads(meta[SURVEY_KEY])
+
+
+def _verified(path: str | Path) -> Path:
+    """The results file, once every byte has matched the SHA-256 written beside it."""
+    from solver.files.atomic import DamagedFile, verify_checksum
+
+    path = Path(path)
+    if not path.is_file():
+        raise InputError("results", str(path), "an existing survey results file (.parquet)")
+    try:
+        verify_checksum(path)
+    except DamagedFile as exc:
+        raise InputError(
+            "results",
+            path.name,
+            f"a results file that matches its checksum ({exc}); rerun the "
+            "survey command to write it again (finished chunks are reused)",
+        ) from None
+    return path
 
 
 def results_base_case(path: str | Path) -> Case:

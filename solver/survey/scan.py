@@ -66,8 +66,8 @@ YEAR_MIN, YEAR_MAX = 1800, 2199
 """Departure years a survey accepts (DE423 covers 1799-12-16 to 2200-02-01; arrivals must fit)."""
 
 DEFAULT_TARGETS_PER_CHUNK = 20
-"""Under a second of work per chunk on one core (see DEVELOPERS.md, "Surveys on Dask", for the
-measured cost per target-year): long enough that Dask's ~1 ms per task is noise, short enough to
+"""Under a second of work per chunk on one core (`arcwindow bench --survey` measures the cost per
+target-year; docs/cluster.md): long enough that Dask's ~1 ms per task is noise, short enough to
 balance load and to lose little when a worker dies."""
 
 REFINE_MODES = ("zoom", "slsqp", "none")

@@ -1,16 +1,20 @@
 """A survey's files: one Parquet file per finished chunk, merged at the end into the results.
 
 Chunk files live in a folder next to the results (``RESULTS.parquet.chunks/``), each named by its
-chunk key (a hash of the chunk's inputs and the engine version,
-:func:`solver.survey.scan.chunk_key`), so a rerun of the same survey finds the chunks already
-done and a changed base case, catalogue, setting or engine never reuses a stale one.
+chunk key, a hash of the chunk's inputs and the engine version (window surveys:
+:func:`solver.survey.scan.chunk_key`, ``chunk-KEY.parquet``; sequence surveys, one year-target
+each: :func:`solver.survey.sequences.task_key`, ``chunk-seq-KEY.parquet``; both written and read
+by :func:`write_frame` and :func:`read_frame`), so a rerun of the same survey finds the chunks
+already done and a changed base case, catalogue, setting or engine never reuses a stale one.
 
-* **Atomic**: a chunk is written to a uniquely named temporary file in the folder, flushed,
-  fsynced and renamed over its final name (``os.replace``). A run killed mid-write leaves at
-  worst a temporary file (swept when older than an hour), never a partial chunk.
-* **Verified on resume**: a chunk file counts as done only if it reads as Parquet, its metadata
-  holds the expected key, and its rows are exactly the chunk's targets in order; anything else
-  is computed again and replaced.
+* **Atomic**: a chunk is written through :func:`solver.files.atomic.atomic_output` (temporary
+  file in the folder, fsync, rename) with its SHA-256 beside it (``chunk-<key>.parquet.sha256``).
+  A run killed mid-write leaves at worst a temporary file (swept when older than an hour), never
+  a partial chunk.
+* **Verified on resume**: a chunk file counts as done only if every byte matches its SHA-256,
+  it reads as Parquet, its metadata holds the expected key, and its rows are exactly the chunk's
+  targets in order; anything else (a flipped bit anywhere in the file included) is computed
+  again and replaced.
 * **No duplicates**: the merge reads only the chunks of the current plan, each once, and keeps
   one row per (target, span) even if a file were to repeat one.
 
@@ -23,22 +27,19 @@ from __future__ import annotations
 
 import json
 import logging
-import os
-import secrets
-import time
 from pathlib import Path
 
 import pandas as pd
 
 from solver import ENGINE_VERSION
+from solver.files.atomic import STALE_TEMPORARY_AGE_S, atomic_output, verify_checksum
+from solver.files.atomic import sweep_temporaries as sweep_files
 from solver.survey.results import PROVENANCE_KEY, SURVEY_KEY, rank_results, span_frame
 from solver.survey.scan import SURVEY_FORMAT, Chunk, SurveyPlan
 
 logger = logging.getLogger(__name__)
 
 CHUNK_KEY = b"arcwindow.survey_chunk"
-STALE_TEMPORARY_AGE_S = 3600.0
-"""Temporary files untouched this long belong to writers that died; a run sweeps them."""
 
 
 def chunk_folder(out_path: str | Path) -> Path:
@@ -52,39 +53,62 @@ def chunk_path(folder: str | Path, chunk: Chunk) -> Path:
 
 
 def _atomic_write_table(table, path: Path) -> None:
+    """Write a Parquet table atomically with its SHA-256 file beside it."""
     import pyarrow.parquet as pq
 
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.{secrets.token_hex(4)}.tmp")
-    try:
-        with open(tmp, "wb") as handle:
-            pq.write_table(table, handle)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
+    with atomic_output(path, checksum=True) as handle:
+        pq.write_table(table, handle)
 
 
-def write_chunk(folder: str | Path, chunk: Chunk, rows: list[dict]) -> Path:
-    """Write a finished chunk's rows atomically; returns the file's path."""
+def write_frame(folder: str | Path, file_name: str, frame: pd.DataFrame, record: dict) -> Path:
+    """Write one chunk file atomically: ``frame`` with ``record`` (which must hold the chunk's
+    ``key``) in its metadata. Any survey's chunks are written by this one function."""
     import pyarrow as pa
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    table = pa.Table.from_pandas(span_frame(rows), preserve_index=False)
+    table = pa.Table.from_pandas(frame, preserve_index=False)
+    metadata = dict(table.schema.metadata or {})
+    metadata[CHUNK_KEY] = json.dumps({**record, "engine": ENGINE_VERSION}).encode()
+    path = folder / file_name
+    _atomic_write_table(table.replace_schema_metadata(metadata), path)
+    return path
+
+
+def read_frame(
+    folder: str | Path, file_name: str, key: str, columns: list[str] | None = None
+) -> tuple[pd.DataFrame, dict] | None:
+    """A chunk file's rows and record if every byte matches its SHA-256, it reads whole and it
+    holds chunk ``key``; else None (a damaged, foreign or stale file is computed again, never
+    trusted)."""
+    import pyarrow.parquet as pq
+
+    path = Path(folder) / file_name
+    if not path.is_file():
+        return None
+    try:
+        verify_checksum(path)  # every byte, before the Parquet reader sees any of them
+        table = pq.read_table(path, columns=columns)
+        record = json.loads((table.schema.metadata or {}).get(CHUNK_KEY, b"{}"))
+        frame = table.to_pandas()
+    except Exception as exc:  # a damaged or foreign file is recomputed, never trusted
+        logger.debug("chunk file %s unreadable (%s): recomputing", path, exc)
+        return None
+    if not isinstance(record, dict) or record.get("key") != key:
+        logger.debug("chunk file %s does not hold chunk %s: recomputing", path, key)
+        return None
+    return frame, record
+
+
+def write_chunk(folder: str | Path, chunk: Chunk, rows: list[dict]) -> Path:
+    """Write a finished chunk's rows atomically; returns the file's path."""
     record = {
         "format": SURVEY_FORMAT,
         "key": chunk.key,
         "span": list(chunk.span),
         "targets": list(chunk.target_names),
-        "engine": ENGINE_VERSION,
     }
-    metadata = dict(table.schema.metadata or {})
-    metadata[CHUNK_KEY] = json.dumps(record).encode()
-    path = chunk_path(folder, chunk)
-    _atomic_write_table(table.replace_schema_metadata(metadata), path)
-    return path
+    return write_frame(folder, chunk.file_name, span_frame(rows), record)
 
 
 def read_chunk(
@@ -94,41 +118,25 @@ def read_chunk(
 
     ``columns`` reads only those (``target`` is always read: it is checked).
     """
-    import pyarrow.parquet as pq
-
-    path = chunk_path(folder, chunk)
-    if not path.is_file():
-        return None
     if columns is not None and "target" not in columns:
         columns = ["target", *columns]
-    try:
-        table = pq.read_table(path, columns=columns)
-        record = json.loads((table.schema.metadata or {}).get(CHUNK_KEY, b"{}"))
-        frame = table.to_pandas()
-    except Exception as exc:  # a damaged or foreign file is recomputed, never trusted
-        logger.debug("chunk file %s unreadable (%s): recomputing", path, exc)
+    found = read_frame(folder, chunk.file_name, chunk.key, columns)
+    if found is None:
         return None
-    if record.get("key") != chunk.key or tuple(frame.get("target", ())) != chunk.target_names:
-        logger.debug("chunk file %s does not hold chunk %s: recomputing", path, chunk.key)
+    frame = found[0]
+    if tuple(frame.get("target", ())) != chunk.target_names:
+        logger.debug(
+            "chunk file %s does not hold chunk %s: recomputing", chunk.file_name, chunk.key
+        )
         return None
     return frame
 
 
 def sweep_temporaries(folder: str | Path, max_age_s: float = STALE_TEMPORARY_AGE_S) -> int:
     """Remove temporary chunk files older than ``max_age_s``; returns how many."""
-    folder = Path(folder)
-    removed = 0
-    if not folder.is_dir():
-        return 0
-    now = time.time()
-    for path in folder.glob(".chunk-*.tmp"):
-        try:
-            if now - path.stat().st_mtime > max_age_s:
-                path.unlink()
-                removed += 1
-        except FileNotFoundError:
-            pass
-    return removed
+    return sweep_files(
+        folder, max_age_s=max_age_s, name_matches=lambda name: name.startswith("chunk-")
+    )
 
 
 def chunk_done(folder: str | Path, chunk: Chunk) -> bool:
@@ -180,7 +188,9 @@ __all__ = [
     "chunk_path",
     "merge_chunks",
     "read_chunk",
+    "read_frame",
     "sweep_temporaries",
     "write_chunk",
+    "write_frame",
     "write_results",
 ]

@@ -42,6 +42,9 @@ A case can be written by hand::
     tof_min_days = 80
     tof_max_days = 250
 
+    # optional: [[vehicles]], [launch_site], [spacecraft], [[propulsion]] (mass and launch,
+    # see solver.window.case_launch)
+
     [[bodies]]                  # optional, any number: bodies defined by orbital elements
     name = "Tallis"
     central_body = "sun"
@@ -70,8 +73,16 @@ from solver.ephemeris.bodies import Body, BodyRegistry, default_registry, has_ma
 from solver.ephemeris.element_bodies import ElementBody
 from solver.ephemeris.element_input import ELEMENT_FIELDS, element_body
 from solver.ephemeris.frames import ECLIPTIC
-from solver.ephemeris.timescales import jd_tdb_to_utc, utc_to_jd_tdb
+from solver.ephemeris.timescales import jd_tdb_to_iso_tdb, utc_to_jd_tdb
 from solver.errors import InputError
+from solver.launch.site import LaunchSite
+from solver.window.case_launch import (
+    ARRAY_SECTIONS,
+    MassModel,
+    launch_toml,
+    read_launch_site,
+    read_mass_model,
+)
 from solver.window.settings import SECTIONS, SETTING, read_setting
 
 ARRIVAL_MODES = SETTING["arrival_orbit.mode"].choices
@@ -88,6 +99,7 @@ class Limits:
     dla_max_deg: float | None = None
     tof_min_days: float | None = None
     tof_max_days: float | None = None
+    delivered_mass_min_kg: float | None = None
 
 
 @dataclass(frozen=True)
@@ -116,6 +128,8 @@ class Case:
     element_ecliptic: str = "iau2006"
     description: str = ""
     bodies: tuple[ElementBody, ...] = ()
+    mass: MassModel = field(default_factory=MassModel)
+    launch_site: LaunchSite | None = None
     departure_start_jd_tdb: float = math.nan
     departure_end_jd_tdb: float = math.nan
     arrival_start_jd_tdb: float = math.nan
@@ -211,13 +225,69 @@ def load_case(path: str | Path) -> Case:
     return parse_case(text, source_path=str(path))
 
 
+MAX_CASE_CHARS = 1_000_000
+"""A case file is a few kB; a megabyte holds thousands of ``[[bodies]]``. Longer text is refused
+before it is parsed."""
+MAX_TOML_DEPTH = 6
+"""Tables and arrays nested deeper than this are refused with their key, so nothing downstream
+walks a structure a thousand levels deep. The deepest a case needs is 5: a ``[[vehicles]]``
+performance row (document, array, table, array, inline table) or a leg of ``[[sequence]]``
+tables; one level is spare."""
+TOML_INTEGER_RANGE = (-(2**63), 2**63 - 1)
+"""TOML integers are 64-bit (TOML 1.0.0, "Integer"); Python's reader accepts any size, so larger
+ones (which no float holds either) are refused here, naming the key."""
+
+
 def parse_case(text: str, source_path: str = "") -> Case:
-    """Validate TOML text as a case."""
+    """Validate TOML text as a case.
+
+    Refusals are :class:`InputError` naming the key (``case file`` for text that is not TOML):
+    text over :data:`MAX_CASE_CHARS`, nesting deeper than :data:`MAX_TOML_DEPTH`, integers
+    outside 64 bits, and every rule of :func:`case_from_dict`.
+    """
+    if not isinstance(text, str):
+        raise InputError("case file", type(text).__name__, "TOML text")
+    if len(text) > MAX_CASE_CHARS:
+        raise InputError("case file", f"{len(text):,} characters", f"at most {MAX_CASE_CHARS:,}")
     try:
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError("case file", _short(str(exc)), "valid TOML (see sample_cases/)") from None
+    except RecursionError:  # arrays or inline tables nested hundreds deep
+        raise InputError(
+            "case file", "values nested hundreds deep", f"at most {MAX_TOML_DEPTH} levels"
+        ) from None
+    except ValueError:  # an integer of thousands of digits (Python's conversion limit)
+        raise InputError(
+            "case file", "a number thousands of digits long", "64-bit integers"
+        ) from None
+    check_toml_shape(raw)
     return case_from_dict(raw, source_path=source_path)
+
+
+def check_toml_shape(raw: Any) -> None:
+    """Refuse values nested deeper than :data:`MAX_TOML_DEPTH` and integers beyond 64 bits.
+
+    Walks the parsed document without recursion, so the check itself has no depth limit.
+    """
+    low, high = TOML_INTEGER_RANGE
+    pending: list[tuple[str, Any, int]] = [("", raw, 0)]
+    while pending:
+        key, value, depth = pending.pop()
+        if isinstance(value, dict):
+            if depth >= MAX_TOML_DEPTH:
+                raise InputError(key, "(a table)", f"no deeper nesting (at most {MAX_TOML_DEPTH})")
+            for name, item in value.items():
+                pending.append((f"{key}.{name}" if key else str(name), item, depth + 1))
+        elif isinstance(value, list):
+            if depth >= MAX_TOML_DEPTH:
+                raise InputError(key, "(an array)", f"no deeper nesting (at most {MAX_TOML_DEPTH})")
+            for index, item in enumerate(value, start=1):
+                pending.append((f"{key}[{index}]", item, depth + 1))
+        elif isinstance(value, int) and not isinstance(value, bool) and not low <= value <= high:
+            raise InputError(
+                key, f"an integer of {len(str(abs(value)))} digits", "a 64-bit integer"
+            )
 
 
 def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
@@ -225,15 +295,17 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
     if not isinstance(raw, dict):
         raise InputError("case file", type(raw).__name__, "a TOML table")
     for key, value in raw.items():
-        if key == "bodies":
+        if key in ("bodies", *ARRAY_SECTIONS):
             if not isinstance(value, list):
-                raise InputError("bodies", value, "an array of tables ([[bodies]])")
+                raise InputError(key, value, f"an array of tables ([[{key}]])")
             continue
         if key == "sequence":  # multi-leg sequences: validated by solver.sequence.spec
             continue
         if key not in _SECTIONS:
             raise InputError(
-                key, "(section)", "one of " + ", ".join(sorted([*_SECTIONS, "bodies", "sequence"]))
+                key,
+                "(section)",
+                "one of " + ", ".join(sorted([*_SECTIONS, "bodies", "sequence", *ARRAY_SECTIONS])),
             )
         if not isinstance(value, dict):
             raise InputError(key, value, f"a [{key}] table")
@@ -348,6 +420,8 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
             f"no entry speed: {target.name} has no GM and radius",
         )
 
+    mass = read_mass_model(raw, departure, parking)
+    launch_site = read_launch_site(raw, departure)
     limits = Limits(**{name: setting(f"limits.{name}") for name in SECTIONS["limits"]})
     if (
         limits.tof_min_days is not None
@@ -383,6 +457,8 @@ def case_from_dict(raw: dict[str, Any], source_path: str = "") -> Case:
         element_ecliptic=ecliptic,
         description=setting("case.description"),
         bodies=tuple(bodies),
+        mass=mass,
+        launch_site=launch_site,
         departure_start_jd_tdb=dates["departure_start"][1],
         departure_end_jd_tdb=dates["departure_end"][1],
         arrival_start_jd_tdb=dates["arrival_start"][1],
@@ -428,6 +504,7 @@ def to_toml_dict(case: Case) -> dict[str, Any]:
         raw["limits"] = limits
     if case.bodies:
         raw["bodies"] = [element_body_dict(b) for b in case.bodies]
+    raw.update(launch_toml(case.mass, case.launch_site))
     return raw
 
 
@@ -435,16 +512,18 @@ def dumps_toml(case: Case) -> str:
     """The case as TOML text (for downloads and for saving an edited case)."""
     lines: list[str] = []
     raw = to_toml_dict(case)
+    arrays = ("bodies", *ARRAY_SECTIONS)
     for section, table in raw.items():
-        if section == "bodies":
+        if section in arrays:
             continue
         lines.append(f"[{section}]")
         lines.extend(f"{k} = {_toml_value(v)}" for k, v in table.items())
         lines.append("")
-    for body in raw.get("bodies", []):
-        lines.append("[[bodies]]")
-        lines.extend(f"{k} = {_toml_value(v)}" for k, v in body.items())
-        lines.append("")
+    for section in arrays:
+        for entry in raw.get(section, []):
+            lines.append(f"[[{section}]]")
+            lines.extend(f"{k} = {_toml_value(v)}" for k, v in entry.items())
+            lines.append("")
     return "\n".join(lines)
 
 
@@ -517,37 +596,62 @@ def element_body_dict(body: ElementBody) -> dict[str, Any]:
     return out
 
 
+_TOML_ESCAPES = {
+    "\\": "\\\\",
+    '"': '\\"',
+    "\b": "\\b",
+    "\t": "\\t",
+    "\n": "\\n",
+    "\f": "\\f",
+    "\r": "\\r",
+}
+
+
 def _toml_value(value: Any) -> str:
     if isinstance(value, bool):
         return "true" if value else "false"
     if isinstance(value, (int, float)):
         return repr(value)
-    escaped = str(value).replace("\\", "\\\\").replace('"', '\\"')
+    if isinstance(value, list):  # arrays and arrays of inline tables ([[vehicles]] performance)
+        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
+    if isinstance(value, dict):
+        return "{ " + ", ".join(f"{k} = {_toml_value(v)}" for k, v in value.items()) + " }"
+    # A basic string: every control character escaped (TOML 1.0.0, "String"), so a description
+    # with line breaks still gives one valid line.
+    escaped = "".join(
+        _TOML_ESCAPES.get(c, f"\\u{ord(c):04x}" if ord(c) < 32 or ord(c) == 127 else c)
+        for c in str(value)
+    )
     return f'"{escaped}"'
 
 
 def _check_dates_in_range(registry, bodies, source: str, dates) -> None:
     """Dates outside the ephemeris are refused up front, naming the date and the range."""
     for body in bodies:
+        # Element bodies have a range of their own ("elements"), checked like the ephemerides'.
         chosen = body.source_range(source) or body.source_range(body.default_source)
-        if chosen is None or body.elements is not None:
+        if chosen is None:
             continue
         for key, (text, jd) in dates.items():
             if not chosen.jd_tdb_min <= jd <= chosen.jd_tdb_max:
-                first = jd_tdb_to_utc(chosen.jd_tdb_min, digits=0)
-                last = jd_tdb_to_utc(chosen.jd_tdb_max, digits=0)
+                first = jd_tdb_to_iso_tdb(chosen.jd_tdb_min, digits=0)[:10]
+                last = jd_tdb_to_iso_tdb(chosen.jd_tdb_max, digits=0)[:10]
                 raise InputError(
                     f"window.{key}",
                     text,
-                    f"a date within the {chosen.source} range for {body.name}: {first} to {last}",
+                    f"a date within the {chosen.source} range for {body.name}: {first} to "
+                    f"{last} (TDB)",
                 )
 
 
 __all__ = [
     "ARRIVAL_MODES",
+    "MAX_CASE_CHARS",
+    "MAX_TOML_DEPTH",
     "Case",
     "Limits",
     "case_from_dict",
+    "check_toml_shape",
     "dumps_toml",
     "element_body_dict",
     "load_case",

@@ -20,7 +20,7 @@ from solver.time_units import SECONDS_PER_DAY
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies, body_states, transfer_angle_deg
 from solver.window.limits import within_limits
-from solver.window.metrics import METRICS, arc_metrics
+from solver.window.metrics import METRICS, arc_metrics, ranking_values
 
 
 @dataclass(frozen=True)
@@ -131,11 +131,11 @@ def select_arc(
             revolutions,
             f"0 to {max(a.revolutions for a in arcs)} (the case's max_revolutions)",
         )
-    rank = METRICS[metric].rank_by_magnitude
+    if metric not in METRICS:
+        raise InputError("metric", metric, "one of " + ", ".join(METRICS))
 
     def score(arc: Arc) -> tuple[int, float]:
-        value = arc.metrics.get(metric, math.nan)
-        value = abs(value) if rank else value
+        value = float(ranking_values(arc.metrics.get(metric, math.nan), metric))
         return (
             0 if arc.within else 1 if arc.ok else 2,
             value if math.isfinite(value) else math.inf,

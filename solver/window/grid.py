@@ -29,13 +29,16 @@ from solver.window.limits import within_limits
 from solver.window.metrics import METRICS, arc_metrics, ranking_values
 from solver.window.provenance import provenance, window_cache_key
 
-# One cell-arc holds about 16 float64 results plus temporaries of the solve (~400 bytes in all);
-# 20 million cell-arcs stay within about a third of a 24 GiB machine's memory.
+# 20 million cell-arcs are about 2.5 GB of arrays (BYTES_PER_CELL_ARC each); solving and writing
+# them peaks well within a third of a 24 GiB machine's memory (docs/engine.md, "Budgets").
 DEFAULT_MAX_CELL_ARCS = 20_000_000
 ENV_MAX_CELL_ARCS = "ARCWINDOW_MAX_CELL_ARCS"
 # Departure rows solved per chunk: small enough for smooth progress, large for vector speed.
 _ROWS_PER_CHUNK_TARGET_ARCS = 250_000
 _ARC_FLOAT_COLUMNS = tuple(m for m in METRICS if m != "tof_days")
+BYTES_PER_CELL_ARC = 8 * len(_ARC_FLOAT_COLUMNS) + 3
+"""Bytes one cell-arc holds in a solved grid: a float64 per metric (TOF is per cell) and the
+family, reason and within flags (one byte each)."""
 
 
 class Cancelled(Exception):
@@ -348,8 +351,24 @@ def max_cell_arcs(value: int | None = None) -> int:
     return DEFAULT_MAX_CELL_ARCS
 
 
+def estimated_grid_bytes(n_dep: int, n_arr: int, slots: int) -> int:
+    """Bytes a solved grid of this shape holds (its arrays), from the shape alone.
+
+    Per cell-arc: one float64 per metric but TOF, plus the family, reason and within flags
+    (:data:`BYTES_PER_CELL_ARC`); per cell: TOF and transfer angle; per date: its epoch and the
+    body's state. Solving adds at most one chunk of departure rows of temporaries
+    (``_ROWS_PER_CHUNK_TARGET_ARCS`` cell-arcs, tens of MB).
+    """
+    cells = n_dep * n_arr
+    return cells * slots * BYTES_PER_CELL_ARC + cells * 16 + (n_dep + n_arr) * 56
+
+
 def check_grid_size(case: Case, cap: int | None = None) -> tuple[int, int, int]:
-    """(n_dep, n_arr, slots) of the case's grid; InputError if it exceeds the cap."""
+    """(n_dep, n_arr, slots) of the case's grid; InputError if it exceeds the cap.
+
+    The counts come from the windows and steps by arithmetic (``axis_count``): no axis is built,
+    so a refused window costs nothing however large it is.
+    """
     n_dep = axis_count(
         case.departure_start, case.departure_end, case.departure_step_days, "window.departure"
     )
@@ -362,11 +381,17 @@ def check_grid_size(case: Case, cap: int | None = None) -> tuple[int, int, int]:
     if total > limit:
         raise InputError(
             "window",
-            f"{n_dep} departure x {n_arr} arrival dates x {slots} arcs = {total:,}",
-            f"at most {limit:,} cell-arcs (raise the step days, narrow the dates, lower "
-            f"max_revolutions, or set {ENV_MAX_CELL_ARCS})",
+            f"{n_dep} departure x {n_arr} arrival dates x {slots} arcs = {total:,} "
+            f"(about {_gigabytes(estimated_grid_bytes(n_dep, n_arr, slots))})",
+            f"at most {limit:,} cell-arcs (about {_gigabytes(limit * (BYTES_PER_CELL_ARC + 16))}; "
+            "raise the step days, narrow the dates, lower max_revolutions, or set "
+            f"{ENV_MAX_CELL_ARCS})",
         )
     return n_dep, n_arr, slots
+
+
+def _gigabytes(nbytes: float) -> str:
+    return f"{nbytes / 1e9:.3g} GB" if nbytes >= 1e8 else f"{nbytes / 1e6:.3g} MB"
 
 
 def compute_window(
@@ -494,6 +519,7 @@ def compute_window(
 
 
 __all__ = [
+    "BYTES_PER_CELL_ARC",
     "DEFAULT_MAX_CELL_ARCS",
     "ENV_MAX_CELL_ARCS",
     "TIE_BREAK",
@@ -502,6 +528,7 @@ __all__ = [
     "WindowGrid",
     "check_grid_size",
     "compute_window",
+    "estimated_grid_bytes",
     "grid_axes",
     "grid_dates",
     "max_cell_arcs",

@@ -1,9 +1,12 @@
 """Launch periods: the run of consecutive departure days one mission must cover.
 
 A mission cannot count on leaving on its single best day; it must be able to leave on any of L
-consecutive days. The launch vehicle then has to deliver the largest C3 of those days. This
-module places the period (its first day) and, for a fixed arrival date, that date, so that the
-largest C3 over the period is as small as possible:
+consecutive days. The launch vehicle then has to deliver the largest C3 of those days, and the
+mission gets the smallest delivered mass of those days. This module places the period (its first
+day) and, for a fixed arrival date, that date, so that the worst day is as good as possible: by
+default the largest C3 over the period is as small as possible; with ``metric=
+"delivered_mass_kg"`` the smallest delivered mass over the period is as large as possible (any
+ranking metric works alike: the worst day by its ranking, lowest best):
 
 * ``"fixed-arrival"``: every day of the period aims at one arrival date (a single arrival, as
   for an orbit insertion planned around one approach geometry); the arrival date is chosen on
@@ -11,8 +14,9 @@ largest C3 over the period is as small as possible:
 * ``"free-arrival"``: each day flies its own best arrival date.
 
 Every day's arc meets every limit of the case (the limits table of
-:mod:`solver.window.limits`: C3, |DLA|, arrival v∞, TOF, clearing the central body), so the period
-is flyable on each of its days; the largest C3 and |DLA| over the period are reported. When no
+:mod:`solver.window.limits`: C3, |DLA|, arrival v∞, TOF, delivered mass, clearing the central
+body, the launch site's reach), so the period is flyable on each of its days; the largest C3 and
+|DLA| and the smallest delivered mass over the period are reported. When no
 placement of L days has an arc within limits on every day, the error says how long the longest
 such run of days is.
 """
@@ -34,6 +38,8 @@ from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, solve_cell
 from solver.window.grid import compute_window
 from solver.window.limits import LIMIT_RULES
+from solver.window.mass import check_mass_metric
+from solver.window.metrics import RANKING_METRICS, ranking_values
 from solver.window.outputs import case_outputs
 
 STRATEGIES = ("fixed-arrival", "free-arrival")
@@ -53,6 +59,9 @@ class PeriodDay:
     tof_days: float
     revolutions: int
     branch: str
+    injected_mass_kg: float = math.nan
+    delivered_mass_kg: float = math.nan
+    vinf_departure_km_s: float = math.nan
 
 
 @dataclass(frozen=True)
@@ -69,6 +78,9 @@ class LaunchPeriod:
     meets_c3_limit: bool | None
     meets_dla_limit: bool | None
     days: tuple[PeriodDay, ...]
+    metric: str = "c3_km2_s2"
+    min_delivered_mass_kg: float = math.nan  # NaN when the case has no spacecraft mass
+    meets_mass_limit: bool | None = None
 
 
 def _feasibility_case(case: Case) -> Case:
@@ -95,10 +107,18 @@ def _limits_text(case: Case) -> str:
     return ", ".join(rules) if rules else "no limits but clearing the central body"
 
 
-def _best_arc(arcs: list[Arc]) -> Arc | None:
-    """The feasible arc of lowest C3 among a cell's arcs, or None."""
-    feasible = [a for a in arcs if a.ok and a.within]
-    return min(feasible, key=lambda a: a.metrics["c3_km2_s2"]) if feasible else None
+def _score(arc: Arc | None, metric: str) -> float:
+    """How bad an arc is for ``metric`` (lower is better; no arc is worst of all)."""
+    if arc is None:
+        return math.inf
+    value = float(ranking_values(arc.metrics[metric], metric))
+    return value if math.isfinite(value) else math.inf
+
+
+def _best_arc(arcs: list[Arc], metric: str = "c3_km2_s2") -> Arc | None:
+    """The feasible arc best by ``metric`` among a cell's arcs, or None."""
+    feasible = [a for a in arcs if a.ok and a.within and math.isfinite(_score(a, metric))]
+    return min(feasible, key=lambda a: _score(a, metric)) if feasible else None
 
 
 def _best_arrival(c3_of_arrival, grid_arrival_jd: float, step_days: float) -> float:
@@ -134,11 +154,18 @@ def _day(arc: Arc) -> PeriodDay:
         arc.tof_days,
         arc.revolutions,
         arc.branch,
+        m["injected_mass_kg"],
+        m["delivered_mass_kg"],
+        m["vinf_departure_km_s"],
     )
 
 
-def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival") -> LaunchPeriod:
-    """Place a launch period of ``length_days`` days to minimize its largest C3.
+def launch_period(
+    case: Case, length_days: int, strategy: str = "fixed-arrival", metric: str = "c3_km2_s2"
+) -> LaunchPeriod:
+    """Place a launch period of ``length_days`` days so that its worst day is as good as it can be:
+    the largest C3 as small as possible (default), or by ``metric`` (``"delivered_mass_kg"``:
+    the smallest delivered mass as large as possible).
 
     Parameters
     ----------
@@ -149,6 +176,9 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
         Consecutive departure days the mission must cover (1 to the window's length).
     strategy : {"fixed-arrival", "free-arrival"}
         One arrival date for the whole period, or each day's own best arrival.
+    metric : str
+        One of ``RANKING_METRICS``; each day flies its best arc by it, and the period's worst day
+        by it is made as good as possible.
 
     Raises
     ------
@@ -158,6 +188,9 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
     """
     if strategy not in STRATEGIES:
         raise InputError("strategy", strategy, "'fixed-arrival' or 'free-arrival'")
+    if metric not in RANKING_METRICS:
+        raise InputError("metric", metric, "one of " + ", ".join(RANKING_METRICS))
+    check_mass_metric(case, metric)
     case_outputs(case).check_launch_periods(case)
     feasible_case = _feasibility_case(case)
     grid = compute_window(feasible_case)
@@ -174,7 +207,10 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
         )
     length_days = int(length_days)
     bodies = CaseBodies.of(feasible_case)
-    c3 = np.where(grid.cell_within(), grid.best_values("c3_km2_s2"), np.inf)
+    # How bad each cell's best arc is by the metric (lower is better; C3 by default); a cell
+    # outside limits, or without the metric (no mass), is not a feasible day.
+    bad = ranking_values(grid.best_values(metric, by=metric), metric)
+    c3 = np.where(grid.cell_within() & np.isfinite(bad), bad, np.inf)
 
     if strategy == "fixed-arrival":
         worst = sliding_window_view(c3, length_days, axis=0).max(axis=-1)  # (starts, n_arr)
@@ -191,11 +227,11 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
         arr0 = float(grid.arrival_jd_tdb[j])
 
         def period_max(arrival: float) -> float:
-            arcs = [_best_arc(solve_cell(feasible_case, d, arrival, bodies)) for d in dep]
-            return max((a.metrics["c3_km2_s2"] if a else math.inf) for a in arcs)
+            arcs = [_best_arc(solve_cell(feasible_case, d, arrival, bodies), metric) for d in dep]
+            return max(_score(a, metric) for a in arcs)
 
         arrival = _best_arrival(period_max, arr0, feasible_case.arrival_step_days)
-        arcs = [_best_arc(solve_cell(feasible_case, d, arrival, bodies)) for d in dep]
+        arcs = [_best_arc(solve_cell(feasible_case, d, arrival, bodies), metric) for d in dep]
         fixed_arrival: float | None = arrival
     else:
         per_day = c3.min(axis=1)
@@ -215,12 +251,13 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
         for i, d in enumerate(dep, start=int(start)):
             arr0 = float(grid.arrival_jd_tdb[int(np.argmin(c3[i]))])
 
-            def day_c3(arrival: float, d=d) -> float:
-                arc = _best_arc(solve_cell(feasible_case, d, arrival, bodies))
-                return arc.metrics["c3_km2_s2"] if arc else math.inf
+            def day_score(arrival: float, d=d) -> float:
+                return _score(
+                    _best_arc(solve_cell(feasible_case, d, arrival, bodies), metric), metric
+                )
 
-            arrival = _best_arrival(day_c3, arr0, step)
-            arcs.append(_best_arc(solve_cell(feasible_case, d, arrival, bodies)))
+            arrival = _best_arrival(day_score, arr0, step)
+            arcs.append(_best_arc(solve_cell(feasible_case, d, arrival, bodies), metric))
         fixed_arrival = None
 
     # Every day flies an arc within every limit: the grid placed the period on such days and
@@ -230,6 +267,7 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
     days = tuple(_day(a) for a in arcs if a is not None)
     max_c3 = max(d.c3_km2_s2 for d in days)
     max_dla = max(abs(d.dla_deg) for d in days)
+    min_mass = min(d.delivered_mass_kg for d in days)
     lim = case.limits
     return LaunchPeriod(
         length_days=length_days,
@@ -242,6 +280,11 @@ def launch_period(case: Case, length_days: int, strategy: str = "fixed-arrival")
         meets_c3_limit=None if lim.c3_max_km2_s2 is None else max_c3 <= lim.c3_max_km2_s2,
         meets_dla_limit=None if lim.dla_max_deg is None else max_dla <= lim.dla_max_deg,
         days=days,
+        metric=metric,
+        min_delivered_mass_kg=min_mass,
+        meets_mass_limit=None
+        if lim.delivered_mass_min_kg is None
+        else bool(min_mass >= lim.delivered_mass_min_kg),
     )
 
 

@@ -2,8 +2,10 @@
 
 Every consumer (the grid's ``within`` mask, single arcs, refinement, surveys, launch periods and
 the dashboard's details) reads :data:`LIMIT_RULES`, so a limit added here is checked, reported and
-shaded everywhere at once. Besides the analyst's bounds, an arc must clear the central body's
-surface (its periapsis above the radius), a rule of physics rather than of the case.
+shaded everywhere at once. Besides the analyst's bounds, two rules of physics rather than of the
+analyst: an arc must clear the central body's surface (its periapsis above the radius), and,
+when the case has a launch site, its departure asymptote must be one a parking orbit from that
+site contains (|DLA| within the site's reach, :mod:`solver.launch.site`).
 """
 
 from __future__ import annotations
@@ -68,22 +70,32 @@ LIMIT_RULES: tuple[LimitRule, ...] = (
     LimitRule("dla_max_deg", "dla_deg", "max", by_magnitude=True),
     LimitRule("tof_min_days", "tof_days", "min"),
     LimitRule("tof_max_days", "tof_days", "max"),
+    LimitRule("delivered_mass_min_kg", "delivered_mass_kg", "min"),
 )
 """Every bound a case can set, in the order they are reported."""
 
 SURFACE_RULE_TEXT = "arc periapsis inside the central body"
+SITE_RULE_TEXT = "beyond the launch site's reach"
+
+
+def site_reach_deg(case: Case) -> float | None:
+    """Largest |DLA| the case's launch site reaches without a plane change, deg (None: no site)."""
+    return None if case.launch_site is None else case.launch_site.max_reachable_dla_deg
 
 
 @dataclass(frozen=True)
 class Breach:
     """One limit an arc breaks: the rule, the arc's value and the limit."""
 
-    rule: LimitRule | None  # None: the arc passes inside the central body
+    rule: LimitRule | None  # None: a rule of physics, named by ``physical``
     value: float
     limit: float
+    physical: str = "surface"  # "surface" (central body) or "site" (launch site's reach)
 
     @property
     def text(self) -> str:
+        if self.rule is None and self.physical == "site":
+            return f"|DLA| {abs(self.value):.4g} > {self.limit:.4g} deg, {SITE_RULE_TEXT}"
         if self.rule is None:
             return SURFACE_RULE_TEXT
         sign = ">" if self.rule.bound == "max" else "<"
@@ -120,6 +132,10 @@ def within_limits(
     if math.isfinite(radius):
         with np.errstate(invalid="ignore"):
             ok &= metrics["periapsis_km"] > radius
+    reach = site_reach_deg(case)
+    if reach is not None:
+        with np.errstate(invalid="ignore"):
+            ok &= np.abs(metrics["dla_deg"]) <= reach
     return ok
 
 
@@ -139,6 +155,10 @@ def breaches(case: Case, bodies: CaseBodies, values: Mapping[str, float]) -> lis
     periapsis = float(values.get("periapsis_km", math.nan))
     if math.isfinite(radius) and math.isfinite(periapsis) and not periapsis > radius:
         out.append(Breach(None, periapsis, radius))
+    reach = site_reach_deg(case)
+    dla = float(values.get("dla_deg", math.nan))
+    if reach is not None and math.isfinite(dla) and not abs(dla) <= reach:
+        out.append(Breach(None, dla, reach, physical="site"))
     return out
 
 
@@ -159,6 +179,9 @@ def margins(case: Case, bodies: CaseBodies, values: Mapping[str, float]) -> list
     radius = bodies.central.radius_km
     if math.isfinite(radius):
         out.append(float(values.get("periapsis_km", math.nan)) / radius - 1.0)
+    reach = site_reach_deg(case)
+    if reach is not None:
+        out.append(reach - abs(float(values.get("dla_deg", math.nan))))
     return [x if math.isfinite(x) else -1e6 for x in out]
 
 
@@ -169,11 +192,13 @@ def breach_text(case: Case, bodies: CaseBodies, values: Mapping[str, float]) -> 
 
 __all__ = [
     "LIMIT_RULES",
+    "SITE_RULE_TEXT",
     "SURFACE_RULE_TEXT",
     "Breach",
     "LimitRule",
     "breach_text",
     "breaches",
     "margins",
+    "site_reach_deg",
     "within_limits",
 ]

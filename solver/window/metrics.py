@@ -10,6 +10,9 @@ gives the numbers that decide a mission:
 * arrival v∞, its declination and right ascension (ICRF), arrival Δv into the capture orbit
   (zero for a flyby, |v∞| for a rendezvous), speed at the entry interface;
 * total Δv; the arc's periapsis and apoapsis about the central body, a and e;
+* mass, when the case gives a launch vehicle or a wet mass: injected mass, propellant of each
+  burn, mass delivered into the final orbit and its margin (conventions in
+  :mod:`solver.window.mass`);
 * whether the arc is within the case's limits, and a reason code for every arc that is missing.
 
 All vectors are in ICRF, the frame of the ephemeris; "prograde" turns about the ecliptic pole for
@@ -41,6 +44,7 @@ from solver.ephemeris.bodies import Body, has_mass
 from solver.errors import InputError
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
+from solver.window.mass import mass_metrics
 
 
 @dataclass(frozen=True)
@@ -52,6 +56,7 @@ class Metric:
     unit: str
     description: str
     rank_by_magnitude: bool = False  # rank |value| (DLA: the launch site cares about |DLA|)
+    higher_is_better: bool = False  # "best" maximizes it (delivered mass)
 
 
 METRICS: dict[str, Metric] = {
@@ -90,6 +95,40 @@ METRICS: dict[str, Metric] = {
         Metric("apoapsis_km", "arc apoapsis", "km", "farthest distance from the central body"),
         Metric("a_km", "arc semi-major axis", "km", "negative for hyperbolic arcs"),
         Metric("e", "arc eccentricity", "", "eccentricity of the transfer arc"),
+        Metric(
+            "injected_mass_kg",
+            "injected mass",
+            "kg",
+            "spacecraft mass on the departure arc: the launch vehicle's capability at the C3 "
+            "(after adapter and margin), at most the wet mass limit",
+            higher_is_better=True,
+        ),
+        Metric(
+            "propellant_departure_kg",
+            "departure propellant",
+            "kg",
+            "spacecraft propellant for the departure burn (0 when the vehicle makes it)",
+        ),
+        Metric(
+            "propellant_arrival_kg",
+            "arrival propellant",
+            "kg",
+            "spacecraft propellant for the arrival burn (0 for a flyby)",
+        ),
+        Metric(
+            "delivered_mass_kg",
+            "delivered mass",
+            "kg",
+            "mass left in the final orbit after every spacecraft burn",
+            higher_is_better=True,
+        ),
+        Metric(
+            "mass_margin_kg",
+            "mass margin",
+            "kg",
+            "delivered mass minus the required delivered mass",
+            higher_is_better=True,
+        ),
     )
 }
 RANKING_METRICS = (
@@ -101,14 +140,20 @@ RANKING_METRICS = (
     "vinf_departure_km_s",
     "dv_departure_km_s",
     "dv_arrival_km_s",
+    "delivered_mass_kg",
+    "injected_mass_kg",
 )
 _ARC_FLOAT_COLUMNS = tuple(m for m in METRICS if m != "tof_days")
 
 
 def ranking_values(values: Any, metric: str) -> Any:
-    """Values (a float or an array) as they rank for ``metric``: magnitudes for metrics ranked
-    by magnitude (DLA), the values themselves otherwise."""
-    return np.abs(values) if METRICS[metric].rank_by_magnitude else values
+    """Values (a float or an array) as they rank for ``metric``, lowest best: magnitudes for
+    metrics ranked by magnitude (DLA), negated values for metrics where more is better (delivered
+    mass), the values themselves otherwise."""
+    meta = METRICS[metric]
+    if meta.rank_by_magnitude:
+        return np.abs(values)
+    return -values if meta.higher_is_better else values
 
 
 def departure_dv_km_s(
@@ -212,6 +257,9 @@ def arc_metrics(
             case.capture_apoapsis_altitude_km,
         )
         out["dv_total_km_s"] = out["dv_departure_km_s"] + out["dv_arrival_km_s"]
+        out.update(
+            mass_metrics(case, bodies, vd2, out["dv_departure_km_s"], out["dv_arrival_km_s"])
+        )
         if case.entry_altitude_km is not None:
             out["entry_speed_km_s"] = np.sqrt(
                 va2 + 2 * tgt.gm_km3_s2 / (tgt.radius_km + case.entry_altitude_km)

@@ -14,6 +14,8 @@ the dashboard alike:
   periods do not apply.
 * **Planet-centred** cases (any central body but the Sun) state the transfer time in hours
   beside days.
+* **Mass** (:mod:`solver.window.mass`) where the case gives a spacecraft mass (launch vehicles or
+  a wet mass): injected mass, propellant, delivered mass; the margin with a required mass.
 
 The ephemeris a case's states come from (DE423, the mean-element table, or nothing but the
 elements of its own bodies) is :func:`solver.window.provenance.ephemeris_label`.
@@ -32,6 +34,7 @@ from solver.errors import InputError
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies, body_states, transfer_angle_deg
 from solver.window.cell import Arc
+from solver.window.mass import MASS_METRICS
 from solver.window.metrics import METRICS, RANKING_METRICS
 
 LAUNCH_ONLY = ("c3_km2_s2", "vinf_departure_km_s", "dla_deg", "rla_deg")
@@ -83,6 +86,14 @@ class CaseOutputs:
         """``metric`` if it describes this case's arcs, else InputError naming what does."""
         if metric not in METRICS:
             raise InputError(field, metric, "one of " + ", ".join(self.ranking_metrics))
+        if metric in MASS_METRICS and metric not in self.metrics:
+            raise InputError(
+                field,
+                metric,
+                "a metric this case computes: mass needs [[vehicles]] or "
+                "spacecraft.wet_mass_max_kg (the margin, spacecraft.required_delivered_mass_kg): "
+                + ", ".join(self.ranking_metrics),
+            )
         if metric not in self.metrics:
             raise InputError(
                 field,
@@ -120,6 +131,10 @@ def case_outputs(case: Case, bodies: CaseBodies | None = None) -> CaseOutputs:
                 leave_out.add("vinf_arrival_km_s")
     if case.entry_altitude_km is None:
         leave_out.add("entry_speed_km_s")
+    if not case.mass.gives_mass:  # no vehicle and no wet mass: no kilograms to speak of
+        leave_out.update(MASS_METRICS)
+    elif case.mass.required_delivered_mass_kg is None:
+        leave_out.add("mass_margin_kg")
     metrics = tuple(m for m in METRICS if m not in leave_out)
     ranking = tuple(m for m in RANKING_METRICS if m in metrics)
     if not launch:

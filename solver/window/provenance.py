@@ -10,6 +10,7 @@ from solver.caution import CAUTION
 from solver.digest import cache_key
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
+from solver.window.mass import mass_notes
 from solver.window.metrics import dv_conventions
 from solver.window.outputs import case_outputs
 
@@ -64,6 +65,7 @@ def window_cache_key(case: Case) -> str:
 
 def provenance(case: Case) -> dict[str, Any]:
     """What every output states about where its numbers come from."""
+    bodies = CaseBodies.of(case)
     return {
         "case_title": case.title,
         "case_hash": case_hash(case),
@@ -78,9 +80,23 @@ def provenance(case: Case) -> dict[str, Any]:
             "cross-track axes of the departure body's and the target's orbits"
         ),
         "time_scales": "dates shown in UTC; computed in TDB",
-        **dv_conventions(case, CaseBodies.of(case)),
+        **dv_conventions(case, bodies),
+        **mass_notes(case, bodies),
+        **_site(case),
         "computed_utc": _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
         "caution": CAUTION,
+    }
+
+
+def _site(case: Case) -> dict[str, str]:
+    site = case.launch_site
+    if site is None:
+        return {}
+    low, high = site.reachable_inclinations_deg
+    return {
+        "launch_site": f"{site.name}: latitude {site.latitude_deg:g} deg, azimuths "
+        f"{site.azimuth_min_deg:g} to {site.azimuth_max_deg:g} deg, parking orbits {low:.2f} to "
+        f"{high:.2f} deg inclination, |DLA| up to {site.max_reachable_dla_deg:.2f} deg"
     }
 
 

@@ -38,6 +38,7 @@ from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, select_arc, solve_cell
 from solver.window.grid import WindowGrid, compute_window, ranks_before
 from solver.window.limits import margins
+from solver.window.mass import check_mass_metric
 from solver.window.metrics import METRICS, ranking_values
 
 METHODS = ("zoom", "slsqp")
@@ -101,6 +102,7 @@ def refine_best(
         raise InputError("metric", metric, "one of " + ", ".join(METRICS))
     if method not in METHODS:
         raise InputError("method", method, "'zoom' or 'slsqp'")
+    check_mass_metric(case, metric)
     slots = None
     if revolutions is not None:
         if revolutions != 0 and branch not in (None, "low", "high"):

@@ -15,7 +15,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any, Literal
 
-from solver.errors import InputError
+from solver.errors import InputError, has_control_characters
 
 Kind = Literal["number", "integer", "text", "choice", "date", "body"]
 Control = Literal["number", "dropdown", "range", "none"]
@@ -49,6 +49,11 @@ class Setting:
         Kind of dashboard control that edits it.
     description : str
         One line for the case-format documentation.
+    max_chars : int
+        Longest text of a ``text`` setting.
+    multiline : bool
+        A ``text`` setting that may hold line breaks and tabs (other control characters are
+        refused in every text: a newline in a title would break the CSV header it goes into).
     """
 
     key: str
@@ -63,6 +68,8 @@ class Setting:
     url: str | None = None
     control: Control = "none"
     description: str = ""
+    max_chars: int = 200
+    multiline: bool = False
 
     @property
     def section(self) -> str:
@@ -85,7 +92,8 @@ class Setting:
             return "an ISO 8601 UTC date, e.g. 2031-01-01"
         if self.kind == "body":
             return "a body name (arcwindow bodies lists them)"
-        return "a non-empty string"
+        breaks = "line breaks allowed, no other" if self.multiline else "no"
+        return f"text of 1 to {self.max_chars} characters, {breaks} control characters"
 
     def read(self, table: Mapping[str, Any]) -> Any:
         """The validated value of this setting in its section's ``table`` (or its default)."""
@@ -103,7 +111,10 @@ class Setting:
                 raise InputError(self.key, value, self.accepted)
             if self.kind == "integer" and not isinstance(value, int):
                 raise InputError(self.key, value, self.accepted)
-            number = float(value)
+            try:
+                number = float(value)
+            except OverflowError:  # an integer beyond any float (above 1.8e308)
+                raise InputError(self.key, value, self.accepted) from None
             if not math.isfinite(number) or not (
                 (self.low is None or number >= self.low)
                 and (self.high is None or number <= self.high)
@@ -116,6 +127,10 @@ class Setting:
                 raise InputError(self.key, value, self.accepted)
             return text.strip()
         if not isinstance(value, str) or not value.strip():
+            raise InputError(self.key, value, self.accepted)
+        if has_control_characters(value, allow_breaks=self.multiline):
+            raise InputError(self.key, value, self.accepted)
+        if self.kind == "text" and len(value.strip()) > self.max_chars:
             raise InputError(self.key, value, self.accepted)
         if self.kind == "choice":
             choice = value.strip().lower()
@@ -144,8 +159,22 @@ _STEP = {
 
 SETTINGS: tuple[Setting, ...] = (
     # [case]
-    Setting("case.title", "text", "title", required=True, description="Name of the case."),
-    Setting("case.description", "text", "description", default="", description="Free text."),
+    Setting(
+        "case.title",
+        "text",
+        "title",
+        required=True,
+        description="Name of the case: one line of at most 200 characters.",
+    ),
+    Setting(
+        "case.description",
+        "text",
+        "description",
+        default="",
+        max_chars=4000,
+        multiline=True,
+        description="Free text, up to 4000 characters (line breaks allowed).",
+    ),
     Setting(
         "case.central_body",
         "body",
@@ -356,6 +385,16 @@ SETTINGS: tuple[Setting, ...] = (
         control="number",
         description="Longest time of flight.",
     ),
+    Setting(
+        "limits.delivered_mass_min_kg",
+        "number",
+        "delivered mass min",
+        unit="kg",
+        low=0.0,
+        high=1e7,
+        description="Smallest mass delivered into the final orbit (needs a spacecraft mass: "
+        "[[vehicles]] or spacecraft.wet_mass_max_kg).",
+    ),
     # [ephemeris]
     Setting(
         "ephemeris.source",
@@ -377,6 +416,81 @@ SETTINGS: tuple[Setting, ...] = (
         "element lists (0.042 arcsec apart: up to ~85 km at 2.8 au). A body's frame "
         "'ecliptic_iau2006' or 'ecliptic_iau1976' says it outright. Survey catalogues read "
         "with the base case's choice.",
+    ),
+    # [launch_site]: optional, for Earth departures (see solver.launch.site)
+    Setting(
+        "launch_site.name",
+        "text",
+        "launch site",
+        default="launch site",
+        description="Name of the launch site.",
+    ),
+    Setting(
+        "launch_site.latitude_deg",
+        "number",
+        "site latitude",
+        unit="deg",
+        low=-89.0,
+        high=89.0,
+        description="Geocentric latitude of the site, north positive (spherical Earth); "
+        "required with [launch_site].",
+    ),
+    Setting(
+        "launch_site.longitude_deg",
+        "number",
+        "site longitude",
+        unit="deg",
+        low=-180.0,
+        high=360.0,
+        description="East longitude of the site; required with [launch_site].",
+    ),
+    Setting(
+        "launch_site.azimuth_min_deg",
+        "number",
+        "azimuth from",
+        unit="deg",
+        low=0.0,
+        high=360.0,
+        description="Allowed launch azimuths run clockwise (from north through east) from this; "
+        "required with [launch_site].",
+    ),
+    Setting(
+        "launch_site.azimuth_max_deg",
+        "number",
+        "azimuth to",
+        unit="deg",
+        low=0.0,
+        high=720.0,
+        description="Where the allowed azimuths end, clockwise from azimuth_min_deg: above it "
+        "and at most 360 past it (a range through north is written past 360: 340 to 380); "
+        "required with [launch_site].",
+    ),
+    # [spacecraft]: optional (with [[vehicles]] and [[propulsion]], see solver.window.mass)
+    Setting(
+        "spacecraft.vehicle",
+        "text",
+        "launch vehicle",
+        description="Name of the [[vehicles]] entry the mass metrics use (default: the first).",
+    ),
+    Setting(
+        "spacecraft.wet_mass_max_kg",
+        "number",
+        "wet mass limit",
+        unit="kg",
+        low=1.0,
+        high=1e7,
+        description="Largest spacecraft mass at injection (full tanks); without [[vehicles]], "
+        "the spacecraft's mass at injection.",
+    ),
+    Setting(
+        "spacecraft.required_delivered_mass_kg",
+        "number",
+        "required delivered mass",
+        unit="kg",
+        low=0.0,
+        high=1e7,
+        description="Mass the mission needs in the final orbit; the mass margin is measured "
+        "against it.",
     ),
 )
 """Every scalar setting of a case file, in the order the documentation lists them."""

@@ -44,7 +44,7 @@ from .. import theme
 from ..case_catalogue import MAX_UPLOAD_BYTES, clean_filename, forget, my_case_ids, remember
 from ..controls import CONTROL_IDS, CONTROLS, ERROR_TARGETS, SLIDER_IDS, SLIDERS
 from ..display_data import display_name
-from ..exports import arc_json, arc_oem, figure_html, grid_csv_bytes, view_stem
+from ..exports import arc_json, arc_oem, figure_html, view_stem
 from ..grid_jobs import grid_key
 from ..map_loop import (
     GridStatus,
@@ -827,8 +827,8 @@ def _register_shortlist(app, service: WindowService) -> None:
 # Downloads
 
 
+# The grid table is not built here: app/dashboard/downloads.py streams it from a file.
 DOWNLOAD_BUTTONS = {
-    "button-download-grid-csv": "grid",
     "button-download-arc-oem": "oem",
     "button-download-arc-json": "json",
     "button-download-map-html": "map",
@@ -860,10 +860,6 @@ def _register_downloads(app, service: WindowService) -> None:
             return no_update, _notes([str(exc)])
         grid = service.grid(case)
         stem = view_stem(case, view)
-        if kind == "grid":
-            if grid is None:
-                return no_update, _notes(["The grid is still being solved."])
-            return dcc.send_bytes(grid_csv_bytes(grid), f"{stem}_grid.csv"), ""
         if kind == "map":
             if grid is None:
                 return no_update, _notes(["The grid is still being solved."])

@@ -1,0 +1,209 @@
+"""The shortlist store: nothing kept is ever lost.
+
+A store or an earlier JSON file that cannot be read is kept aside and reported, never
+overwritten (an unreadable shortlist.json used to read as empty, and the next add replaced 354
+entries with 1); entries are validated on read with a reason and never dropped by another
+write (an entry missing one field used to vanish at the next add); each author label has a
+bound with a clear message; writers in several processes lose nothing.
+"""
+
+from __future__ import annotations
+
+import json
+import multiprocessing
+import os
+import sqlite3
+import uuid
+from pathlib import Path
+
+import pytest
+
+from app.dashboard.shortlist import (
+    MAX_ENTRIES_PER_AUTHOR,
+    STORE_NAME,
+    Shortlist,
+    validated_entry,
+)
+from solver.errors import InputError
+
+ENTRY = {
+    "case_id": "tallis_rendezvous",
+    "case_title": "Tallis rendezvous",
+    "case_hash": "abc123",
+    "departure_utc": "2036-03-01T00:00:00Z",
+    "arrival_utc": "2036-09-01T00:00:00Z",
+    "revolutions": 0,
+    "branch": "single",
+    "metrics": {"c3_km2_s2": 13.2, "dla_deg": None},
+    "view": "?case=tallis_rendezvous",
+}
+
+
+def legacy_entry(k: int) -> dict:
+    return {
+        **ENTRY,
+        "id": uuid.UUID(int=k).hex[-12:],
+        "note": f"note {k}",
+        "author": "RM",
+        "created_utc": "2031-01-01T00:00:00Z",
+        "extra": {},
+    }
+
+
+def write_legacy(folder: Path, entries: list[dict]) -> Path:
+    path = folder / "shortlist.json"
+    path.write_text(json.dumps({"format": 1, "entries": entries}, indent=1), encoding="utf-8")
+    return path
+
+
+# ---------------------------------------------------------------------------------------------
+# The earlier JSON file
+
+
+def test_the_json_file_is_imported_once_and_kept(tmp_path):
+    write_legacy(tmp_path, [legacy_entry(k) for k in range(354)])
+    shortlist = Shortlist(tmp_path / "shortlist.json")
+    assert [e.note for e in shortlist.entries()] == [f"note {k}" for k in range(354)]
+    assert not (tmp_path / "shortlist.json").exists()
+    kept = list(tmp_path.glob("shortlist.json.imported-*"))
+    assert len(kept) == 1 and len(json.loads(kept[0].read_text())["entries"]) == 354
+    shortlist.add(**ENTRY, note="new", author="AB")
+    again = Shortlist(tmp_path / "shortlist.json")  # a restart imports nothing twice
+    assert len(again.entries()) == 355
+
+
+def test_a_truncated_json_file_is_kept_aside_and_never_overwritten(tmp_path):
+    whole = write_legacy(tmp_path, [legacy_entry(k) for k in range(354)]).read_bytes()
+    damaged = whole[: len(whole) // 2]
+    (tmp_path / "shortlist.json").write_bytes(damaged)
+    shortlist = Shortlist(tmp_path / "shortlist.json")
+    assert shortlist.entries() == []
+    shortlist.add(**ENTRY, note="first after the damage", author="AB")
+    aside = list(tmp_path.glob("shortlist.json.unreadable-*"))
+    assert len(aside) == 1 and aside[0].read_bytes() == damaged  # every byte kept
+    problems = shortlist.problems()
+    assert any("could not be read" in p and aside[0].name in p for p in problems), problems
+    assert [e.note for e in shortlist.entries()] == ["first after the damage"]
+
+
+def test_a_truncated_store_is_kept_aside_and_a_new_one_started(tmp_path):
+    shortlist = Shortlist(tmp_path / STORE_NAME)
+    for k in range(120):
+        shortlist.add(**ENTRY, note=f"n{k}", author=f"a{k % 3}")
+    store = tmp_path / STORE_NAME
+    with sqlite3.connect(store) as connection:  # fold the write-ahead log in, as on a clean stop
+        connection.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+    data = store.read_bytes()
+    damaged = data[: len(data) // 2]
+    store.write_bytes(damaged)
+    for side in ("-wal", "-shm"):
+        Path(str(store) + side).unlink(missing_ok=True)
+
+    restarted = Shortlist(tmp_path / STORE_NAME)
+    restarted.add(**ENTRY, note="after", author="AB")
+    aside = list(tmp_path.glob(f"{STORE_NAME}.unreadable-*"))
+    assert [p.read_bytes() for p in aside if not p.name.endswith(("-wal", "-shm"))] == [damaged]
+    assert any("kept as" in p for p in restarted.problems())
+    assert [e.note for e in restarted.entries()] == ["after"]
+
+
+def test_a_file_that_is_not_a_store_is_kept_aside(tmp_path):
+    (tmp_path / STORE_NAME).write_bytes(b"these are someone's notes, not a database\n" * 100)
+    shortlist = Shortlist(tmp_path / STORE_NAME)
+    shortlist.add(**ENTRY, note="x", author="")
+    aside = list(tmp_path.glob(f"{STORE_NAME}.unreadable-*"))
+    assert len(aside) == 1 and aside[0].read_bytes().startswith(b"these are someone's notes")
+
+
+# ---------------------------------------------------------------------------------------------
+# Entries validated on read
+
+
+@pytest.mark.parametrize(
+    ("change", "reason"),
+    [
+        ({"note": None}, "note"),
+        ({"revolutions": "two"}, "revolutions"),
+        ({"view": "javascript:alert(1)"}, "view"),
+        ({"view": "https://evil.example/"}, "view"),
+        ({"metrics": {"c3_km2_s2": "13"}}, "metrics.c3_km2_s2"),
+        ({"case_title": "two\nlines"}, "case_title"),
+        ({"branch": "sideways"}, "branch"),
+    ],
+)
+def test_invalid_entries_are_reported_with_a_reason(change, reason):
+    bad = {**legacy_entry(1), **change}
+    with pytest.raises(ValueError, match=reason):
+        validated_entry(bad)
+
+
+def test_an_entry_missing_a_field_is_reported_and_survives_other_writes(tmp_path):
+    entries = [legacy_entry(k) for k in range(5)]
+    del entries[2]["note"]
+    write_legacy(tmp_path, entries)
+    shortlist = Shortlist(tmp_path / "shortlist.json")
+    assert [e.note for e in shortlist.entries()] == ["note 0", "note 1", "note 3", "note 4"]
+    broken_id = entries[2]["id"]
+    assert any(broken_id in p and "missing field 'note'" in p for p in shortlist.problems())
+    added = shortlist.add(**ENTRY, note="new", author="AB")
+    shortlist.remove(added.id)
+    # still in the store, still reported: nobody's write dropped it
+    assert any(broken_id in p for p in Shortlist(tmp_path / STORE_NAME).problems())
+
+
+def test_a_changed_record_fails_its_checksum(tmp_path):
+    shortlist = Shortlist(tmp_path / STORE_NAME)
+    entry = shortlist.add(**ENTRY, note="original", author="AB")
+    with sqlite3.connect(tmp_path / STORE_NAME) as connection:
+        connection.execute(
+            "UPDATE entries SET record = replace(record, 'original', 'changed!') WHERE id = ?",
+            (entry.id,),
+        )
+    assert shortlist.entries() == []
+    assert any("checksum" in p for p in shortlist.problems())
+
+
+# ---------------------------------------------------------------------------------------------
+# Bounds and versions
+
+
+def test_each_author_label_has_a_bound_with_a_clear_message(tmp_path):
+    shortlist = Shortlist(tmp_path / STORE_NAME)
+    for k in range(MAX_ENTRIES_PER_AUTHOR):
+        shortlist.add(**ENTRY, note=f"{k}", author="Flood" if k % 2 else "flood ")
+    with pytest.raises(InputError) as refused:
+        shortlist.add(**ENTRY, note="one more", author="FLOOD")
+    message = str(refused.value)
+    assert message.startswith("shortlist = ") and f"at most {MAX_ENTRIES_PER_AUTHOR}" in message
+    assert "remove some" in message
+    shortlist.add(**ENTRY, note="another author", author="RM")  # others are not refused
+    assert len(shortlist.entries()) == MAX_ENTRIES_PER_AUTHOR + 1
+
+
+def test_version_changes_with_every_add_and_remove_only(tmp_path):
+    shortlist = Shortlist(tmp_path / STORE_NAME)
+    assert shortlist.version() == "empty" and not (tmp_path / STORE_NAME).exists()
+    entry = shortlist.add(**ENTRY, note="a", author="")
+    first = shortlist.version()
+    assert not shortlist.remove("000000000000") and shortlist.version() == first
+    assert shortlist.remove(entry.id) and shortlist.version() != first
+
+
+def _add_many(folder: str, writer: int, count: int) -> None:
+    shortlist = Shortlist(Path(folder) / STORE_NAME)
+    for k in range(count):
+        shortlist.add(**ENTRY, note=f"w{writer}-{k}", author=f"writer {writer}")
+
+
+def test_writers_in_several_processes_lose_nothing(tmp_path):
+    # fork where there is one: a spawned child would spend seconds importing the dashboard
+    ctx = multiprocessing.get_context("fork" if hasattr(os, "fork") else "spawn")
+    Shortlist(tmp_path / STORE_NAME).add(**ENTRY, note="seed", author="")
+    writers = [ctx.Process(target=_add_many, args=(str(tmp_path), w, 40)) for w in range(4)]
+    for process in writers:
+        process.start()
+    for process in writers:
+        process.join(120)
+        assert process.exitcode == 0
+    notes = {e.note for e in Shortlist(tmp_path / STORE_NAME).entries()}
+    assert notes == {"seed"} | {f"w{w}-{k}" for w in range(4) for k in range(40)}
