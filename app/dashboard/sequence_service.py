@@ -24,7 +24,7 @@ import logging
 import math
 import threading
 import time
-from concurrent.futures import ThreadPoolExecutor
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field, replace
 from typing import Any
 
@@ -404,13 +404,18 @@ class SequenceService:
         )
         return self._leg_maps.put(key, result)
 
-    def prewarm(self, view: SequenceView, outcome: SearchOutcome) -> None:
+    def forget_leg_maps(self) -> None:
+        """Drop the kept leg maps (the bench times a cold map with it)."""
+        self._leg_maps = _Memo(self._leg_maps.size)
+
+    def prewarm(self, view: SequenceView, outcome: SearchOutcome) -> Future | None:
         """Compute, in the background, the leg maps of a search's ranked candidates for the
-        view's leg and span (so choosing another candidate finds its map ready)."""
+        view's leg and span (so choosing another candidate finds its map ready); the work's
+        future, or None when it was asked for before."""
         tag = f"{outcome.key}:{view.leg}:{view.span_days}:{view.step_days}"
         with self._lock:
             if tag in self._prewarmed:
-                return
+                return None
             self._prewarmed.add(tag)
             if len(self._prewarmed) > 256:
                 self._prewarmed.clear()
@@ -423,7 +428,7 @@ class SequenceService:
                 except Exception:  # a map that cannot be made is made (and reported) on demand
                     _LOG.debug("leg map prewarm failed", exc_info=True)
 
-        self._prewarm.submit(run)
+        return self._prewarm.submit(run)
 
     # -- figures ---------------------------------------------------------------------------
     def selection_figures(self, view: SequenceView, shown: Shown):
