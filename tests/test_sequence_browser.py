@@ -319,3 +319,60 @@ def test_bs06_invalid_sequence_upload_is_one_line_and_the_page_keeps_working(
     page.locator("#div-seq-details").get_by_text(f"Candidate {rank} as").wait_for()
     assert_details_match_engine(page)
     tab.shot("still_working")
+
+
+def test_bs07_downloads_carry_every_leg_and_the_caution(server, tabs):
+    from solver.caution import CAUTION
+
+    tab = tabs()
+    page = tab.page
+    page.goto(server + SMALL)
+    wait_all_drawn(page)
+    candidate = engine_candidate(link_of(page))
+    caution_start = CAUTION.split(":")[0].lower()  # in the ASCII lines of an OEM too
+
+    def download(button: str) -> tuple[str, str]:
+        with page.expect_download() as info:
+            page.click(f"#{button}")
+        d = info.value
+        return d.suggested_filename, Path(d.path()).read_text(encoding="utf-8")
+
+    name, csv_text = download("button-seq-download-csv")
+    assert name.endswith("_candidates.csv") and name.startswith("Harrow_Jupiter")
+    rows = [r for r in csv_text.splitlines() if r and not r.startswith("#")]
+    assert len(rows) == 1 + page.locator("#div-seq-candidates tr[data-rank]").count()
+    assert caution_start in csv_text.lower()
+    name, oem = download("button-seq-download-oem")
+    assert name.endswith("_candidate.oem")
+    # CCSDS OEM 2.0: one segment (META_START ... data) per leg, each starting at its encounter.
+    assert oem.count("META_START") == len(candidate.legs) == 4
+    starts = [line.split("=")[1].strip() for line in oem.splitlines() if line.startswith("START")]
+    encounters = link_of(page)["at"].split("~")
+    assert [s[:10] for s in starts] == [d[:10] for d in encounters[:4]]
+    assert caution_start in oem.lower()
+    name, json_text = download("button-seq-download-json")
+    assert name.endswith("_candidate.json") and caution_start in json_text.lower()
+    name, html_text = download("button-seq-download-encounters-html")
+    assert name.endswith("_encounter_chart.html") and caution_start in html_text.lower()
+    with page.expect_download() as info:
+        page.click("#button-seq-png-legmap")
+    assert info.value.suggested_filename.endswith(".png")
+    tab.shot("downloads")
+
+
+def test_bs08_the_window_page_opens_a_sequence_case_on_the_sequence_page(server, tabs):
+    """A link to the window page that names a sequence case, and the window page's case
+    picker, both open the sequence page (the search settings travel with the link)."""
+    tab = tabs()
+    page = tab.page
+    page.goto(server + f"?case={CASE}&top=3&time=2")
+    page.wait_for_url("**/sequence?**")
+    assert f"case={CASE}" in page.url and "time=2" in page.url
+    wait_all_drawn(page)
+    page.goto(server)
+    page.locator("#text-case-title").get_by_text("Tallis").wait_for()
+    page.locator("#dropdown-case").click()
+    page.get_by_role("option", name="Harrow Jupiter probe via Venus and Earth flybys").click()
+    page.wait_for_url(f"**/sequence?case={CASE}**")
+    page.locator("#text-seq-case-title").get_by_text("Harrow").wait_for()
+    tab.shot("picked")
