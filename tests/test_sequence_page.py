@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import threading
 import time
+from dataclasses import asdict
 
 import numpy as np
 import pytest
@@ -277,6 +278,45 @@ def test_work_shares_the_grid_pool_with_waiters_cancel_and_reported_failures():
     assert jobs.submit(quick, "w").phase == "ready"  # from memory
     with pytest.raises(ValueError):
         jobs.submit(Work(key="x", lane="nowhere", compute=slow, nbytes=len), "v")
+    jobs.shutdown()
+
+
+def test_a_cancel_whose_answer_the_page_lost_is_never_a_new_search():
+    """The page's Cancel and its poll tick are requests of one callback: when a tick is in
+    flight, the browser may drop the cancel's answer, so the page still says "solving". Its
+    next ticks must find the cancel on the server and settle, not see a cancelled job as a
+    lost one and start the search again. Made deterministic with the test-only search delay:
+    the job sits in its delay while the ticks ask."""
+    jobs = GridJobs(None, slowdown=Slowdown(search_s=2.0))
+    calls = []
+
+    def compute(report, check):
+        calls.append(1)
+        return "found"
+
+    work = Work(
+        key="search-z", lane="search", compute=compute, nbytes=len, pause=jobs.slowdown.search_pause
+    )
+    view = "?case=a&cand=1"
+    status = status_from_ticket(view, "search-z", jobs.submit(work, "tab").phase)
+
+    def tick_settles() -> None:
+        plan = plan_poll(status, view, asdict(jobs.ticket("search-z", "tab")))
+        assert plan.action != "restart"
+        assert plan.status is not None and plan.status.phase == "cancelled"
+        assert plan.interval_ms is None and plan.progress.retry
+
+    assert jobs.cancel("search-z", "tab")  # the server cancelled; the page's answer was lost
+    tick_settles()  # the job is still in its delay
+    deadline = time.monotonic() + 10.0
+    while jobs.ticket("search-z", "someone else").phase != "cancelled":  # the job heard it
+        assert time.monotonic() < deadline
+        time.sleep(0.05)
+    tick_settles()
+    assert calls == []  # never computed: the delay held it until the cancel
+    # "Search again" (a new submit by the same tab) asks for it afresh.
+    assert jobs.submit(work, "tab").phase in ("queued", "running")
+    assert jobs.ticket("search-z", "tab").phase in ("queued", "running")
     jobs.shutdown()
 
 

@@ -68,6 +68,9 @@ SMALL_LANE_WORKERS = 2
 LARGE_LANE_WORKERS = 1
 SEARCH_LANE_WORKERS = 1
 LANES = ("small", "large", "search")
+MAX_WITHDRAWN = 4096
+"""Cancelled waits remembered (per viewer and job) so a page's later polls see them."""
+WITHDRAWN = "Cancelled: this tab no longer waits for it (other viewers may)."
 LEASE_S = 30.0
 """A waiter that has not polled for this long is dropped (the page polls every 2 s at most)."""
 STALL_S = 120.0
@@ -104,6 +107,9 @@ class Ticket:
         Why a job failed or was cancelled.
     note : str
         How a running job is going, in words (a search's best score so far), when it says.
+    withdrawn : bool
+        Phase ``cancelled`` because this viewer pressed Cancel (not a lapsed wait): a page that
+        lost its Cancel's answer settles on it instead of asking again.
     """
 
     key: str
@@ -114,6 +120,7 @@ class Ticket:
     stalled: bool = False
     message: str = ""
     note: str = ""
+    withdrawn: bool = False
 
 
 Check = Callable[[], None]
@@ -246,6 +253,8 @@ class GridJobs:
         self._grids: OrderedDict[str, tuple[Any, int]] = OrderedDict()
         self._jobs: OrderedDict[str, _Job] = OrderedDict()
         self._interest: dict[str, str] = {}  # viewer -> key of the grid it waits for
+        # (viewer, key) of the waits viewers cancelled, until they ask for that key again.
+        self._withdrawn: OrderedDict[tuple[str, str], None] = OrderedDict()
         self._lanes = {
             "small": ThreadPoolExecutor(small_workers, thread_name_prefix="arcwindow-grid"),
             "large": ThreadPoolExecutor(large_workers, thread_name_prefix="arcwindow-large"),
@@ -308,6 +317,7 @@ class GridJobs:
         with self._lock:
             self._expire_leases(now)
             self._leave(viewer, keep=key)
+            self._withdrawn.pop((viewer, key), None)  # asked again: no longer cancelled
             if key in self._grids:
                 self._grids.move_to_end(key)
                 self._interest.pop(viewer, None)
@@ -389,6 +399,8 @@ class GridJobs:
             self._expire_leases(now)
             if key in self._grids:
                 return Ticket(key, "ready")
+            if (viewer, key) in self._withdrawn:
+                return Ticket(key, "cancelled", message=WITHDRAWN, withdrawn=True)
             job = self._jobs.get(key)
             if job is None:
                 return Ticket(key, "lost", message="The server no longer knows this grid job.")
@@ -411,6 +423,9 @@ class GridJobs:
             del job.waiters[viewer]
             if self._interest.get(viewer) == key:
                 del self._interest[viewer]
+            self._withdrawn[(viewer, key)] = None
+            while len(self._withdrawn) > MAX_WITHDRAWN:
+                self._withdrawn.popitem(last=False)
             if not job.waiters:
                 job.cancel_event.set()
             return True

@@ -76,6 +76,13 @@ class SearchStatus:
         return self.phase != "solving"
 
 
+CANCELLED = (
+    "Cancelled: this tab no longer waits for the search (other viewers may). "
+    "Press “Search again” to run it."
+)
+"""What the progress strip says once this tab cancelled its search."""
+
+
 def status_from_ticket(view: str, key: str, phase: str, message: str = "") -> SearchStatus:
     """The first status of a view from its ticket's phase."""
     if phase == "ready":
@@ -113,6 +120,10 @@ def plan_poll(status: SearchStatus | None, view: str, ticket: dict | None) -> Po
     phase = (ticket or {}).get("phase", "lost")
     if phase == "ready":
         return PollPlan(replace(status, phase="ready", polls=0), "", None, Progress())
+    if phase == "cancelled" and (ticket or {}).get("withdrawn"):
+        # This tab pressed Cancel (its answer may have been lost to a tick in flight): settle.
+        new = replace(status, phase="cancelled", message=CANCELLED, polls=0)
+        return PollPlan(new, "", None, progress_of(new, None))
     if phase in ("lost", "cancelled"):
         if status.restarts < MAX_RESTARTS:
             new = replace(status, restarts=status.restarts + 1, polls=0)
@@ -156,6 +167,7 @@ def plan_draw(status: SearchStatus | None, view: str) -> str:
 
 
 __all__ = [
+    "CANCELLED",
     "PHASES",
     "SearchStatus",
     "plan_draw",

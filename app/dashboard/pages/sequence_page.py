@@ -32,7 +32,14 @@ from ..case_catalogue import MAX_UPLOAD_BYTES, clean_filename, my_case_ids, reme
 from ..display_data import display_name
 from ..exports import figure_html, safe_name
 from ..map_loop import Progress, poll_interval_ms
-from ..search_loop import SearchStatus, plan_draw, plan_poll, progress_of, status_from_ticket
+from ..search_loop import (
+    CANCELLED,
+    SearchStatus,
+    plan_draw,
+    plan_poll,
+    progress_of,
+    status_from_ticket,
+)
 from ..sequence_display import candidate_rows
 from ..sequence_service import SequenceService
 from ..sequence_view import (
@@ -487,8 +494,7 @@ def _register_poll(app, service: SequenceService) -> None:
             new = replace(
                 status,
                 phase="cancelled",
-                message="Cancelled: this tab no longer waits for the search (other viewers may). "
-                "Press “Search again” to run it.",
+                message=CANCELLED,
                 polls=0,
             )
             out["status"] = new.to_dict()
@@ -519,6 +525,10 @@ def _register_poll(app, service: SequenceService) -> None:
 # Drawing
 
 
+NO_CANDIDATES = "No candidates: the search did not finish (see above)."
+"""What the views show when a search failed or was cancelled (the progress panel says why)."""
+
+
 def _register_draw(app, service: SequenceService) -> None:
     @app.callback(
         Output("div-seq-candidates", "children"),
@@ -537,8 +547,8 @@ def _register_draw(app, service: SequenceService) -> None:
             return no_update, no_update
         if plan == "waiting":
             return html.Div("Searching…", className="aw-small"), ""
-        if plan == "error":
-            return html.Div(short(status.message), className="aw-message-error"), ""
+        if plan == "error":  # the progress panel above says why, with its "Search again" button
+            return html.Div(NO_CANDIDATES, className="aw-small"), ""
         outcome = service.result(view)
         if outcome is None:
             return html.Div("Searching…", className="aw-small"), ""
@@ -574,7 +584,7 @@ def _register_draw(app, service: SequenceService) -> None:
         if plan == "waiting":
             return message("Waiting for the search's candidates…")
         if plan == "error":
-            return message(short(status.message))
+            return message(NO_CANDIDATES)
         outcome = service.result(view)
         if outcome is None:
             return message("Waiting for the search's candidates…")
@@ -617,7 +627,7 @@ def _register_draw(app, service: SequenceService) -> None:
         if plan == "waiting":
             return theme.empty_figure("The leg map follows the search's candidates…")
         if plan == "error":
-            return theme.empty_figure(short(status.message))
+            return theme.empty_figure(NO_CANDIDATES)
         outcome = service.result(view)
         if outcome is None:
             return theme.empty_figure("The leg map follows the search's candidates…")

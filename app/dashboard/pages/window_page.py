@@ -47,6 +47,7 @@ from ..display_data import display_name
 from ..exports import arc_json, arc_oem, figure_html, view_stem
 from ..grid_jobs import grid_key
 from ..map_loop import (
+    CANCELLED,
     GridStatus,
     Progress,
     Shown,
@@ -470,8 +471,7 @@ def _register_map(app, service: WindowService) -> None:
                 **{
                     **status.to_dict(),
                     "phase": "cancelled",
-                    "message": "Cancelled: this tab no longer waits for the grid (other viewers "
-                    "may). Press “Compute again” to solve it.",
+                    "message": CANCELLED,
                     "polls": 0,
                 }
             )
