@@ -30,6 +30,7 @@ PANELS = {
     "departure_orbit": "orbits",
     "arrival_orbit": "orbits",
     "limits": "limits",
+    "spacecraft": "mass",
 }
 """The panel of the page each section's controls sit in."""
 
@@ -39,6 +40,9 @@ CHOICE_TEXT = {
     "rendezvous": "rendezvous (match velocity)",
 }
 """Longer words for some choices in dropdowns (a choice without one shows as written)."""
+
+EMPTY_OPTIONS_TEXT = {"spacecraft.vehicle": "the case lists no launch vehicle"}
+"""What a dropdown of a case's own names says when the case has none."""
 
 
 @dataclass(frozen=True)
@@ -180,6 +184,8 @@ def control_field(control: Control) -> html.Div:
     s = control.setting
     label_id = f"label-{s.url}"
     if control.widget == "dropdown":
+        # A choice lists its values; a name (a body, a launch vehicle) gets the case's own
+        # names as options when the page shows a case.
         options = [{"value": c, "label": CHOICE_TEXT.get(c, c)} for c in s.choices]
         widget = dcc.Dropdown(
             id=control.id,
@@ -188,6 +194,7 @@ def control_field(control: Control) -> html.Div:
             # file's default when the link leaves it out)
             clearable=False,
             className="aw-dropdown",
+            placeholder=EMPTY_OPTIONS_TEXT.get(s.key, "none"),
         )
     else:
         widget = dcc.Input(
@@ -214,6 +221,7 @@ __all__ = [
     "CONTROLS",
     "CONTROL_BY_KEY",
     "CONTROL_IDS",
+    "EMPTY_OPTIONS_TEXT",
     "ERROR_TARGETS",
     "PANELS",
     "SLIDERS",
