@@ -413,11 +413,13 @@ def stores(query: str) -> html.Div:
             dcc.Store(id="store-control-errors"),
             dcc.Store(id="store-download-stem"),
             dcc.Store(id="store-shortlist-version"),
+            dcc.Store(id="store-redirect"),
             dcc.Interval(id="interval-grid-poll", interval=300, disabled=True),
             dcc.Interval(id="interval-shortlist-poll", interval=POLL_SHORTLIST_MS),
             # Outputs of client-side helpers that act on the page itself.
             html.Div(id="div-sink-url", hidden=True),
             html.Div(id="div-sink-errors", hidden=True),
+            html.Div(id="div-sink-redirect", hidden=True),
         ]
     )
 
@@ -518,10 +520,14 @@ def details_children(sections: list[Section], note: str = "") -> list:
     return out
 
 
-def shortlist_children(entries, current_case: str | None) -> list:
-    """The shortlist table (newest first), with a link that opens each arc and a remove button."""
+def shortlist_children(
+    entries, current_case: str | None, remove_type: str = "button-shortlist-remove"
+) -> list:
+    """The shortlist table (newest first), with a link that opens each arc (a sequence
+    candidate on the sequence page) and a remove button (``remove_type``: the pattern id of the
+    page that shows the table)."""
     if not entries:
-        return [html.Div("No arcs kept yet.", className="aw-small")]
+        return [html.Div("Nothing kept yet.", className="aw-small")]
     head = html.Thead(
         html.Tr(
             [
@@ -531,11 +537,11 @@ def shortlist_children(entries, current_case: str | None) -> list:
                     "case",
                     "departure (UTC)",
                     "arrival (UTC)",
-                    "arc",
+                    "arc or sequence",
                     "C3 (km²/s²)",
                     "arrival v∞ (km/s)",
                     "total Δv (km/s)",
-                    "TOF (days)",
+                    "TOF or duration (days)",
                     "note",
                     "by",
                     "kept (UTC)",
@@ -553,16 +559,22 @@ def shortlist_children(entries, current_case: str | None) -> list:
     rows = []
     for e in reversed(entries):
         arc = "N = 0" if e.revolutions == 0 else f"N = {e.revolutions}, {e.branch}"
+        page = "/"
+        extra = e.extra if isinstance(e.extra, dict) else {}
+        if extra.get("kind") == "sequence":
+            page = "/sequence"
+            record = extra.get("record") if isinstance(extra.get("record"), dict) else {}
+            arc = "sequence: " + str(record.get("sequence_label", "") or "")[:80]
         rows.append(
             html.Tr(
                 [
                     # Actions first, so they show without scrolling the table sideways.
                     html.Td(
                         [
-                            dcc.Link("open", href="/" + e.view, className="aw-link"),
+                            dcc.Link("open", href=page + e.view, className="aw-link"),
                             html.Button(
                                 "remove",
-                                id={"type": "button-shortlist-remove", "index": e.id},
+                                id={"type": remove_type, "index": e.id},
                                 className="aw-button-link",
                                 n_clicks=0,
                             ),
@@ -572,7 +584,7 @@ def shortlist_children(entries, current_case: str | None) -> list:
                     html.Td(e.case_title, className="aw-clip"),
                     html.Td(e.departure_utc.replace("T", " ").rstrip("Z")),
                     html.Td(e.arrival_utc.replace("T", " ").rstrip("Z")),
-                    html.Td(arc),
+                    html.Td(arc, className="aw-clip" if page != "/" else ""),
                     html.Td(num(e.metrics.get("c3_km2_s2"), 3), className="aw-num"),
                     html.Td(num(e.metrics.get("vinf_arrival_km_s"), 3), className="aw-num"),
                     html.Td(num(e.metrics.get("dv_total_km_s"), 3), className="aw-num"),
