@@ -13,6 +13,7 @@ import json
 import multiprocessing
 import os
 import sqlite3
+import threading
 import uuid
 from pathlib import Path
 
@@ -187,6 +188,95 @@ def test_version_changes_with_every_add_and_remove_only(tmp_path):
     first = shortlist.version()
     assert not shortlist.remove("000000000000") and shortlist.version() == first
     assert shortlist.remove(entry.id) and shortlist.version() != first
+
+
+# ---------------------------------------------------------------------------------------------
+# Two handles opening one store at once, driven step by step through the interleavings that
+# once lost entries or set a healthy store aside (a second server, or a second handle, on the
+# same data folder).
+
+
+class _PauseOnce:
+    """A handle's test-only pause point: the first time ``step`` is reached the handle's thread
+    says so and waits until the test lets it go on."""
+
+    def __init__(self, step: str) -> None:
+        self.step = step
+        self.reached = threading.Event()
+        self.go_on = threading.Event()
+
+    def __call__(self, step: str) -> None:
+        if step == self.step and not self.reached.is_set():
+            self.reached.set()
+            assert self.go_on.wait(30), f"never let go on after {step}"
+
+
+def _adding(shortlist: Shortlist, note: str, errors: list) -> threading.Thread:
+    def add() -> None:
+        try:
+            shortlist.add(**ENTRY, note=note, author="")
+        except Exception as exc:  # reported by the test, with the interleaving that caused it
+            errors.append(f"{note}: {type(exc).__name__}: {exc}")
+
+    thread = threading.Thread(target=add)
+    thread.start()
+    return thread
+
+
+def test_a_store_being_created_is_not_taken_for_a_foreign_one(tmp_path):
+    # A starts the store and stops after its first table; B opens the folder then. B used to see
+    # a store with one table, set it aside as "not a shortlist store" and start another, and A's
+    # add then failed with "no such table: entries" in B's half-made store (or wrote into the
+    # store set aside).
+    first, second = Shortlist(tmp_path / STORE_NAME), Shortlist(tmp_path / STORE_NAME)
+    first._pause_at = first_pause = _PauseOnce("schema:meta")
+    second._pause_at = second_pause = _PauseOnce("schema:meta")
+    errors: list[str] = []
+    first_thread = _adding(first, "first", errors)
+    assert first_pause.reached.wait(30)
+    second_thread = _adding(second, "second", errors)
+    # B should wait for A's schema (one write transaction); if it gets into a schema of its own
+    # instead, A goes on while B is halfway, the interleaving that failed.
+    if not second_pause.reached.wait(2.0):
+        second_pause.go_on.set()
+    first_pause.go_on.set()
+    first_thread.join(60)
+    second_pause.go_on.set()
+    second_thread.join(60)
+    assert errors == []
+    assert list(tmp_path.glob(f"{STORE_NAME}.unreadable-*")) == []
+    assert first.problems() == [] and second.problems() == []
+    assert sorted(e.note for e in Shortlist(tmp_path / STORE_NAME).entries()) == [
+        "first",
+        "second",
+    ]
+
+
+def test_a_damaged_store_is_set_aside_once_when_two_open_it_at_once(tmp_path):
+    # Both handles find the damaged store before either sets it aside. A sets it aside, starts a
+    # new store and adds; B then used to set A's new store aside as well, and A's entry was gone
+    # from the list.
+    damaged = b"these are someone's notes, not a database\n" * 100
+    (tmp_path / STORE_NAME).write_bytes(damaged)
+    first, second = Shortlist(tmp_path / STORE_NAME), Shortlist(tmp_path / STORE_NAME)
+    first._pause_at = first_pause = _PauseOnce("judged")
+    second._pause_at = second_pause = _PauseOnce("judged")
+    errors: list[str] = []
+    first_thread = _adding(first, "first", errors)
+    second_thread = _adding(second, "second", errors)
+    assert first_pause.reached.wait(30) and second_pause.reached.wait(30)
+    first_pause.go_on.set()
+    first_thread.join(60)
+    second_pause.go_on.set()
+    second_thread.join(60)
+    assert errors == []
+    aside = sorted(tmp_path.glob(f"{STORE_NAME}.unreadable-*"))
+    assert [p.read_bytes() for p in aside] == [damaged]  # set aside once, every byte kept
+    assert any(aside[0].name in p for p in first.problems())
+    assert sorted(e.note for e in Shortlist(tmp_path / STORE_NAME).entries()) == [
+        "first",
+        "second",
+    ]
 
 
 def _add_many(folder: str, writer: int, count: int) -> None:

@@ -14,7 +14,12 @@ same folder) sees the same list, and nothing kept is ever lost:
   kept in the database, and reported with its reason by :meth:`Shortlist.problems`.
 * **Never overwritten**: a store that cannot be read (damaged, truncated, not ours) is renamed
   aside (``shortlist.sqlite3.unreadable-<UTC time>``, with its ``-wal`` file) and reported; a
-  new store starts beside it.
+  new store starts beside it. Only one opener sets it aside: the decision is taken again under
+  an exclusive lock on ``shortlist.sqlite3.lock``, so a second opener that found the same
+  damage keeps the new store the first one started. A new store's tables are created in one
+  transaction, so no opener ever sees half of them and takes the store for someone else's; a
+  store SQLite cannot reach for a moment (busy, no permission) is never taken for a damaged
+  one.
 * **Imported once**: the JSON file earlier versions kept (``shortlist.json``) is imported at the
   first use and renamed ``shortlist.json.imported-<UTC time>``; an unreadable one is renamed
   ``.unreadable-<UTC time>`` instead and reported. Temporary files it left are swept.
@@ -37,12 +42,14 @@ import sqlite3
 import threading
 import time
 import uuid
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Any
 
 from solver.errors import InputError
+
+from .folder_lock import exclusive_lock
 
 MAX_NOTE_CHARS = 500
 MAX_AUTHOR_CHARS = 60
@@ -60,17 +67,33 @@ _BUSY_TIMEOUT_S = 30.0
 
 _LOG = logging.getLogger(__name__)
 
-_SCHEMA = """
-CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
-CREATE TABLE IF NOT EXISTS entries (
+_SCHEMA = (
+    ("meta", "CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL)"),
+    (
+        "entries",
+        """CREATE TABLE IF NOT EXISTS entries (
     seq INTEGER PRIMARY KEY AUTOINCREMENT,
     id TEXT NOT NULL UNIQUE,
     author_key TEXT NOT NULL,
     record TEXT NOT NULL,
     sha256 TEXT NOT NULL
-);
-CREATE INDEX IF NOT EXISTS entries_author ON entries (author_key);
-"""
+)""",
+    ),
+    ("entries_author", "CREATE INDEX IF NOT EXISTS entries_author ON entries (author_key)"),
+)
+
+
+def _is_damage(exc: sqlite3.DatabaseError) -> bool:
+    """Whether SQLite's error says the file's content is bad (damaged pages, not a database),
+    as opposed to a moment's trouble reaching it (busy, locked, no permission, I/O)."""
+    name = getattr(exc, "sqlite_errorname", "") or ""
+    if name:
+        return name.startswith(("SQLITE_CORRUPT", "SQLITE_NOTADB"))
+    return not isinstance(exc, sqlite3.OperationalError)
+
+
+def _no_pause(step: str) -> None:
+    """The default of :attr:`Shortlist._pause_at`: no pause."""
 
 
 @dataclass(frozen=True)
@@ -196,6 +219,10 @@ class Shortlist:
         self._lock = threading.Lock()
         self._ready = False
         self._notes: list[str] = []
+        # Test-only: called with each step of opening the store ("judged": found unreadable,
+        # not yet set aside; "schema:<name>": a table or index made), so that a test can stop
+        # two openers at chosen steps and drive one interleaving every run.
+        self._pause_at: Callable[[str], None] = _no_pause
 
     # -- the store -------------------------------------------------------------------------
     def _connect(self) -> sqlite3.Connection:
@@ -224,27 +251,49 @@ class Shortlist:
             if not create and not self.path.exists() and not self.legacy_path.exists():
                 return False
             self.path.parent.mkdir(parents=True, exist_ok=True)
-            if self.path.exists():
-                problem = self._check_store()
-                if problem is not None:
-                    self._set_aside(problem)
+            if self.path.exists() and self._check_store() is not None:
+                self._pause_at("judged")
+                self._set_aside_if_still_unreadable()
             with self._connection() as connection:
-                connection.execute("PRAGMA journal_mode = WAL")
-                connection.executescript(_SCHEMA)
-                connection.execute(
-                    "INSERT OR IGNORE INTO meta (key, value) VALUES ('format', ?)",
-                    (str(FORMAT_VERSION),),
-                )
-                connection.execute(
-                    "INSERT OR IGNORE INTO meta (key, value) VALUES ('revision', '0')"
-                )
+                self._create_schema(connection)
                 self._import_legacy(connection)
             self._sweep_legacy_temporaries()
             self._ready = True
             return True
 
+    def _create_schema(self, connection: sqlite3.Connection) -> None:
+        """Create the tables and their first rows in one write transaction.
+
+        Another opener of the same file sees either no table (a store not yet created, which it
+        then waits to create itself) or all of them, never a store with half its tables, which
+        it would take for a file that is not a shortlist store and set aside.
+        """
+        connection.execute("PRAGMA journal_mode = WAL")  # outside a transaction, by SQLite's rule
+        connection.execute("BEGIN IMMEDIATE")
+        try:
+            for name, statement in _SCHEMA:
+                connection.execute(statement)
+                self._pause_at(f"schema:{name}")
+            connection.execute(
+                "INSERT OR IGNORE INTO meta (key, value) VALUES ('format', ?)",
+                (str(FORMAT_VERSION),),
+            )
+            connection.execute("INSERT OR IGNORE INTO meta (key, value) VALUES ('revision', '0')")
+            connection.execute("COMMIT")
+        except BaseException:
+            connection.execute("ROLLBACK")
+            raise
+
     def _check_store(self) -> str | None:
-        """Why the existing store cannot be trusted, or None."""
+        """Why the existing store cannot be trusted, or None (a store with no table yet is one
+        being created: None).
+
+        Raises
+        ------
+        sqlite3.OperationalError
+            The store could not be asked (busy past the timeout, out of file handles, no
+            permission): that says nothing about its content, so it is never set aside for it.
+        """
         try:
             with self._connection() as connection:
                 rows = connection.execute("PRAGMA quick_check").fetchall()
@@ -260,8 +309,23 @@ class Shortlist:
                     if found is not None and found[0] != str(FORMAT_VERSION):
                         return f"store format {found[0]}, this version reads {FORMAT_VERSION}"
         except sqlite3.DatabaseError as exc:
+            if not _is_damage(exc):
+                raise
             return str(exc)
         return None
+
+    def _set_aside_if_still_unreadable(self) -> None:
+        """Set the store aside if it is still unreadable once this opener alone may do so.
+
+        Two openers may both find the store damaged; the first to hold the folder's lock sets it
+        aside and starts a new one. The second then checks again, finds the new store (or none
+        yet) and keeps it: without the second look it would set aside the first one's new store
+        and the entries added to it.
+        """
+        with exclusive_lock(self.path.with_name(f"{self.path.name}.lock")):
+            problem = self._check_store() if self.path.exists() else None
+            if problem is not None:
+                self._set_aside(problem)
 
     def _set_aside(self, reason: str) -> None:
         stamp = dt.datetime.now(dt.UTC).strftime("%Y%m%dT%H%M%S%fZ")
