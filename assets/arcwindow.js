@@ -83,12 +83,25 @@
       return noUpdate();
     },
 
-    // A status the poll moved on becomes the tab's grid status, unless the view changed while
-    // the poll was on its way (the new view has its own status already).
-    acceptPolled: function (polled, current) {
-      if (!polled || !current || polled.view !== current.view) { return noUpdate(); }
-      if (JSON.stringify(polled) === JSON.stringify(current)) { return noUpdate(); }
-      return polled;
+    // An answer of the view callback or of the grid poll (window_page.py `_answer`), applied
+    // only while the tab shows the answer's view: a late answer for a view the tab has left
+    // changes nothing (the new view's own answer set its status, pace and progress). Each
+    // applied answer arms exactly one more tick of the poll (max_intervals), so one poll is in
+    // flight at a time and no answer is dropped by the next tick's request. Returns the grid
+    // status, the poll's disabled, interval and max_intervals, then the progress properties
+    // named by `progressKeys`.
+    acceptPolled: function (answer, current, ticks, progressKeys) {
+      var keys = progressKeys || [];
+      var nothing = [noUpdate(), noUpdate(), noUpdate(), noUpdate()].concat(
+        keys.map(function () { return noUpdate(); }));
+      var view = current && typeof current.view === "string" ? current.view : "";
+      if (!answer || answer.view !== view) { return nothing; }
+      var status = answer.status && JSON.stringify(answer.status) !== JSON.stringify(current)
+        ? answer.status : noUpdate();
+      var stop = typeof answer.poll_ms !== "number";
+      var progress = answer.progress || {};
+      return [status, stop, stop ? noUpdate() : answer.poll_ms, (ticks || 0) + 1].concat(
+        keys.map(function (k) { return k in progress ? progress[k] : noUpdate(); }));
     },
 
     replaceSurveyQuery: function (name) {

@@ -9,8 +9,9 @@ every run::
     ARCWINDOW_TEST_SLOWDOWN="grid=3,refine=4" arcwindow serve --port 8123
 
 ``grid`` seconds are added to every grid job (spent in ten steps before the solve, so a cancel
-is heard between steps); ``refine`` seconds are added to
-every refinement of a best arc. Unset (the default), nothing is slowed.
+is heard between steps); ``refine`` seconds are added to every refinement of a best arc;
+``poll`` seconds are added to every answer of the page's grid poll (a server so busy that a
+poll takes longer than the poll interval). Unset (the default), nothing is slowed.
 """
 
 from __future__ import annotations
@@ -27,15 +28,16 @@ _STEPS = 10
 
 @dataclass(frozen=True)
 class Slowdown:
-    """Seconds added to each grid job and each refinement (0: none)."""
+    """Seconds added to each grid job, each refinement and each poll answer (0: none)."""
 
     grid_s: float = 0.0
     refine_s: float = 0.0
+    poll_s: float = 0.0
 
     @classmethod
     def from_text(cls, text: str | None) -> Slowdown:
-        """Read ``"grid=3,refine=4"`` (either part may be left out)."""
-        values = {"grid": 0.0, "refine": 0.0}
+        """Read ``"grid=3,refine=4,poll=0.5"`` (any part may be left out)."""
+        values = {"grid": 0.0, "refine": 0.0, "poll": 0.0}
         for part in (text or "").split(","):
             if not part.strip():
                 continue
@@ -46,9 +48,11 @@ class Slowdown:
             except ValueError:
                 seconds = -1.0
             if not sep or name not in values or not 0.0 <= seconds <= 600.0:
-                raise InputError(ENV_SLOWDOWN, text, "grid=SECONDS,refine=SECONDS (0 to 600)")
+                raise InputError(
+                    ENV_SLOWDOWN, text, "grid=SECONDS,refine=SECONDS,poll=SECONDS (0 to 600)"
+                )
             values[name] = seconds
-        return cls(grid_s=values["grid"], refine_s=values["refine"])
+        return cls(grid_s=values["grid"], refine_s=values["refine"], poll_s=values["poll"])
 
     @classmethod
     def from_environment(cls) -> Slowdown:
@@ -68,6 +72,10 @@ class Slowdown:
     def refine_pause(self) -> None:
         if self.refine_s > 0:
             threading.Event().wait(self.refine_s)
+
+    def poll_pause(self) -> None:
+        if self.poll_s > 0:
+            threading.Event().wait(self.poll_s)
 
 
 __all__ = ["ENV_SLOWDOWN", "Slowdown"]

@@ -140,6 +140,7 @@ class WindowService:
     ) -> None:
         self.settings = settings
         slowdown = slowdown or Slowdown.from_environment()
+        self.slowdown = slowdown
         self.catalogue = CaseCatalogue(settings.cases_dir, settings.uploads_dir)
         self.grids = jobs or GridJobs(GridCache(settings.cache_dir), slowdown=slowdown)
         self.shortlist = Shortlist(settings.shortlist_path)

@@ -20,6 +20,8 @@ what to do, call the service (``window_service``) and pack the answer:
 
 from __future__ import annotations
 
+import itertools
+import json
 import math
 from dataclasses import asdict
 from typing import Any
@@ -173,12 +175,38 @@ def _body_options(case) -> list[dict]:
     return [{"value": n, "label": display_name(n)} for n in names]
 
 
-def _progress_out(out: dict, progress: Progress) -> None:
-    out["panel"] = {"display": "flex"} if progress.visible else {"display": "none"}
-    out["fill"] = {"width": f"{100 * progress.fraction:.1f}%"}
-    out["text"] = progress.text
-    out["cancel_style"] = {} if progress.cancel else {"display": "none"}
-    out["retry_style"] = {} if progress.retry else {"display": "none"}
+def _progress_props(progress: Progress) -> dict[str, Any]:
+    """The progress strip's component properties (by ``PROGRESS_OUTPUTS`` name)."""
+    return {
+        "panel": {"display": "flex"} if progress.visible else {"display": "none"},
+        "fill": {"width": f"{100 * progress.fraction:.1f}%"},
+        "text": progress.text,
+        "cancel_style": {} if progress.cancel else {"display": "none"},
+        "retry_style": {} if progress.retry else {"display": "none"},
+    }
+
+
+_ANSWERS = itertools.count()
+
+
+def _answer(
+    view: str, status: GridStatus | None, poll_ms: int | None, progress: Progress
+) -> dict[str, Any]:
+    """What the view callback or a poll answers (the ``store-grid-polled`` data): for which view,
+    the status moved on (None: unchanged), when to poll next (None: stop) and the progress
+    strip. The page applies it only while it still shows that view (``acceptPolled``), so an
+    answer that arrives late, for a view the tab has left, changes nothing."""
+    return {
+        "view": view,
+        "status": None if status is None else status.to_dict(),
+        "poll_ms": poll_ms,
+        "progress": _progress_props(progress),
+        "seq": next(_ANSWERS),  # every answer is new to the page, even one like the last
+    }
+
+
+def _first_poll(status: GridStatus) -> int | None:
+    return None if status.settled else poll_interval_ms(0)
 
 
 def _address() -> str:
@@ -236,8 +264,7 @@ def _register_view(app, service: WindowService) -> None:
         "store": Output("store-view-state", "data"),
         "query": Output("store-view-query", "data"),
         "status": Output("store-grid-status", "data"),
-        "poll_off": Output("interval-grid-poll", "disabled"),
-        "poll_ms": Output("interval-grid-poll", "interval"),
+        "answer": Output("store-grid-polled", "data"),
         "message": Output("div-message-view", "children"),
         "case_options": Output("dropdown-case", "options"),
         "case_value": Output("dropdown-case", "value"),
@@ -253,8 +280,6 @@ def _register_view(app, service: WindowService) -> None:
         "errors": Output("store-control-errors", "data"),
         "stem": Output("store-download-stem", "data"),
     }
-    for name, (cid, prop) in PROGRESS_OUTPUTS.items():
-        outputs[name] = Output(cid, prop)
     for key in ("case.departure_body", "case.target_body"):
         outputs[f"options:{key}"] = Output(CONTROL_IDS[key], "options")
     for slider in SLIDERS:
@@ -345,9 +370,7 @@ def _register_view(app, service: WindowService) -> None:
         out["stem"] = view_stem(case, view)
         status, progress = grid_status(service, view, case, viewer)
         out["status"] = status.to_dict()
-        out["poll_off"] = status.settled
-        out["poll_ms"] = poll_interval_ms(0)
-        _progress_out(out, progress)
+        out["answer"] = _answer(out["query"], status, _first_poll(status), progress)
         return out
 
 
@@ -394,56 +417,46 @@ def _fill_controls(out: dict, service: WindowService, view: ViewState, case, my_
 
 
 def _register_map(app, service: WindowService) -> None:
-    # The poll writes its own store, which the page copies into the grid status when it moves
-    # on (``acceptPolled`` in assets/arcwindow.js): the map and the selection callbacks read the
-    # status, and a callback waits while any of its inputs is the output of a request in flight;
-    # reading the poll's output directly, a map would wait for ever on a busy server, where the
-    # next poll is always on its way.
-    poll_outputs = {
-        "status": Output("store-grid-polled", "data"),
-        "poll_off": Output("interval-grid-poll", "disabled", allow_duplicate=True),
-        "poll_ms": Output("interval-grid-poll", "interval", allow_duplicate=True),
-    }
-    for name, (cid, prop) in PROGRESS_OUTPUTS.items():
-        poll_outputs[name] = Output(cid, prop, allow_duplicate=True)
+    # The poll answers into its own store, never into the page's controls: the page applies an
+    # answer (``acceptPolled`` in assets/arcwindow.js) only while it shows the answer's view,
+    # and arms exactly one more tick of the interval for each answer it applies. So one poll is
+    # in flight at a time: Dash drops the answer of a request still in flight when the same
+    # callback is asked again, and a poll ticking on its own clock on a server slower than the
+    # interval never heard an answer (the status never moved on). And an answer for a view the
+    # tab has left cannot stop the new view's polling nor overwrite its progress. The map and
+    # the selection read the grid status, which the page copies from an applied answer: a
+    # callback waits while any of its inputs is the output of a request in flight, and reading
+    # the poll's output directly, a map would wait for ever on a busy server.
 
     @app.callback(
-        output=poll_outputs,
-        inputs={
-            "tick": Input("interval-grid-poll", "n_intervals"),
-            "retry": Input("button-grid-retry", "n_clicks"),
-            "cancel": Input("button-grid-cancel", "n_clicks"),
-            "status_data": State("store-grid-status", "data"),
-            "view_data": State("store-view-state", "data"),
-            "viewer": State("store-viewer-id", "data"),
-        },
+        Output("store-grid-polled", "data", allow_duplicate=True),
+        Input("interval-grid-poll", "n_intervals"),
+        Input("button-grid-retry", "n_clicks"),
+        Input("button-grid-cancel", "n_clicks"),
+        State("store-grid-status", "data"),
+        State("store-view-state", "data"),
+        State("store-viewer-id", "data"),
         prevent_initial_call=True,
     )
     def poll_grid(tick, retry, cancel, status_data, view_data, viewer):
-        out: dict[str, Any] = dict.fromkeys(poll_outputs, no_update)
+        fired = _fired()
+        if "interval-grid-poll" in fired:
+            service.slowdown.poll_pause()  # test-only: a server too busy to answer in time
         view = _read_view(view_data)
         status = GridStatus.from_dict(status_data)
         if view is None:
-            out["poll_off"] = True
-            return out
-        fired = _fired()
+            return _answer(status.view if status else "", None, None, Progress())
+        query = to_query(view)
         try:
             case = service.case(view)
         except InputError as exc:
-            out["poll_off"] = True
-            _progress_out(out, Progress(True, short(str(exc)), retry=False))
-            return out
-        query = to_query(view)
+            return _answer(query, None, None, Progress(True, short(str(exc)), retry=False))
         if "button-grid-retry" in fired and retry:
             new, progress = grid_status(service, view, case, viewer)
-            out["status"] = new.to_dict()
-            out["poll_off"] = new.settled
-            out["poll_ms"] = poll_interval_ms(0)
-            _progress_out(out, progress)
-            return out
+            return _answer(query, new, _first_poll(new), progress)
         if "button-grid-cancel" in fired and cancel:
             if status is None or status.view != query or status.phase != "solving":
-                return out
+                return no_update
             service.grids.cancel(status.grid, viewer or "anonymous")
             new = GridStatus(
                 **{
@@ -454,10 +467,7 @@ def _register_map(app, service: WindowService) -> None:
                     "polls": 0,
                 }
             )
-            out["status"] = new.to_dict()
-            out["poll_off"] = True
-            _progress_out(out, progress_of(new, None))
-            return out
+            return _answer(query, new, None, progress_of(new, None))
         ticket = None
         best = None
         if status is not None and status.view == query:
@@ -470,18 +480,8 @@ def _register_map(app, service: WindowService) -> None:
         plan = plan_poll(status, query, ticket, best)
         if plan.action == "restart" and plan.status is not None:
             new, progress = grid_status(service, view, case, viewer, plan.status.restarts)
-            out["status"] = new.to_dict()
-            out["poll_off"] = new.settled
-            out["poll_ms"] = poll_interval_ms(0)
-            _progress_out(out, progress)
-            return out
-        if plan.status is not None:
-            out["status"] = plan.status.to_dict()
-        out["poll_off"] = plan.interval_ms is None
-        if plan.interval_ms is not None:
-            out["poll_ms"] = plan.interval_ms
-        _progress_out(out, plan.progress)
-        return out
+            return _answer(query, new, _first_poll(new), progress)
+        return _answer(query, plan.status, plan.interval_ms, plan.progress)
 
     map_outputs = {
         "figure": Output("graph-window-map", "figure"),
@@ -885,11 +885,19 @@ def _register_clientside(app) -> None:
         Input("store-view-query", "data"),
         prevent_initial_call=True,
     )
+    # The one writer of the poll's pace and of the progress strip: an answer of the view callback
+    # or of the poll, applied while the tab still shows its view (see ``_register_map``).
     app.clientside_callback(
-        "function(polled, current) { return window.arcwindow.acceptPolled(polled, current); }",
+        "function(answer, current, ticks) { return window.arcwindow.acceptPolled(answer, current,"
+        f" ticks, {json.dumps(list(PROGRESS_OUTPUTS))}); }}",
         Output("store-grid-status", "data", allow_duplicate=True),
+        Output("interval-grid-poll", "disabled"),
+        Output("interval-grid-poll", "interval"),
+        Output("interval-grid-poll", "max_intervals"),
+        *[Output(cid, prop) for cid, prop in PROGRESS_OUTPUTS.values()],
         Input("store-grid-polled", "data"),
         State("store-grid-status", "data"),
+        State("interval-grid-poll", "n_intervals"),
         prevent_initial_call=True,
     )
     app.clientside_callback(
