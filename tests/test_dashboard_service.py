@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import base64
 import json
+import sqlite3
 import threading
 import time
 import tracemalloc
@@ -151,7 +152,7 @@ def test_upload_is_stored_once_by_content_hash_and_checked_when_read(tmp_path):
     assert first == content_id(text.encode()) and catalogue.upload_ids() == [first]
     other = CaseCatalogue(SAMPLES, tmp_path)  # another server process on the same data folder
     assert other.load(first).title == "Vesper Venus orbiter, 2031 opportunity"
-    assert not list(tmp_path.glob(".upload-*"))  # no temporary file left behind
+    assert not list(tmp_path.glob(".*.tmp"))  # no temporary file left behind
     # A damaged file is refused and reported, never trusted; uploading it again repairs it.
     stored = tmp_path / f"{first}.toml"
     stored.write_text(text.replace("2031", "2032", 1))
@@ -160,6 +161,39 @@ def test_upload_is_stored_once_by_content_hash_and_checked_when_read(tmp_path):
         fresh.load(first)
     assert fresh.add_upload("again.toml", data_url(text)) == first
     assert CaseCatalogue(SAMPLES, tmp_path).load(first).title.startswith("Vesper")
+
+
+def test_an_upload_is_stored_whole_or_not_at_all(tmp_path, monkeypatch):
+    """Uploads go through the project's atomic writer (solver/files/atomic.py): a disk that
+    fails before the rename leaves no case file and no temporary file, and the stored case
+    another upload made before is untouched."""
+    import app.dashboard.case_catalogue as case_catalogue
+    import solver.files.atomic as atomic
+
+    written = []
+
+    def spy(path, **kwargs):
+        written.append(Path(path).name)
+        return atomic.atomic_output(path, **kwargs)
+
+    monkeypatch.setattr(case_catalogue, "atomic_output", spy)
+    catalogue = CaseCatalogue(SAMPLES, tmp_path)
+    kept = catalogue.add_upload(
+        "kept.toml", data_url((SAMPLES / "tallis_rendezvous.toml").read_text())
+    )
+    before = (tmp_path / f"{kept}.toml").read_bytes()
+    assert written == [f"{kept}.toml"]  # the one writer every file of the project goes through
+
+    def full_disk(fd):
+        raise OSError(28, "No space left on device")
+
+    text = (SAMPLES / "vesper_venus_orbiter.toml").read_text()
+    with monkeypatch.context() as disk, pytest.raises(OSError, match="No space left"):
+        disk.setattr(atomic.os, "fsync", full_disk)
+        catalogue.add_upload("mine.toml", data_url(text))
+    assert catalogue.upload_ids() == [kept]
+    assert (tmp_path / f"{kept}.toml").read_bytes() == before
+    assert not list(tmp_path.glob(".*.tmp"))
 
 
 def test_uploads_are_listed_per_viewer_not_for_everyone(tmp_path):
@@ -760,6 +794,31 @@ def test_inputs_that_change_together_are_all_heard(tmp_path):
         ["interval-shortlist-poll.n_intervals", "button-shortlist-add.n_clicks"],
     )
     assert status == 200 and len(service.shortlist.entries()) == 1
+    service.shutdown()
+
+
+def test_a_shortlist_that_cannot_save_says_so_on_the_page(tmp_path, monkeypatch):
+    """A full or locked store once answered the "Add" click with a server error and a line in
+    the server's log only; the page now says why in one line, and keeps the note for a retry."""
+    import app.dashboard.shortlist as shortlist_module
+
+    client, service, _ = _client(tmp_path)
+    client.open_page("?case=vesper_venus_orbiter")
+    client.settle(60.0)
+
+    def full(*args, **kwargs):
+        raise sqlite3.OperationalError("database or disk is full")
+
+    monkeypatch.setattr(shortlist_module.Shortlist, "_ensure", full)
+    client.values["button-shortlist-add.n_clicks"] = 1
+    client.values["input-shortlist-note.value"] = "check the DLA"
+    status, reply = client.call("div-shortlist-table.children", ["button-shortlist-add.n_clicks"])
+    assert status == 200
+    message = json.dumps(reply["response"]["div-message-shortlist"]["children"])
+    assert "Shortlist: not kept" in message and "full" in message
+    assert "input-shortlist-note" not in reply["response"]  # the note stays for another try
+    monkeypatch.undo()
+    assert service.shortlist.entries() == []
     service.shutdown()
 
 

@@ -7,8 +7,9 @@ folders); nothing a page sends is ever joined into a path, so no other file on t
 be read through a case reference.
 
 **Uploads are content-addressed.** An uploaded (or survey-opened) case is stored under the first
-12 hex digits of the SHA-256 of its text (``upload-<hash>.toml``), written atomically (temporary
-file in the same folder, fsync, rename), so a link that names it works for every viewer and the
+12 hex digits of the SHA-256 of its text (``upload-<hash>.toml``), written through the project's
+atomic writer (:func:`solver.files.atomic.atomic_output`: temporary file in the same folder,
+fsync, rename), so a link that names it works for every viewer and the
 same file uploaded twice is one case. When it is read, its hash is checked again: a damaged file
 is refused and reported, never trusted.
 
@@ -26,12 +27,12 @@ import hashlib
 import logging
 import os
 import re
-import tempfile
 import threading
 from collections import OrderedDict
 from pathlib import Path
 
 from solver.errors import InputError
+from solver.files.atomic import atomic_output, sweep_temporaries
 from solver.window.case import Case, dumps_toml, parse_case
 from solver.window.grid import check_grid_size
 
@@ -248,19 +249,9 @@ class CaseCatalogue:
                 pass
             _LOG.warning("replacing damaged upload %s with a fresh copy", case_id)
         self.uploads_dir.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(dir=self.uploads_dir, prefix=".upload-", suffix=".tmp")
-        try:
-            with os.fdopen(fd, "wb") as handle:
-                handle.write(raw)
-                handle.flush()
-                os.fsync(handle.fileno())
-            os.replace(tmp, target)
-        except BaseException:
-            try:
-                os.unlink(tmp)
-            except FileNotFoundError:
-                pass
-            raise
+        sweep_temporaries(self.uploads_dir)  # what writers killed mid-write left (hours old)
+        with atomic_output(target) as handle:  # whole or not at all; fsynced, then renamed
+            handle.write(raw)
         with self._lock:
             self._loaded.pop(case_id, None)
         return case_id

@@ -21,6 +21,7 @@ from solver.window.metrics import METRICS
 from .. import theme
 from ..controls import SLIDERS, Slider, control_field, controls_of, error_text, label
 from ..display_data import DetailRow
+from ..view_changes import short
 from ..view_state import MAP_METRICS
 
 POLL_SHORTLIST_MS = 3000
@@ -468,10 +469,12 @@ def details_children(sections: list[tuple[str, list[DetailRow]]], note: str = ""
     return out
 
 
-def shortlist_children(entries, current_case: str | None) -> list:
-    """The shortlist table (newest first), with a link that opens each arc and a remove button."""
+def shortlist_children(entries, current_case: str | None, problem: str = "") -> list:
+    """The shortlist table (newest first), with a link that opens each arc and a remove button;
+    ``problem``: the store's latest problem, one line above the table."""
+    notice = [html.Div(short(problem), className="aw-message-error")] if problem else []
     if not entries:
-        return [html.Div("No arcs kept yet.", className="aw-small")]
+        return [*notice, html.Div("No arcs kept yet.", className="aw-small")]
     head = html.Thead(
         html.Tr(
             [
@@ -535,7 +538,7 @@ def shortlist_children(entries, current_case: str | None) -> list:
                 **{"data-entry-id": e.id},
             )
         )
-    return [html.Table([head, html.Tbody(rows)], className="aw-shortlist-table")]
+    return [*notice, html.Table([head, html.Tbody(rows)], className="aw-shortlist-table")]
 
 
 __all__ = [

@@ -59,6 +59,7 @@ from ..map_loop import (
     progress_of,
     status_from_ticket,
 )
+from ..shortlist import ShortlistUnavailable
 from ..view_changes import ViewInputs, errors_by_target, plan_view, short
 from ..view_state import (
     ViewState,
@@ -729,6 +730,10 @@ def _register_cases(app, service: WindowService) -> None:
             title = service.catalogue.load(case_id).title
         except InputError as exc:
             return _notes([f"{name} was not loaded: {exc}"]), no_update, no_update, no_update
+        except OSError as exc:  # the server's disk (full, read-only): nothing half written
+            reason = exc.strerror or type(exc).__name__
+            line = f"{name} was not stored on the server ({reason}); try again later."
+            return _notes([line]), no_update, no_update, no_update
         mine = remember(my_cases, case_id)
         return (
             html_ok(f"Loaded “{title}” from {name}; it is in your case list."),
@@ -789,16 +794,24 @@ def _register_shortlist(app, service: WindowService) -> None:
                 service.keep(view, note, author, best)
             except InputError as exc:
                 message = _notes([f"Not kept: {exc}"])
+            except ShortlistUnavailable as exc:  # the note stays in its box for another try
+                message = _notes([str(exc)])
             else:
                 note_out, message = "", html_ok("Kept in the shortlist.")
         elif isinstance(trigger, dict) and trigger.get("type") == "button-shortlist-remove":
             if ctx.triggered and ctx.triggered[0].get("value"):
-                shortlist.remove(str(trigger["index"]))
+                try:
+                    shortlist.remove(str(trigger["index"]))
+                except ShortlistUnavailable as exc:
+                    message = _notes([str(exc)])
         now = shortlist.version()
         if now == version and trigger != "button-shortlist-add" and ctx.triggered_id:
             return no_update, no_update, note_out, message
         entries = shortlist.entries()
-        table = layout.shortlist_children(entries, view.case if view else None)
+        problems = shortlist.problems()
+        table = layout.shortlist_children(
+            entries, view.case if view else None, problems[-1] if problems else ""
+        )
         return table, now, note_out, message
 
 
