@@ -251,9 +251,53 @@ def test_element_only_case_in_year_one_gets_a_message(tmp_path):
         text = text.replace(a, b)
     catalogue = CaseCatalogue(SAMPLES, tmp_path)
     # Refused by the case parser itself: element bodies have a date range of their own
-    # (solver/ephemeris/bodies.py), narrower still on the dashboard (DATE_RANGE).
+    # (solver/ephemeris/bodies.py), the one rule the dashboard reads too.
     with pytest.raises(InputError, match=r"window\.departure_start = '0001-03-01T00:00:00'.*range"):
         catalogue.add_upload("old.toml", data_url(text))
+
+
+def _element_only_case(year: int) -> str:
+    """The relay sample about an invented element-defined planet P0, in another year."""
+    text = (SAMPLES / "kestrel_relay_leo.toml").read_text()
+    text = text.replace(
+        'central_body = "earth"\ndeparture_body', 'central_body = "P0"\ndeparture_body'
+    )
+    text = text.replace("[[bodies]]", ELEMENT_PLANET + "\n[[bodies]]", 1)
+    text = text.replace('central_body = "earth"\nframe', 'central_body = "P0"\nframe')
+    return text.replace("2031-", f"{year:04d}-")
+
+
+@pytest.mark.parametrize("year", [1500, 2900])
+def test_element_only_cases_take_the_engines_date_range_on_the_dashboard(tmp_path, year):
+    """The dashboard once held element-only cases to 1800-2200 while the engine accepts
+    1000-3000 for element bodies: one rule now (solver/ephemeris/bodies.py), and such a case
+    is shown like any other."""
+    client, service, _ = _client(tmp_path)
+    case_id = service.catalogue.add_upload("far.toml", data_url(_element_only_case(year)))
+    client.open_page(f"?case={case_id}")
+    assert client.settle(60.0)
+    assert client.values["graph-window-map.figure"]["data"][0]["type"] == "heatmap"
+    assert str(year) in json.dumps(client.values["div-details-arc.children"])
+    assert set(client.statuses) == {200}
+    service.shutdown()
+
+
+def test_a_date_outside_the_element_range_is_refused_on_its_control(tmp_path):
+    """A slider moved outside what the engine accepts: one line on the date control naming the
+    field, the value and the accepted range; the view keeps its last good dates."""
+    client, service, _ = _client(tmp_path)
+    case_id = service.catalogue.add_upload("far.toml", data_url(_element_only_case(2900)))
+    client.open_page(f"?case={case_id}")
+    client.settle(60.0)
+    before = client.values["store-view-query.data"]
+    end = iso_to_unix_days("3000-06-01")
+    client.values["slider-arrival-range.value"] = [end - 10.0, end]
+    assert client.sync("slider-arrival-range.value") == 200
+    error = client.values["store-control-errors.data"]["arr"]
+    assert "window.arrival_start" in error and "3000-05-22" in error
+    assert "1000-01-01 to 3000-01-01" in error
+    assert client.values["store-view-query.data"] == before
+    service.shutdown()
 
 
 ELEMENT_PLANET = """[[bodies]]

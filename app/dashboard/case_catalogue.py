@@ -43,10 +43,6 @@ UPLOAD_PREFIX = "upload-"
 UPLOAD_ID_RE = re.compile(r"upload-[0-9a-f]{12}")
 MAX_MY_CASES = 50
 """Uploads a viewer's picker lists at most (the most recent)."""
-DATE_RANGE = ("1800-01-01", "2200-12-31")
-"""Window dates the dashboard shows: the span of the JPL DE423 ephemeris. Cases of bodies given
-by orbital elements alone have no ephemeris span of their own, so the dashboard holds them to
-this one (its date axes, sliders and UTC labels are made for it)."""
 _EFFECTIVE_CACHE_SIZE = 64
 
 _LOG = logging.getLogger(__name__)
@@ -55,22 +51,6 @@ _LOG = logging.getLogger(__name__)
 def content_id(raw: bytes) -> str:
     """The id of an uploaded case's text: ``upload-`` and 12 hex digits of its SHA-256."""
     return UPLOAD_PREFIX + hashlib.sha256(raw).hexdigest()[:12]
-
-
-def check_dates(case: Case) -> None:
-    """InputError when a window date lies outside :data:`DATE_RANGE`."""
-    from solver.ephemeris.timescales import utc_to_jd_tdb
-
-    lo, hi = (float(utc_to_jd_tdb(d)) for d in DATE_RANGE)
-    for key, jd in (
-        ("window.departure_start", case.departure_start_jd_tdb),
-        ("window.departure_end", case.departure_end_jd_tdb),
-        ("window.arrival_start", case.arrival_start_jd_tdb),
-        ("window.arrival_end", case.arrival_end_jd_tdb),
-    ):
-        if not lo <= jd <= hi + 1.0:
-            text = getattr(case, key.split(".", 1)[1])
-            raise InputError(key, text, f"a date from {DATE_RANGE[0]} to {DATE_RANGE[1]}")
 
 
 class CaseCatalogue:
@@ -168,8 +148,9 @@ class CaseCatalogue:
         return case
 
     def effective(self, view: ViewState) -> Case:
-        """The case a view shows: its file with the view's changes, validated, its dates within
-        :data:`DATE_RANGE` and its grid size checked (arithmetic, before anything is built)."""
+        """The case a view shows: its file with the view's changes, validated by the engine
+        (window dates within each body's ephemeris or element range, the one rule: solver/
+        ephemeris/bodies.py) and its grid size checked (arithmetic, before anything is built)."""
         key = view.case_part()
         with self._lock:
             if key in self._effective:
@@ -177,7 +158,6 @@ class CaseCatalogue:
                 return self._effective[key]
         base = self.load(view.case)
         case = base.with_changes(**view.change_dict()) if view.changes else base
-        check_dates(case)
         check_grid_size(case)
         with self._lock:
             self._effective[key] = case
@@ -192,8 +172,8 @@ class CaseCatalogue:
         Raises
         ------
         InputError
-            Empty, too large, not text, not TOML, not a case the engine accepts, dates outside
-            the dashboard's range or a grid over the cap (the message names the key and what is
+            Empty, too large, not text, not TOML, not a case the engine accepts (its dates
+            within each body's ephemeris or element range) or a grid over the cap (the message names the key and what is
             accepted).
         """
         name = clean_filename(filename)
@@ -227,13 +207,11 @@ class CaseCatalogue:
         except UnicodeDecodeError:
             raise InputError("upload", name, "a UTF-8 text TOML case file") from None
         case = parse_case(text, source_path=name)
-        check_dates(case)
         check_grid_size(case)
         return self._store(raw)
 
     def add_case(self, case: Case) -> str:
         """Store a case built by the server (a survey target's window); returns its case id."""
-        check_dates(case)
         check_grid_size(case)
         return self._store(dumps_toml(case).encode("utf-8"))
 
@@ -292,12 +270,10 @@ def _size(n: int) -> str:
 
 
 __all__ = [
-    "DATE_RANGE",
     "MAX_UPLOAD_BYTES",
     "UPLOAD_ID_RE",
     "UPLOAD_PREFIX",
     "CaseCatalogue",
-    "check_dates",
     "clean_filename",
     "content_id",
     "forget",
