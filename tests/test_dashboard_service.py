@@ -888,3 +888,29 @@ def test_upload_over_http_joins_the_viewers_list_and_is_shown(tmp_path):
     assert reply["response"]["dropdown-case"]["value"] == "tallis_rendezvous"
     assert all(o["value"] != case_id for o in client.values["dropdown-case.options"])
     service.shutdown()
+
+
+def test_a_satellite_case_hides_the_launch_only_controls_and_says_why(tmp_path):
+    """docs/dashboard.md: controls that do not fit the case (C3 and DLA for a transfer that
+    leaves a satellite) are not offered. A launch from a planet about the Sun shows them; a
+    transfer between satellites of Earth hides them with one line saying why."""
+    from app.dashboard.controls import LAUNCH_FIELD_KEYS, launch_fields
+
+    assert LAUNCH_FIELD_KEYS == ("limits.c3_max_km2_s2", "limits.dla_max_deg")
+    styles, hint = launch_fields(True, "Sun")
+    assert hint == "" and all(style == {} for style in styles.values())
+    styles, hint = launch_fields(False, "Earth")
+    assert set(styles) == set(LAUNCH_FIELD_KEYS)
+    assert all(style == {"display": "none"} for style in styles.values())
+    assert "C3 max" in hint and "|DLA| max" in hint and "launch vehicle" in hint
+    assert "Earth" in hint
+
+    client, service, _ = _client(tmp_path)
+    client.open_page("?case=kestrel_relay_leo")
+    assert client.values["field-c3max.style"] == {"display": "none"}
+    assert client.values["field-dlamax.style"] == {"display": "none"}
+    assert "Earth" in client.values["text-launch-hint.children"]
+    client.open_page("?case=tallis_rendezvous")
+    assert client.values["field-c3max.style"] == {} == client.values["field-dlamax.style"]
+    assert client.values["text-launch-hint.children"] == ""
+    service.shutdown()

@@ -173,8 +173,8 @@ class CaseCatalogue:
         ------
         InputError
             Empty, too large, not text, not TOML, not a case the engine accepts (its dates
-            within each body's ephemeris or element range) or a grid over the cap (the message names the key and what is
-            accepted).
+            within each body's ephemeris or element range) or a grid over the cap (the
+            message names the key and what is accepted).
         """
         name = clean_filename(filename)
         if not isinstance(contents, str) or "," not in contents:

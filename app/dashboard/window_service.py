@@ -232,6 +232,10 @@ class WindowService:
         fit = case_outputs(case, self.bodies(case))
         return metric if metric in fit.ranking_metrics else fit.default_metric
 
+    def launch_limits(self, case: Case) -> bool:
+        """Whether the case's launch-only controls fit it (``CaseOutputs.launch_limits``)."""
+        return case_outputs(case, self.bodies(case)).launch_limits
+
     def metric_options(self, case: Case) -> list[dict[str, str]]:
         """The metric picker's choices for a case: the map metrics that fit it."""
         fit = case_outputs(case, self.bodies(case))

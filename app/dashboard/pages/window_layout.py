@@ -189,6 +189,7 @@ def limit_controls() -> html.Section:
         "Limits",
         html.Div([control_field(c) for c in controls_of("limits")], className="aw-grid2"),
         html.Div("Leave a box empty for no limit.", className="aw-small"),
+        html.Div(id="text-launch-hint", className="aw-small"),
     )
 
 

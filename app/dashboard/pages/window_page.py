@@ -44,7 +44,16 @@ from solver.time_units import MINUTE_DAYS, MINUTES_PER_DAY
 
 from .. import theme
 from ..case_catalogue import MAX_UPLOAD_BYTES, clean_filename, forget, my_case_ids, remember
-from ..controls import CONTROL_IDS, CONTROLS, ERROR_TARGETS, SLIDER_IDS, SLIDERS
+from ..controls import (
+    CONTROL_BY_KEY,
+    CONTROL_IDS,
+    CONTROLS,
+    ERROR_TARGETS,
+    LAUNCH_FIELD_KEYS,
+    SLIDER_IDS,
+    SLIDERS,
+    launch_fields,
+)
 from ..display_data import display_name
 from ..exports import arc_json, arc_oem, figure_html, view_stem
 from ..grid_jobs import grid_key
@@ -288,6 +297,9 @@ def _register_view(app, service: WindowService) -> None:
             outputs[f"{slider.url}_{prop}"] = Output(slider.id, prop)
     for control in CONTROLS:
         outputs[f"control:{control.key}"] = Output(control.id, "value")
+    for key in LAUNCH_FIELD_KEYS:
+        outputs[f"field:{key}"] = Output(f"field-{CONTROL_BY_KEY[key].setting.url}", "style")
+    outputs["launch_hint"] = Output("text-launch-hint", "children")
     for target in ERROR_TARGETS:
         outputs[f"error:{target}"] = Output(f"text-error-{target}", "children")
 
@@ -408,6 +420,10 @@ def _fill_controls(out: dict, service: WindowService, view: ViewState, case, my_
     out["title"] = case.title
     out["description"] = case.description
     out["central"] = f"Central body: {display_name(case.central_body)}"
+    styles, hint = launch_fields(service.launch_limits(case), display_name(case.central_body))
+    for key, style in styles.items():
+        out[f"field:{key}"] = style
+    out["launch_hint"] = hint
     options = _body_options(case)
     for key in ("case.departure_body", "case.target_body"):
         out[f"options:{key}"] = options
