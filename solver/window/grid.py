@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import math
 import os
 from collections.abc import Callable, Mapping
@@ -58,6 +59,16 @@ whole-day diagonal, a Δv that is 0 for every arc (no parking orbit, a flyby).""
 def tie_tolerance(value: float) -> float:
     """How far from ``value`` another value still ties with it (in the metric's unit)."""
     return max(1e-12, TIE_RELATIVE * abs(value)) if np.isfinite(value) else 0.0
+
+
+def tied_lowest(score: NDArray[np.float64], axis: int = -1) -> NDArray[np.bool_]:
+    """Finite values within :func:`tie_tolerance` of the lowest along ``axis`` (none where
+    every value is infinite)."""
+    low = np.min(score, axis=axis, keepdims=True)
+    finite_low = np.isfinite(low)
+    tolerance = np.where(finite_low, np.maximum(1e-12, TIE_RELATIVE * np.abs(low)), 0.0)
+    with np.errstate(invalid="ignore"):
+        return np.isfinite(score) & finite_low & (score <= low + tolerance)
 
 
 def ranks_before(values: Mapping[str, float], other: Mapping[str, float], metric: str) -> bool:
@@ -189,13 +200,46 @@ class WindowGrid:
         return self.arcs[name]
 
     def best_slot(self, metric: str = "c3_km2_s2") -> NDArray[np.int64]:
-        """Per cell, the slot of the best arc by ``metric``: within limits first, -1 if none."""
-        values = ranking_values(self.metric(metric), metric)
-        score = np.where(self.converged, values, np.inf)
-        score_within = np.where(self.within, score, np.inf)
-        any_within = self.within.any(axis=-1)
-        slot = np.where(any_within, np.argmin(score_within, axis=-1), np.argmin(score, axis=-1))
+        """Per cell, the slot of the best arc by ``metric``: within limits first, -1 if none.
+
+        Among a cell's arcs, the rule of :meth:`best_cell`: the lowest ``metric``, arcs it does
+        not separate ranked by :data:`TIE_BREAK` (a TOF, the same for every arc of a cell, is
+        decided by the total Δv), then the lowest slot."""
+        any_within = self.within.any(axis=-1, keepdims=True)
+        qualifies = np.where(any_within, self.within, self.converged)
+        best = self._tie_broken(qualifies, metric, axis=-1)[-1][1]
+        slot = np.argmax(best, axis=-1)
         return np.where(self.converged.any(axis=-1), slot, -1)
+
+    def _tie_broken(
+        self, qualifies: NDArray[np.bool_], metric: str, axis: int | None
+    ) -> list[tuple[str, NDArray[np.bool_]]]:
+        """The one tie rule, step by step: the arcs of ``qualifies`` with the lowest ``metric``,
+        then narrowed by each :data:`TIE_BREAK` metric in turn (along ``axis``: -1 per cell,
+        None over the whole grid). Each step is (the metric, the arcs still tied); the first
+        arc left in date and slot order is the best."""
+        shape = qualifies.shape
+
+        def along(values: NDArray) -> NDArray:
+            return values.reshape(-1) if axis is None else values
+
+        def lowest(values: NDArray, among: NDArray[np.bool_]) -> NDArray[np.bool_]:
+            score = np.where(among, values, np.inf)
+            return tied_lowest(along(score), -1).reshape(shape)
+
+        values = ranking_values(self.metric(metric), metric)
+        tied = lowest(values, qualifies)
+        steps = [(metric, tied)]
+        for name in TIE_BREAK:
+            if name == metric:
+                continue
+            narrowed = lowest(ranking_values(self.metric(name), name), tied)
+            if axis is None:
+                tied = narrowed if narrowed.any() else tied
+            else:  # a cell whose arcs this metric cannot rank (all NaN) keeps its ties
+                tied = np.where(narrowed.any(axis=axis, keepdims=True), narrowed, tied)
+            steps.append((name, tied))
+        return steps
 
     def best_values(self, metric: str = "c3_km2_s2", by: str | None = None) -> NDArray[np.float64]:
         """(n_dep, n_arr) values of ``metric`` on each cell's best arc ranked ``by`` a metric."""
@@ -250,22 +294,15 @@ class WindowGrid:
             return None
         low = float(score[finite].min())
         high = float(score[finite].max())
-        candidates = np.flatnonzero(score.reshape(-1) <= low + tie_tolerance(low))
-        tied = len(candidates)
+        steps = self._tie_broken(qualifies, metric, axis=None)
+        tied = int(steps[0][1].sum())
         decided_by = None
-        for name in TIE_BREAK:
-            if len(candidates) == 1:
+        for (_, before), (name, after) in itertools.pairwise(steps):
+            if int(after.sum()) < int(before.sum()):
+                decided_by = name
                 break
-            if name == metric:
-                continue
-            values = ranking_values(self.metric(name), name).reshape(-1)[candidates]
-            values = np.where(np.isfinite(values), values, np.inf)
-            best = float(values.min())
-            narrowed = candidates[values <= best + tie_tolerance(best)]
-            if len(narrowed) < len(candidates):
-                decided_by = decided_by or name
-                candidates = narrowed
-        i, j, k = np.unravel_index(int(candidates[0]), score.shape)  # earliest dates first
+        first = int(np.flatnonzero(steps[-1][1].reshape(-1))[0])  # earliest dates first
+        i, j, k = np.unravel_index(first, score.shape)
         return BestChoice(
             index=(int(i), int(j), int(k)),
             metric=metric,
@@ -534,5 +571,6 @@ __all__ = [
     "max_cell_arcs",
     "ranks_before",
     "tie_tolerance",
+    "tied_lowest",
     "window_notes",
 ]
