@@ -79,5 +79,19 @@ def test_sequence_bench_baseline_scores_the_same_candidates():
 def test_quick_sequence_evaluation_line_reports_a_ratio():
     from app.bench.sequence_bench import evaluation_lines
 
-    (line,) = evaluation_lines("quick")
+    line, against_stages = evaluation_lines("quick")
     assert line.value > 0 and line.baseline_value and line.ratio > 1
+    assert "load average" in line.notes and line.extra["load_average"] >= 0
+    assert against_stages.baseline_value and against_stages.ratio > 0
+
+
+def test_instruction_counts_are_read_from_one_callgrind_dump_per_phase(tmp_path):
+    """The counting run marks each phase with a sleep; callgrind writes one numbered dump per
+    mark. The parser takes them in order (without running valgrind here)."""
+    from app.bench.sequence_instructions import _part_number
+
+    names = ["callgrind.out", "callgrind.out.10", "callgrind.out.2", "callgrind.out.1"]
+    order = sorted((tmp_path / n for n in names), key=_part_number)
+    assert [p.name for p in order] == [
+        "callgrind.out.1", "callgrind.out.2", "callgrind.out.10", "callgrind.out"
+    ]  # fmt: skip

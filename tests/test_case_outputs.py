@@ -174,6 +174,7 @@ def test_provenance_names_what_supplies_the_states():
 
 def test_dashboard_reads_the_decision_from_the_solver(tmp_path):
     from app.dashboard.config import Settings
+    from app.dashboard.detail_rows import detail_rows
     from app.dashboard.display_data import arc_details
     from app.dashboard.window_service import WindowService
     from app.samples import SAMPLE_DIR
@@ -194,7 +195,7 @@ def test_dashboard_reads_the_decision_from_the_solver(tmp_path):
     arc = select_arc(solve_cell(case, grid.departure_jd_tdb[i], grid.arrival_jd_tdb[j]))
     headings = [h for h, _rows in arc_details(case, arc, provenance(case))]
     assert "Departure burn" in headings and "Phasing" in headings
-    rows = [r.label for _h, section in arc_details(case, arc, {}) for r in section]
+    rows = [label for _h, label in detail_rows(arc_details(case, arc, {}))]
     assert "C3" not in rows and "DLA" not in rows
 
 

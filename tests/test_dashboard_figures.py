@@ -18,8 +18,10 @@ import pytest
 from dash import Patch
 
 from app.dashboard import figures, theme
+from app.dashboard.detail_rows import detail_rows
 from app.dashboard.display_data import (
     HOVER_FIELDS,
+    MASS_HOVER_FIELDS,
     MapPoint,
     arc_details,
     arc_scene,
@@ -114,15 +116,20 @@ def test_map_data_is_the_grid_transposed_with_its_hover_numbers(tallis):
     data = map_data(grid, "c3_km2_s2", "0")
     n_dep, n_arr, _ = grid.shape
     assert data.values.shape == (n_arr, n_dep)
-    assert data.hover.shape == (n_arr, n_dep, len(HOVER_FIELDS))
+    # Every number of the arc, and the kilograms of a case with a spacecraft mass and a
+    # required mass (Tallis has both).
+    names = [name for name, *_ in data.hover_fields]
+    assert names == [f[0] for f in HOVER_FIELDS] + [f[0] for f in MASS_HOVER_FIELDS]
+    assert data.hover.shape == (n_arr, n_dep, len(names))
     i, j = 140, 210
     assert data.values[j, i] == pytest.approx(grid.arcs["c3_km2_s2"][i, j, 0], rel=1e-6)
-    for k, (name, *_rest) in enumerate(HOVER_FIELDS):
+    for k, name in enumerate(names):
         expected = (
             grid.metric(name)[i, j, 0]
             if name != "transfer_angle_deg"
             else (grid.transfer_angle_deg[i, j])
         )
+        assert np.isfinite(expected)
         assert data.hover[j, i, k] == pytest.approx(expected, rel=1e-6)
     assert data.outside[j, i] == (not grid.within[i, j, 0])
     assert data.limit == case.limits.c3_max_km2_s2
@@ -312,9 +319,9 @@ def test_details_carry_every_metric_with_units(tallis):
     case, grid = tallis
     i, j, _ = grid.best_cell("c3_km2_s2")
     arc = select_arc(solve_cell(case, grid.departure_jd_tdb[i], grid.arrival_jd_tdb[j]), 0)
-    sections = dict(arc_details(case, arc, grid.provenance))
-    assert {"Arc", "Departure", "Arrival", "Total", "Provenance"} <= set(sections)
-    rows = {(h, r.label): r for h, rs in sections.items() for r in rs}
+    details = arc_details(case, arc, grid.provenance)
+    assert {"Arc", "Departure", "Arrival", "Total", "Provenance"} <= {h for h, _ in details}
+    rows = detail_rows(details)
     assert rows[("Departure", "C3")].unit == METRICS["c3_km2_s2"].unit
     assert float(rows[("Departure", "C3")].value) == pytest.approx(
         arc.metrics["c3_km2_s2"], abs=5e-4
@@ -337,9 +344,12 @@ def test_hover_carries_the_entry_speed_when_the_case_asks_for_it():
     grid = compute_window(case)
     data = map_data(grid, "c3_km2_s2", "0")
     names = [name for name, *_ in data.hover_fields]
-    assert names[-1] == "entry_speed_km_s" and data.hover.shape[-1] == len(HOVER_FIELDS) + 1
+    assert names[len(HOVER_FIELDS)] == "entry_speed_km_s"
+    assert names[len(HOVER_FIELDS) + 1 :] == [f[0] for f in MASS_HOVER_FIELDS]
+    assert data.hover.shape[-1] == len(HOVER_FIELDS) + 1 + len(MASS_HOVER_FIELDS)
     i, j = 60, 120
-    assert data.hover[j, i, -1] == pytest.approx(grid.arcs["entry_speed_km_s"][i, j, 0], rel=1e-6)
+    k = len(HOVER_FIELDS)
+    assert data.hover[j, i, k] == pytest.approx(grid.arcs["entry_speed_km_s"][i, j, 0], rel=1e-6)
 
 
 def test_large_responses_are_compressed(tmp_path):

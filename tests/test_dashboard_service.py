@@ -896,7 +896,7 @@ def test_a_satellite_case_hides_the_launch_only_controls_and_says_why(tmp_path):
     transfer between satellites of Earth hides them with one line saying why."""
     from app.dashboard.controls import LAUNCH_FIELD_KEYS, launch_fields
 
-    assert LAUNCH_FIELD_KEYS == ("limits.c3_max_km2_s2", "limits.dla_max_deg")
+    assert LAUNCH_FIELD_KEYS == ("limits.c3_max_km2_s2", "limits.dla_max_deg", "spacecraft.vehicle")
     styles, hint = launch_fields(True, "Sun")
     assert hint == "" and all(style == {} for style in styles.values())
     styles, hint = launch_fields(False, "Earth")
@@ -909,6 +909,7 @@ def test_a_satellite_case_hides_the_launch_only_controls_and_says_why(tmp_path):
     client.open_page("?case=kestrel_relay_leo")
     assert client.values["field-c3max.style"] == {"display": "none"}
     assert client.values["field-dlamax.style"] == {"display": "none"}
+    assert client.values["field-vehicle.style"] == {"display": "none"}
     assert "Earth" in client.values["text-launch-hint.children"]
     client.open_page("?case=tallis_rendezvous")
     assert client.values["field-c3max.style"] == {} == client.values["field-dlamax.style"]

@@ -256,6 +256,18 @@ def test_per_body_epochs():
         element_set_states(bodies, epochs[:2], per_body=True)
 
 
+def test_a_state_does_not_depend_on_the_other_dates_asked_with_it():
+    """One date alone and the same date among many give the same bits (the window grid asks
+    for whole rows of dates, a single arc for one)."""
+    body = ElementSet([_asteroid()])
+    jd = np.linspace(2462000.5, 2463000.5, 41)
+    r_all, v_all = body.states_about_central(jd)
+    for k in (0, 7, 40):
+        r_one, v_one = body.states_about_central(jd[k : k + 1])
+        assert np.array_equal(r_one[0, 0], r_all[0, k])
+        assert np.array_equal(v_one[0, 0], v_all[0, k])
+
+
 def test_many_bodies_chunked_like_one_call():
     rng = np.random.default_rng(5)
     n = 300

@@ -21,10 +21,13 @@ from solver.sequence.spec import parse_sequence_case
 # 1990-12-08, Earth 1992-12-08, Jupiter arrival 1995-12-07.
 FLOWN = ("1989-10-18", "1990-02-10", "1990-12-08", "1992-12-08", "1995-12-07")
 
-# The mission as its designers framed it (from memory): a launch-energy-limited spacecraft
-# (upper stage on a crewed launcher), ballistic flybys, arrival at Jupiter in 1995. So: minimize
-# C3 over the 1989 launch year, unpowered flybys (within 10 m/s), arrival by the end of 1995.
-# The two-year Earth-Earth leg is a 2:1 resonant return (docs/references.md 8.4).
+# The mission as an analyst would set it up (its requirements recalled from memory): ballistic
+# flybys, arrival at Jupiter by the end of 1995, and the propellant the mission spends on its two
+# big burns as the cost: the departure burn from a 300 km parking orbit (the launch energy) plus
+# the Jupiter orbit insertion into a stated capture orbit (periapsis 4 Jupiter radii, apoapsis
+# 1.9e7 km, a first orbit of about 200 days). So: minimize the total Δv over the 1989 launch
+# year, unpowered flybys (within 10 m/s). The two-year Earth-Earth leg is a 2:1 resonant return
+# (docs/references.md 8.4).
 VEEGA_1989 = """
 [case]
 title = "Venus-Earth-Earth gravity assists to Jupiter, 1989 launch year"
@@ -47,7 +50,7 @@ periapsis_altitude_km = 214476
 apoapsis_altitude_km = 19000000
 
 [sequence]
-objective = "c3_km2_s2"
+objective = "dv_total_km_s"
 unpowered_only = true
 unpowered_tolerance_km_s = 0.01
 
@@ -125,16 +128,23 @@ tof_max_days = 400
 
 @pytest.mark.slow
 def test_the_flown_1989_venus_earth_earth_sequence_is_rediscovered(validation):
-    """Dates within 15 days for the launch and the three flybys.
+    """Dates within 15 days for the launch and the three flybys; the arrival within a month.
 
-    What the model leaves out of the flown mission: the trajectory correction manoeuvres, the
-    planets' pulls on each other's legs (Jupiter's over the two-year orbit moves the spacecraft
-    by the order of 1e6 km), finite spheres of influence, the exact launch period (set by the
-    launch vehicle and operations, not by the minimum C3), and the resonant Earth-Earth leg
-    flown as one exactly periodic orbit (the Earth is 0.48 deg further on after two years; the
-    flown mission closed that gap with its manoeuvres). The Jupiter arrival is not pinned by the
-    objective: the lowest C3 arrives as late as the window allows (1995-12-30, 23 days after the
-    flown date, in this search), so it is checked against the window and within a month.
+    What the model leaves out of the flown mission: the trajectory correction manoeuvres (and
+    any deep-space manoeuvre), the planets' pulls on each other's legs (Jupiter's over the
+    two-year orbit moves the spacecraft by the order of 1e6 km), finite spheres of influence,
+    the launch period (set by the launch vehicle and operations, not by the minimum cost), the
+    asteroid flybys on the way, and the resonant Earth-Earth leg flown as one exactly periodic
+    orbit (the Earth is 0.48 deg further on after two years; the flown mission closed that gap
+    with its manoeuvres).
+
+    The arrival is not pinned by the cost: in this model the total Δv (like the C3 alone) keeps
+    falling as the Jupiter leg lengthens, so the best arrival sits on the window's end, 1995-12-31,
+    24 days after the flown date. What was measured in making this test: the best candidate
+    arriving by the flown date costs 20 m/s more (4.681 against 4.662 km/s), and with no
+    arrival window the best arrives some 95 days after it and costs 0.09 km/s less (C3 alone: 660
+    days after). The flown arrival date was a requirement of the mission, not the Δv optimum of a
+    two-body model; so the arrival is checked against the window and within a month.
     """
     sequence_case = parse_sequence_case(VEEGA_1989)
     found = search_case(
@@ -159,7 +169,8 @@ def test_the_flown_1989_venus_earth_earth_sequence_is_rediscovered(validation):
             measured=miss,
             tolerance=tolerance,
             unit="days",
-            note="search over the 1989 launch year, minimum C3, unpowered flybys",
+            note="search over the 1989 launch year, minimum total Δv (departure burn and "
+            "Jupiter orbit insertion), unpowered flybys",
         )
     assert best.epochs_jd_tdb[4] <= sequence_case.case.arrival_end_jd_tdb
     # Launch energy of the flown mission: C3 about 15-17 km²/s² [MEMORY]; Venus flyby at about

@@ -53,6 +53,38 @@ def test_a_targets_survey_replaces_the_target_and_keeps_every_row():
     assert sorted(frame["target"]) == sorted(t.name for t in targets)
 
 
+def test_a_rerun_computes_only_the_missing_or_damaged_year_targets(tmp_path, monkeypatch):
+    """Each finished year-target is a chunk file (solver.survey.store: atomic, keyed by the
+    task's inputs and the engine version); a rerun reads them instead of searching again."""
+    import solver.survey.sequences as sequences
+
+    tasks = plan_sequence_survey(_raw("quillon_sample_return"), years="2033-2034", settings=QUICK)
+    folder = tmp_path / "years.parquet.chunks"
+    first = run_sequence_survey(tasks, folder=folder)
+    files = sorted(folder.glob("chunk-seq-*.parquet"))
+    assert len(files) == 2
+    ran: list[str] = []
+    real = sequences.scan_sequence_task
+
+    def counting(task):
+        ran.append(task["label"])
+        return real(task)
+
+    monkeypatch.setattr(sequences, "scan_sequence_task", counting)
+    again = run_sequence_survey(tasks, folder=folder)
+    assert ran == []  # nothing searched twice
+    columns = ["label", "status", "objective_value", "encounter_dates_utc", "evaluations"]
+    assert again[columns].to_dict("records") == first[columns].to_dict("records")
+    # A damaged file, and a file of other inputs under a task's name, are computed again.
+    key = sequences.task_key(tasks[1])
+    (folder / sequences.task_file_name(key)).write_bytes(b"not parquet")
+    run_sequence_survey(tasks, folder=folder)
+    assert ran == ["2034"]
+    other = dict(tasks[0], settings={**tasks[0]["settings"], "seed": 1})
+    assert sequences.task_key(other) != sequences.task_key(tasks[0])
+    assert sequences.read_task_row(folder, other) is None
+
+
 def test_a_survey_needs_years_or_targets_and_names_a_bad_year():
     with pytest.raises(InputError) as info:
         plan_sequence_survey(_raw("quillon_sample_return"))

@@ -2,7 +2,7 @@
 
     arcwindow sequence CASE [--top K] [--seed S] [--json] [--out FILE.csv|.parquet]
     arcwindow sequence CASE --evaluate UTC,UTC,... [--arcs 0.0.1h.0] [--json] [--oem FILE]
-    arcwindow sequence CASE --grid [--beam N]
+    arcwindow sequence CASE --grid [--beam N] [--clock-step-deg D]
     arcwindow sequence CASE --years 2031-2040 | --targets TARGETS.csv [--workers N]
 
 Solver modules are imported inside ``run`` so that ``arcwindow --help`` stays fast.
@@ -74,6 +74,13 @@ def add_parser(subparsers: argparse._SubParsersAction) -> None:
         default=20_000,
         metavar="N",
         help="grid: partial sequences kept per leg (default 20000)",
+    )
+    parser.add_argument(
+        "--clock-step-deg",
+        type=float,
+        default=10.0,
+        metavar="DEG",
+        help="grid: step of a resonant leg's clock angle (default 10)",
     )
     parser.add_argument(
         "--time-limit", type=float, metavar="SECONDS", help="stop the search after this long"
@@ -174,7 +181,7 @@ def run(args: argparse.Namespace) -> int:
         try:
             result = grid_search_case(
                 sequence_case,
-                GridSettings(top=args.top, beam=args.beam),
+                GridSettings(top=args.top, beam=args.beam, clock_step_deg=args.clock_step_deg),
                 names=args.sequence,
                 progress=progress,
             )

@@ -21,9 +21,11 @@ def run_survey(args: argparse.Namespace, sequence_case) -> int:
     from solver.survey.sequences import (
         SequenceSurveySettings,
         plan_sequence_survey,
+        read_task_row,
         run_sequence_survey,
         write_sequence_survey,
     )
+    from solver.survey.store import chunk_folder
 
     path = resolve_sequence_case_path(args.case)
     raw = tomllib.loads(path.read_text(encoding="utf-8"))
@@ -52,13 +54,22 @@ def run_survey(args: argparse.Namespace, sequence_case) -> int:
             sys.stderr.write(f"\r{done}/{total} year-targets searched")
             sys.stderr.flush()
 
+    # With --out, each year-target's row is kept as a chunk file beside it: a rerun of the same
+    # survey (same case, settings and engine) runs only what is missing.
+    folder = chunk_folder(args.out) if args.out else None
     with survey_client(args.scheduler, args.workers) as client:
         if not quiet:
             print(
                 f"Sequence survey of {len(tasks)} year-targets on {describe_client(client)}",
                 file=sys.stderr,
             )
-        frame = run_sequence_survey(tasks, client=client, progress=progress)
+            if folder is not None:
+                done = sum(read_task_row(folder, task) is not None for task in tasks)
+                if done:
+                    print(
+                        f"{done} of {len(tasks)} already done in {folder} (kept)", file=sys.stderr
+                    )
+        frame = run_sequence_survey(tasks, client=client, progress=progress, folder=folder)
     if not quiet:
         sys.stderr.write("\n")
     prov = {

@@ -21,7 +21,7 @@ from typing import Any
 from dash import dcc, html
 
 from solver.errors import InputError
-from solver.window.outputs import launch_limit_keys
+from solver.window.outputs import launch_setting_keys
 from solver.window.settings import SETTINGS, Setting
 
 PANELS = {
@@ -31,6 +31,7 @@ PANELS = {
     "departure_orbit": "orbits",
     "arrival_orbit": "orbits",
     "limits": "limits",
+    "spacecraft": "mass",
 }
 """The panel of the page each section's controls sit in."""
 
@@ -40,6 +41,9 @@ CHOICE_TEXT = {
     "rendezvous": "rendezvous (match velocity)",
 }
 """Longer words for some choices in dropdowns (a choice without one shows as written)."""
+
+EMPTY_OPTIONS_TEXT = {"spacecraft.vehicle": "the case lists no launch vehicle"}
+"""What a dropdown of a case's own names says when the case has none."""
 
 
 @dataclass(frozen=True)
@@ -103,8 +107,9 @@ CONTROLS: tuple[Control, ...] = tuple(
 )
 CONTROL_BY_KEY: dict[str, Control] = {c.key: c for c in CONTROLS}
 CONTROL_IDS: dict[str, str] = {c.key: c.id for c in CONTROLS}
-LAUNCH_FIELD_KEYS: tuple[str, ...] = tuple(k for k in launch_limit_keys() if k in CONTROL_BY_KEY)
-"""Controls that limit a launch (C3 max, |DLA| max), hidden for a satellite case."""
+LAUNCH_FIELD_KEYS: tuple[str, ...] = tuple(k for k in launch_setting_keys() if k in CONTROL_BY_KEY)
+"""Controls that fit only a launch (C3 max, |DLA| max, launch vehicle), hidden for a satellite
+case."""
 """Control ids by the dotted case key they change."""
 
 
@@ -183,6 +188,8 @@ def control_field(control: Control) -> html.Div:
     s = control.setting
     label_id = f"label-{s.url}"
     if control.widget == "dropdown":
+        # A choice lists its values; a name (a body, a launch vehicle) gets the case's own
+        # names as options when the page shows a case.
         options = [{"value": c, "label": CHOICE_TEXT.get(c, c)} for c in s.choices]
         widget = dcc.Dropdown(
             id=control.id,
@@ -191,6 +198,7 @@ def control_field(control: Control) -> html.Div:
             # file's default when the link leaves it out)
             clearable=False,
             className="aw-dropdown",
+            placeholder=EMPTY_OPTIONS_TEXT.get(s.key, "none"),
         )
     else:
         widget = dcc.Input(
@@ -230,7 +238,8 @@ def launch_fields(launch_limits: bool, central: str) -> tuple[dict[str, dict], s
     styles = {key: shown for key in LAUNCH_FIELD_KEYS}
     if launch_limits:
         return styles, ""
-    names = " and ".join(CONTROL_BY_KEY[key].label for key in LAUNCH_FIELD_KEYS)
+    labels = [CONTROL_BY_KEY[key].label for key in LAUNCH_FIELD_KEYS]
+    names = ", ".join(labels[:-1]) + " and " + labels[-1] if len(labels) > 1 else labels[0]
     hint = (
         f"{names} are not offered: this transfer is about {central}, between bodies in orbit "
         "about it, so no launch vehicle leaves the departure body."
@@ -247,6 +256,7 @@ __all__ = [
     "CONTROLS",
     "CONTROL_BY_KEY",
     "CONTROL_IDS",
+    "EMPTY_OPTIONS_TEXT",
     "ERROR_TARGETS",
     "LAUNCH_FIELD_KEYS",
     "PANELS",

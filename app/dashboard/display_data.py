@@ -41,10 +41,13 @@ from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc
 from solver.window.grid import WindowGrid
-from solver.window.limits import LIMIT_RULES, breaches
+from solver.window.limits import LIMIT_RULES, LimitRule, breaches, site_reach_deg
+from solver.window.mass import MASS_METRICS
 from solver.window.metrics import METRICS, dv_conventions
 from solver.window.outputs import arc_burns, case_outputs
 
+from .detail_rows import DetailRow, Section, fmt
+from .launch_details import launch_window_sections, mass_sections, mass_summary
 from .view_state import arcs_label, parse_arcs, slot_label
 
 DISPLAY_MAX_POINTS = 600
@@ -75,9 +78,21 @@ HOVER_FIELDS: tuple[tuple[str, str, str, str], ...] = (
 )
 ENTRY_HOVER_FIELD = ("entry_speed_km_s", "entry speed", "km/s", ".3f")
 """Added when the case asks for an entry speed (an entry altitude)."""
+MASS_HOVER_FIELDS: tuple[tuple[str, str, str, str], ...] = (
+    ("injected_mass_kg", "injected mass", "kg", ",.0f"),
+    ("delivered_mass_kg", "delivered mass", "kg", ",.0f"),
+    ("mass_margin_kg", "mass margin", "kg", ",.0f"),
+)
+"""Added when the case computes them (a spacecraft mass; the margin with a required mass)."""
 
-# The upper limit drawn as a contour on the map of each bounded metric.
-LIMIT_OF_METRIC = {rule.quantity: rule.key for rule in LIMIT_RULES if rule.bound == "max"}
+MAP_LIMIT_RULES: dict[str, LimitRule] = {
+    rule.quantity: rule
+    for rule in LIMIT_RULES
+    if sum(r.quantity == rule.quantity for r in LIMIT_RULES) == 1
+}
+"""The limit drawn on the map of each metric bounded on one side (C3 max, delivered mass min):
+the colour scale ends there and a line marks it. TOF, bounded on both sides, is coloured over
+its whole range."""
 
 
 # ---------------------------------------------------------------------------------------------
@@ -166,14 +181,23 @@ class MapData:
     ----------
     outside : (ny, nx) bool
         Cells of ``heat`` whose arc exists but breaks a limit.
-    no_arc : (ny, nx) bool
-        Cells of ``heat`` with no arc shown (a click there asks why).
+    no_value : (ny, nx) bool
+        Cells of ``heat`` with no value of the metric: no arc shown, or an arc without one (no
+        delivered mass beyond the vehicle's table); a click there asks why.
+    no_value_text : str
+        What the hover says over such a cell.
     hover : (ny, nx, len(hover_fields)) float32 or None
         Every number of a ``heat`` cell, for its hover label (None for previews).
     hover_fields : tuple of (column, label, unit, format)
         What ``hover`` holds: ``HOVER_FIELDS``, with TOF in hours for windows of hours.
     arc_text : (ny, nx) str or None
         Which arc a cell shows, when the case has several per cell.
+    limit : float or None
+        The case's limit on the metric (:data:`MAP_LIMIT_RULES`), ``limit_bound`` "max" or
+        "min", ``limit_label`` its words for the legend (``"C3 max 30 km²/s²"``).
+    higher_is_better : bool
+        More is better (kilograms): the colour scale runs the other way, its pale end on the
+        highest values.
     """
 
     metric: str
@@ -182,7 +206,7 @@ class MapData:
     heat: MapLayer
     lines: MapLayer
     outside: NDArray[np.bool_]
-    no_arc: NDArray[np.bool_]
+    no_value: NDArray[np.bool_]
     hover: NDArray[np.float32] | None
     arc_text: NDArray[np.str_] | None
     limit: float | None
@@ -196,6 +220,10 @@ class MapData:
     title: str = ""
     note: str = ""  # shown on the map (no arc within the limits)
     hover_fields: tuple[tuple[str, str, str, str], ...] = HOVER_FIELDS
+    limit_bound: str = "max"
+    limit_label: str = ""
+    higher_is_better: bool = False
+    no_value_text: str = "no arc here: click to see why"
 
     # The heat layer's axes, used by the markers, TOF lines and ranges.
     @property
@@ -303,9 +331,7 @@ def map_data(
     heat = _Sampler(grid, slot, slot_per_cell, max_points)
     lines = _Sampler(grid, slot, slot_per_cell, min(contour_points, max_points))
     hover = None
-    fields = HOVER_FIELDS
-    if grid.case.entry_altitude_km is not None:
-        fields = (*fields, ENTRY_HOVER_FIELD)
+    fields = hover_fields(grid.case)
     tof_days_max = float(np.nanmax(grid.tof_days))
     if not preview:
         hover = np.stack([heat.field(name) for name, *_ in fields], axis=-1)
@@ -325,18 +351,27 @@ def map_data(
             + ["no arc"]
         )
         arc_text = labels[np.where(heat.exists, heat.slot_shown, -1)].T
-    limit_name = LIMIT_OF_METRIC.get(metric)
-    limit = getattr(grid.case.limits, limit_name) if limit_name else None
+    rule = MAP_LIMIT_RULES.get(metric)
+    limit = rule.limit(grid.case.limits) if rule is not None else None
     m = METRICS[metric]
     rank = m.rank_by_magnitude
+    label = f"|{m.label}|" if rank else m.label
+    heat_layer = heat.layer(metric)
+    mass = metric in MASS_METRICS
     return MapData(
         metric=metric,
-        metric_label=f"|{m.label}|" if rank else m.label,
+        metric_label=label,
         unit=m.unit,
-        heat=heat.layer(metric),
+        heat=heat_layer,
         lines=lines.layer(metric),
         outside=(heat.exists & ~within[heat.cells]).T,
-        no_arc=(~heat.exists).T,
+        no_value=np.isnan(heat_layer.values),
+        no_value_text=f"no arc, or no {m.label} for its arc, here: click to see why"
+        if mass
+        else "no arc here: click to see why",
+        limit_bound=rule.bound if rule is not None else "max",
+        limit_label="" if limit is None or rule is None else limit_text(rule, limit),
+        higher_is_better=m.higher_is_better,
         hover=hover,
         arc_text=arc_text,
         limit=limit,
@@ -350,6 +385,22 @@ def map_data(
         title=title,
         hover_fields=fields,
     )
+
+
+def limit_text(rule: LimitRule, limit: float) -> str:
+    """A limit in words for the map's legend: ``"C3 max 30 km²/s²"``."""
+    number = f"{limit:,.0f}" if float(limit).is_integer() else f"{limit:,.6g}"
+    return f"{rule.label} {rule.bound} {number} {rule.unit}".strip()
+
+
+def hover_fields(case: Case) -> tuple[tuple[str, str, str, str], ...]:
+    """What a map cell's hover lists for ``case``: :data:`HOVER_FIELDS`, the entry speed when
+    the case asks for it, and the kilograms the case computes."""
+    fields = HOVER_FIELDS
+    if case.entry_altitude_km is not None:
+        fields = (*fields, ENTRY_HOVER_FIELD)
+    computed = case_outputs(case).metrics
+    return (*fields, *(f for f in MASS_HOVER_FIELDS if f[0] in computed))
 
 
 def map_point(arc: Arc, metric: str, label: str) -> MapPoint:
@@ -561,19 +612,7 @@ def family_data(case: Case, arcs: list[Arc], selected: Arc, bodies: CaseBodies |
 # Details panel
 
 
-@dataclass(frozen=True)
-class DetailRow:
-    label: str
-    value: str
-    unit: str = ""
-
-
-def _fmt(value: float, digits: int = 3) -> str:
-    if value is None or not math.isfinite(value):
-        return "—"
-    if abs(value) >= 1e6:
-        return f"{value:,.0f}"
-    return f"{value:,.{digits}f}"
+_fmt = fmt
 
 
 def limit_breaches(case: Case, arc: Arc, bodies: CaseBodies | None = None) -> list[str]:
@@ -649,8 +688,10 @@ def _burn_sections(case: Case, arc: Arc, bodies: CaseBodies) -> list[tuple[str, 
 
 def arc_details(
     case: Case, arc: Arc, provenance: dict, bodies: CaseBodies | None = None
-) -> list[tuple[str, list[DetailRow]]]:
-    """Sections of the details panel: (heading, rows)."""
+) -> list[Section]:
+    """Sections of the details panel: (heading, rows), and for a case with mass or a launch
+    site, the mass budget, the vehicles compared and the day's launch window
+    (:mod:`launch_details`)."""
     bodies = bodies or CaseBodies.of(case)
     frame, plane_label, _scale, unit = _display_frame(bodies)
     arc_label = (
@@ -664,7 +705,7 @@ def arc_details(
     tof_rows = [DetailRow("TOF", _fmt(arc.tof_days, 2 if arc.tof_days >= 2.0 else 4), "days")]
     if arc.tof_days < 2.0:
         tof_rows.append(DetailRow("TOF", _fmt(arc.tof_days * 24.0, 3), "h"))
-    sections: list[tuple[str, list[DetailRow]]] = [
+    sections: list[Section] = [
         (
             "Arc",
             [
@@ -691,6 +732,8 @@ def arc_details(
         sections.extend(
             _burn_sections(case, arc, bodies) if fit.burns else _launch_sections(case, arc, bodies)
         )
+        sections.extend(mass_sections(case, arc, bodies))
+        sections.extend(launch_window_sections(case, arc, bodies))
         r1 = rotate(arc.r1_km, ICRF, frame)
         v1 = rotate(arc.v1_km_s, ICRF, frame)
         el = state_to_elements(r1, v1, arc.mu_km3_s2)
@@ -754,6 +797,9 @@ class LimitsBlock:
         Each limit in force with the number of arcs that break it, most first.
     arcs : int
         Arcs of the kind shown in the grid.
+    ranked_by : str
+        The metric ``closest`` is best by: the view's, or the case's default metric when no arc
+        has a value of the view's (no delivered mass anywhere).
     """
 
     closest: Arc | None
@@ -761,6 +807,7 @@ class LimitsBlock:
     excluded_by: list[tuple[str, int]]
     breaking: list[tuple[str, int]] = field(default_factory=list)
     arcs: int = 0
+    ranked_by: str = ""
 
 
 def limits_block(
@@ -773,10 +820,16 @@ def limits_block(
     slots = list(range(grid.shape[2])) if slot is None else [max(slot, 0)]
     exists = grid.converged[..., slots]
     closest = None
+    ranked_by = metric
     found = grid.best_cell(metric, slots=None if slot is None else slots, mask=grid.converged)
+    if found is None and exists.any():  # arcs, but none with a value (no mass anywhere)
+        ranked_by = case_outputs(case, bodies).default_metric
+        found = grid.best_cell(
+            ranked_by, slots=None if slot is None else slots, mask=grid.converged
+        )
     if found is not None:
         closest = slot_arc(case, bodies, grid, *found)
-    wanted = {rule.quantity for rule in LIMIT_RULES} | {"periapsis_km"}
+    wanted = {rule.quantity for rule in LIMIT_RULES} | {"periapsis_km", "dla_deg"}
     values = {name: grid.metric(name)[..., slots] for name in wanted}
     meets = []
     for rule in LIMIT_RULES:
@@ -792,6 +845,10 @@ def limits_block(
     if math.isfinite(radius):
         with np.errstate(invalid="ignore"):
             meets.append(("periapsis above the surface", values["periapsis_km"] > radius))
+    reach = site_reach_deg(case)
+    if reach is not None:  # a rule of physics too: the parking orbits the site reaches
+        with np.errstate(invalid="ignore"):
+            meets.append(("the launch site's reach", np.abs(values["dla_deg"]) <= reach))
     excluded = []
     for k, (label, _) in enumerate(meets):
         others = exists.copy()
@@ -807,7 +864,7 @@ def limits_block(
     closest_breaches = []
     if closest is not None:
         closest_breaches = limit_breaches(case, closest, bodies)
-    return LimitsBlock(closest, closest_breaches, excluded, breaking, int(exists.sum()))
+    return LimitsBlock(closest, closest_breaches, excluded, breaking, int(exists.sum()), ranked_by)
 
 
 __all__ = [
@@ -815,6 +872,8 @@ __all__ = [
     "DISPLAY_MAX_POINTS",
     "ENTRY_HOVER_FIELD",
     "HOVER_FIELDS",
+    "MAP_LIMIT_RULES",
+    "MASS_HOVER_FIELDS",
     "PREVIEW_MAX_POINTS",
     "ArcScene",
     "BodyTrack",
@@ -832,11 +891,14 @@ __all__ = [
     "display_ms",
     "display_name",
     "family_data",
+    "hover_fields",
     "jd_tdb_to_unix_ms",
     "limit_breaches",
+    "limit_text",
     "limits_block",
     "map_data",
     "map_point",
+    "mass_summary",
     "shown_slot",
     "utc_text",
 ]

@@ -34,7 +34,8 @@ MAP_TRACE = {
     "best_key": 6,
     "selected_key": 7,
     "outside_key": 8,
-    "no_arc": 9,
+    "no_value": 9,
+    "limit": 10,
 }
 """Index of each window-map trace (kept stable for partial updates)."""
 
@@ -62,22 +63,36 @@ def nice_step(span: float, target: int) -> float:
     return 10.0 * power
 
 
-def colour_range(values: NDArray, limit: float | None, metric: str) -> tuple[float, float]:
-    """Colour-scale bounds: the whole range for TOF; else from the lowest value up to the limit
-    (so every colour falls within the limits) or, with no limit, up to the median value."""
+def colour_range(
+    values: NDArray, limit: float | None, metric: str, higher_is_better: bool = False
+) -> tuple[float, float]:
+    """Colour-scale bounds: the whole range for TOF; else from the best value to the limit (so
+    every colour falls within the limits) or, with no limit, to the median value. The best
+    value is the lowest, or the highest for a metric where more is better (kilograms)."""
     finite = values[np.isfinite(values)]
     if finite.size == 0:
         return 0.0, 1.0
-    lo = float(finite.min())
     if metric == "tof_days":
+        lo, hi = float(finite.min()), float(finite.max())
+    elif higher_is_better:
         hi = float(finite.max())
-    elif limit is not None and limit > lo:
-        hi = float(limit)
+        lo = float(limit) if limit is not None and limit < hi else float(np.median(finite))
     else:
-        hi = float(np.percentile(finite, 50.0))
+        lo = float(finite.min())
+        hi = float(limit) if limit is not None and limit > lo else float(np.median(finite))
     if not hi > lo:
-        hi = lo + max(abs(lo) * 0.1, 1e-9)
+        spread = max(abs(hi if higher_is_better else lo) * 0.1, 1e-9)
+        lo, hi = (hi - spread, hi) if higher_is_better else (lo, lo + spread)
     return lo, hi
+
+
+def label_format(step: float) -> str:
+    """Contour labels with as many decimals as the step between levels needs, thousands
+    separated (``1,200`` kg, ``12.5`` km²/s², ``0.25`` km/s)."""
+    decimals = max(0, -math.floor(math.log10(step) + 1e-9)) if step > 0 else 0
+    if step > 0 and abs(step * 10**decimals - round(step * 10**decimals)) > 1e-6:
+        decimals += 1  # 2.5, 0.25
+    return f",.{decimals}~f"
 
 
 def tof_lines(
@@ -150,8 +165,12 @@ def _hover_template(data: MapData) -> str:
 
 
 def _metric_traces(data: MapData) -> tuple[go.Heatmap, go.Contour]:
-    """The heat map and its labelled contour lines for the metric of ``data``."""
-    lo, hi = colour_range(data.values, data.limit, data.metric)
+    """The heat map and its labelled contour lines for the metric of ``data``.
+
+    The scale's pale end is the good end: the lowest values, or the highest where more is
+    better (``reversescale``), so a map of kilograms reads like a map of C3.
+    """
+    lo, hi = colour_range(data.values, data.limit, data.metric, data.higher_is_better)
     step = nice_step(hi - lo, CONTOUR_LEVELS_TARGET)
     heat = go.Heatmap(
         x=data.heat.departure_ms,
@@ -160,6 +179,7 @@ def _metric_traces(data: MapData) -> tuple[go.Heatmap, go.Contour]:
         zmin=lo,
         zmax=hi,
         colorscale=theme.WINDOW_SCALE,
+        reversescale=data.higher_is_better,
         colorbar={
             "title": {"text": _label(data), "side": "right"},
             "thickness": 14,
@@ -195,9 +215,10 @@ def _metric_traces(data: MapData) -> tuple[go.Heatmap, go.Contour]:
             "coloring": "lines",
             "showlabels": True,
             "labelfont": {"size": 10, "family": theme.FONT_FAMILY},
-            "labelformat": ".3~g",
+            "labelformat": label_format(step),
         },
         colorscale=theme.CONTOUR_LINE_SCALE,
+        reversescale=data.higher_is_better,
         line={"width": 1.0, "smoothing": 0.8},
         showscale=False,
         hoverinfo="skip",
@@ -205,6 +226,54 @@ def _metric_traces(data: MapData) -> tuple[go.Heatmap, go.Contour]:
         showlegend=False,
     )
     return heat, contours
+
+
+def _limit_trace(data: MapData) -> go.Contour:
+    """The line where the metric meets the case's limit on it (hidden when there is none)."""
+    level = data.limit if data.limit is not None else 0.0
+    return go.Contour(
+        x=data.lines.departure_ms,
+        y=data.lines.arrival_ms,
+        z=data.lines.values,
+        autocontour=False,
+        contours={"start": level, "end": level, "size": 1.0, "coloring": "lines"},
+        colorscale=[[0.0, theme.LIMIT_LINE_COLOR], [1.0, theme.LIMIT_LINE_COLOR]],
+        line={"width": 2.4, "smoothing": 0.8},
+        showscale=False,
+        hoverinfo="skip",
+        name=data.limit_label or "limit",
+        visible=data.limit is not None,
+        showlegend=data.limit is not None,
+    )
+
+
+def _no_value_trace(data: MapData) -> go.Heatmap:
+    """Cells with no value of the metric: invisible, but they answer a click (the details then
+    say why: no arc, or no mass for the arc)."""
+    return go.Heatmap(
+        x=data.heat.departure_ms,
+        y=data.heat.arrival_ms,
+        z=np.where(data.no_value, np.float32(1.0), np.float32(np.nan)),
+        zmin=0.0,
+        zmax=1.0,
+        colorscale=[[0.0, "rgba(0,0,0,0)"], [1.0, "rgba(0,0,0,0)"]],
+        showscale=False,
+        hovertemplate=_no_value_hover(data),
+        hoverongaps=False,
+        name="no value",
+    )
+
+
+def _no_value_hover(data: MapData) -> str:
+    dates = "%{x|%Y-%m-%d %H:%M} → %{y|%Y-%m-%d %H:%M} UTC"
+    return f"{dates}<br>{data.no_value_text}<extra></extra>"
+
+
+def _marker_value(value: float, unit: str) -> str:
+    if not math.isfinite(value):
+        return ""
+    number = f"{value:,.0f}" if unit == "kg" else f"{value:.4g}"
+    return f"{number} {unit}".strip()
 
 
 def marker_layout(
@@ -232,7 +301,7 @@ def marker_layout(
         )
     shapes = []
     if best is not None:
-        value = f"{best.value:.4g} {unit}".strip() if math.isfinite(best.value) else ""
+        value = _marker_value(best.value, unit)
         annotations.append(
             {
                 "x": best.departure_ms,
@@ -287,7 +356,8 @@ def window_map_figure(data: MapData) -> go.Figure:
 
     Traces, in ``MAP_TRACE`` order: the metric, the pale wash over cells outside the limits,
     labelled contour lines, the Type I / Type II boundary (transfer angle 180 deg), lines of
-    constant TOF and their labels, and legend keys for the markers and the wash. The best arc
+    constant TOF and their labels, legend keys for the markers and the wash, the cells with no
+    value (they answer clicks) and the line of the case's limit on the metric. The best arc
     (a star) and the selected cell (a ring) are layout annotations and shapes.
     """
     heat, contours = _metric_traces(data)
@@ -340,20 +410,6 @@ def window_map_figure(data: MapData) -> go.Figure:
         showlegend=False,
         name="TOF labels",
     )
-    # Cells with no arc: invisible, but they answer a click (the details then say why).
-    no_arc = go.Heatmap(
-        x=data.heat.departure_ms,
-        y=data.heat.arrival_ms,
-        z=np.where(data.no_arc, np.float32(1.0), np.float32(np.nan)),
-        zmin=0.0,
-        zmax=1.0,
-        colorscale=[[0.0, "rgba(0,0,0,0)"], [1.0, "rgba(0,0,0,0)"]],
-        showscale=False,
-        hovertemplate="%{x|%Y-%m-%d %H:%M} → %{y|%Y-%m-%d %H:%M} UTC<br>no arc here: click to "
-        "see why<extra></extra>",
-        hoverongaps=False,
-        name="no arc",
-    )
     keys = [
         _key_trace("best arc", {"symbol": "star", "size": 14, "color": theme.BEST_MARKER["color"]}),
         _key_trace(
@@ -373,7 +429,17 @@ def window_map_figure(data: MapData) -> go.Figure:
     )
     # The layout goes to the constructor: update_layout() costs ~20x more per figure.
     return go.Figure(
-        data=[heat, outside, contours, boundary, tof, tof_text, *keys, no_arc],
+        data=[
+            heat,
+            outside,
+            contours,
+            boundary,
+            tof,
+            tof_text,
+            *keys,
+            _no_value_trace(data),
+            _limit_trace(data),
+        ],
         layout=theme.base_layout(
             title={"text": _title(data), "x": 0.01, "font": {"size": theme.TITLE_SIZE}},
             # The legend sits under the axis title: wrapped onto two lines on a narrow screen
@@ -436,7 +502,8 @@ def map_metric_patch(patch, data: MapData):
     """Fill a ``dash.Patch`` of the window map with a new metric over the same cells.
 
     The hover numbers, the limit wash, the Type boundary and the TOF lines stay in the browser;
-    only the metric values, colour range, contour levels, markers and title travel.
+    the metric values, colour range and direction, contour levels, the cells with no value, the
+    limit line, markers and title travel.
     """
     heat, contours = _metric_traces(data)
     for name, trace in (("values", heat), ("contours", contours)):
@@ -445,6 +512,17 @@ def map_metric_patch(patch, data: MapData):
         patch["data"][k]["zmin"] = trace.zmin
         patch["data"][k]["zmax"] = trace.zmax
         patch["data"][k]["name"] = trace.name
+        patch["data"][k]["reversescale"] = trace.reversescale
+    no_value = _no_value_trace(data)
+    k = MAP_TRACE["no_value"]
+    patch["data"][k]["z"] = typed_array(no_value.z)
+    patch["data"][k]["hovertemplate"] = no_value.hovertemplate
+    limit = _limit_trace(data)
+    k = MAP_TRACE["limit"]
+    patch["data"][k]["z"] = typed_array(limit.z)
+    patch["data"][k]["contours"] = limit.contours.to_plotly_json()
+    for prop in ("name", "visible", "showlegend"):
+        patch["data"][k][prop] = limit[prop]
     k = MAP_TRACE["values"]
     patch["data"][k]["colorbar"]["title"]["text"] = heat.colorbar.title.text
     if data.hover is None:
@@ -805,6 +883,7 @@ __all__ = [
     "arc_view_figure",
     "colour_range",
     "family_chart_figure",
+    "label_format",
     "map_metric_patch",
     "marker_layout",
     "nice_step",

@@ -52,6 +52,7 @@ OUTSIDE_LIMITS_COLOR = "rgba(226, 229, 234, 0.86)"  # pale wash: cells outside t
 NO_ARC_COLOR = "#ffffff"  # plot background where a cell has no arc at all
 TOF_LINE_COLOR = "rgba(40, 48, 60, 0.55)"
 TYPE_BOUNDARY_COLOR = "#0b6e8a"
+LIMIT_LINE_COLOR = "#b3122e"  # where the mapped metric meets the case's limit on it
 BEST_MARKER = {
     "symbol": "star",
     "size": 17,

@@ -35,9 +35,20 @@ from solver.window.settings import SETTINGS, Setting
 
 DEFAULT_CASE_ID = "tallis_rendezvous"
 DEFAULT_METRIC = "c3_km2_s2"
-MAP_METRICS = ("c3_km2_s2", "vinf_arrival_km_s", "dv_total_km_s", "dla_deg", "tof_days")
-"""Metrics offered on the window map (the issue's five; the details panel shows all)."""
-"""Map metrics that describe a launch vehicle's job; cases that leave a satellite open on Δv."""
+MAP_METRICS = (
+    "c3_km2_s2",
+    "vinf_arrival_km_s",
+    "dv_total_km_s",
+    "dla_deg",
+    "tof_days",
+    "injected_mass_kg",
+    "delivered_mass_kg",
+    "mass_margin_kg",
+)
+"""Metrics a window map can show (the details panel shows all). Each case is offered those
+that describe its arcs (``solver.window.outputs.case_outputs``): no C3 or DLA for a transfer
+that starts with a burn, no kilograms without a spacecraft mass, no margin without a required
+mass."""
 
 RANGE_SEPARATOR = "~"  # unreserved in URLs, so links stay readable
 _UNIX_EPOCH = dt.datetime(1970, 1, 1, tzinfo=dt.UTC)
@@ -432,7 +443,14 @@ def plot_x_to_unix_ms(value: Any) -> float:
 
 
 def case_setting(case: Case, key: str) -> Any:
-    """Current value of a dotted case key (None when the case leaves it out)."""
+    """Current value of a dotted case key (None when the case leaves it out).
+
+    The launch vehicle is the one the case uses: the first listed when the case names none, so
+    a control showing it is no change to the case (and adds nothing to the link).
+    """
+    if key == "spacecraft.vehicle":
+        vehicle = case.mass.vehicle
+        return None if vehicle is None else vehicle.name
     raw = to_toml_dict(case)
     section, name = key.split(".", 1)
     return raw.get(section, {}).get(name)

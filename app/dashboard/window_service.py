@@ -28,6 +28,7 @@ from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies
 from solver.window.cell import Arc, select_arc, solve_cell
 from solver.window.grid import WindowGrid, grid_axes
+from solver.window.mass import MASS_METRICS
 from solver.window.metrics import METRICS
 from solver.window.outputs import case_outputs
 from solver.window.provenance import case_hash
@@ -177,6 +178,12 @@ class WindowService:
         view = replace(view, arcs=fit_arcs(view.arcs, case.max_revolutions), notes=())
         if "metric" not in params:
             view = replace(view, metric=self.suited_metric(case, view.metric))
+        elif view.metric in MASS_METRICS and view.metric not in self.map_metrics(case):
+            try:
+                case_outputs(case, self.bodies(case)).check_metric(view.metric, "link: metric")
+            except InputError as exc:
+                notes.append(f"{exc}; showing {metric_label(self.default_metric(case))}")
+            view = replace(view, metric=self.default_metric(case))
         return view, case, notes
 
     def _survey_view(self, params: dict) -> tuple[ViewState, Case, list[str]]:
@@ -228,9 +235,17 @@ class WindowService:
 
     def suited_metric(self, case: Case, metric: str) -> str:
         """``metric``, unless it does not describe the case's arcs (C3 or DLA of a transfer that
-        starts with a burn): then the case's own default (solver.window.outputs)."""
+        starts with a burn, kilograms without a spacecraft mass): then the case's own default
+        (solver.window.outputs)."""
+        return metric if metric in self.map_metrics(case) else self.default_metric(case)
+
+    def default_metric(self, case: Case) -> str:
+        return case_outputs(case, self.bodies(case)).default_metric
+
+    def map_metrics(self, case: Case) -> tuple[str, ...]:
+        """The map metrics that describe a case's arcs (``MAP_METRICS`` it computes)."""
         fit = case_outputs(case, self.bodies(case))
-        return metric if metric in fit.ranking_metrics else fit.default_metric
+        return tuple(m for m in MAP_METRICS if m in fit.metrics)
 
     def launch_limits(self, case: Case) -> bool:
         """Whether the case's launch-only controls fit it (``CaseOutputs.launch_limits``)."""
@@ -238,11 +253,9 @@ class WindowService:
 
     def metric_options(self, case: Case) -> list[dict[str, str]]:
         """The metric picker's choices for a case: the map metrics that fit it."""
-        fit = case_outputs(case, self.bodies(case))
         return [
             {"value": m, "label": f"{METRICS[m].label} ({METRICS[m].unit})"}
-            for m in MAP_METRICS
-            if m in fit.ranking_metrics
+            for m in self.map_metrics(case)
         ]
 
     def bodies(self, case: Case) -> CaseBodies:

@@ -14,10 +14,20 @@ about the central body as a sum of terms a compiled kernel evaluates per epoch:
   :class:`~solver.ephemeris.element_bodies.ElementSet`) moved by the compiled universal-variable
   propagator of :mod:`solver.mechanics.kepler`.
 
+A body whose terms are all Chebyshev (a planet about the Sun: its barycentric segment less the
+Sun's; the Earth: the Earth-Moon barycentre, a share of the Moon, less the Sun) is then merged
+into **one** Chebyshev term: on each interval of the finest of its segments every term is a
+polynomial of degree below the largest coefficient count N, so their sum is one such polynomial,
+found exactly by interpolation at N Chebyshev nodes (a discrete cosine transform, in extended
+precision so that each merged coefficient is the exact one rounded once). One term instead of
+three halves the memory a state reads, which is what a state costs in a search (its dates are
+scattered over the span, so every set read is a cache miss).
+
 The assembly follows :func:`~solver.ephemeris.states.states` body chain by body chain, so the two
-agree to rounding (tests/test_sequence_states.py: within 1e-9 km and 1e-13 km/s per AU-sized
-vector). The mean-element source has no compiled form: :func:`compile_states` returns None and
-callers use :func:`~solver.ephemeris.states.states`. Epochs outside the cut span give NaN.
+agree to rounding (tests/test_sequence_model.py: within 1e-6 km and 1e-12 km/s; measured 6e-7
+km and 1.4e-13 km/s with the merged terms). The mean-element source has no compiled form:
+:func:`compile_states` returns None and callers use :func:`~solver.ephemeris.states.states`.
+Epochs outside the cut span give NaN.
 """
 
 from __future__ import annotations
@@ -177,16 +187,30 @@ def _chebyshev_into(coefficients, offset, n_sets, n_coef, jd0, days, factor, jd,
         dt[n] = twot1 * dt[n - 1] - dt[n - 2] + t[n - 1] + t[n - 1]
     scale = factor * 2.0 / days / SECONDS_PER_DAY
     base = offset + index * 3 * n_coef
-    for axis in range(3):
-        row = base + axis * n_coef
-        position = 0.0
-        rate = 0.0
-        for n in range(n_coef):
-            c = coefficients[row + n]
-            position += c * t[n]
-            rate += c * dt[n]
-        acc[axis] += factor * position
-        acc[axis + 3] += scale * rate
+    # The three axes' sums run side by side: six independent chains of additions (each in the
+    # order of n, so the same bits as one axis after the other) keep the pipeline full.
+    y = base + n_coef
+    z = base + 2 * n_coef
+    px = py = pz = 0.0
+    rx = ry = rz = 0.0
+    for n in range(n_coef):
+        tn = t[n]
+        dn = dt[n]
+        cx = coefficients[base + n]
+        cy = coefficients[y + n]
+        cz = coefficients[z + n]
+        px += cx * tn
+        py += cy * tn
+        pz += cz * tn
+        rx += cx * dn
+        ry += cy * dn
+        rz += cz * dn
+    acc[0] += factor * px
+    acc[1] += factor * py
+    acc[2] += factor * pz
+    acc[3] += scale * rx
+    acc[4] += scale * ry
+    acc[5] += scale * rz
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -383,6 +407,91 @@ class _Builder:
             self.barycentric(c_chain[-1], -1.0)
 
 
+def _merge_chebyshev(
+    coefficients: NDArray[np.float64],
+    terms: list[tuple[int, int, int, float, float, float]],
+) -> tuple[NDArray[np.float64], float, float] | None:
+    """One Chebyshev term equal to the sum of ``terms`` (offset, sets, coefficients per axis,
+    first JD, days per set, factor) on their common span, as (block of shape (sets, 3, N), first
+    JD, days per set); None when the terms' intervals do not nest on one finest grid.
+
+    On each finest interval every term is a polynomial of degree < N (the largest coefficient
+    count), so the sum is one: its N coefficients follow exactly from its values at N Chebyshev
+    nodes (the discrete cosine transform). Values and transform in extended precision.
+    """
+    fine = min(t[4] for t in terms)
+    start = max(t[3] for t in terms)
+    end = min(t[3] + t[1] * t[4] for t in terms)
+    n_fine = round((end - start) / fine)
+    n = max(t[2] for t in terms)
+    if n_fine < 1:
+        return None
+    for _offset, _n_sets, _n_coef, jd0, days, _factor in terms:
+        ratio = days / fine
+        shift = (start - jd0) / fine
+        if abs(ratio - round(ratio)) > 1e-9 or abs(shift - round(shift)) > 1e-9:
+            return None
+    wide = np.longdouble
+    pi = np.arccos(wide(-1.0))  # π to extended precision (np.pi is a double)
+    theta = pi * (np.arange(n, dtype=wide) + 0.5) / n
+    nodes = np.cos(theta)  # in the finest interval's own variable, [-1, 1]
+    values = np.zeros((n_fine, 3, n), dtype=wide)
+    j = np.arange(n_fine)
+    for offset, n_sets, n_coef, jd0, days, factor in terms:
+        ratio = round(days / fine)
+        index = round((start - jd0) / fine) + j  # finest intervals from the term's first set
+        which, part = index // ratio, index % ratio
+        block = coefficients[offset : offset + n_sets * 3 * n_coef].reshape(n_sets, 3, n_coef)
+        # The nodes in the term's own variable, and its Chebyshev polynomials there.
+        t = -1.0 + (2.0 * np.arange(ratio, dtype=wide)[:, None] + nodes[None, :] + 1.0) / ratio
+        cheb = np.empty((ratio, n, n_coef), dtype=wide)
+        cheb[..., 0] = 1.0
+        if n_coef > 1:
+            cheb[..., 1] = t
+        for k in range(2, n_coef):
+            cheb[..., k] = 2.0 * t * cheb[..., k - 1] - cheb[..., k - 2]
+        values += wide(factor) * np.einsum(
+            "jak,jmk->jam", block[which].astype(wide), cheb[part], optimize=False
+        )
+    transform = np.cos(np.arange(n, dtype=wide)[None, :] * theta[:, None]) * (wide(2.0) / n)
+    transform[:, 0] *= 0.5
+    merged = np.einsum("jam,mk->jak", values, transform, optimize=False)
+    return np.ascontiguousarray(merged, dtype=np.float64), float(start), float(fine)
+
+
+def _merged(
+    coefficients: NDArray[np.float64],
+    cheb_int: list[tuple[int, int, int]],
+    cheb_real: list[tuple[float, float, float]],
+    cheb_first: list[int],
+    kep_first: list[int],
+) -> tuple[
+    NDArray[np.float64], list[tuple[int, int, int]], list[tuple[float, float, float]], list[int]
+]:
+    """The tables with each all-Chebyshev body of several terms merged into one term."""
+    blocks = [coefficients]
+    offset = coefficients.size
+    new_int: list[tuple[int, int, int]] = []
+    new_real: list[tuple[float, float, float]] = []
+    new_first = [0]
+    for k in range(len(cheb_first) - 1):
+        terms = range(cheb_first[k], cheb_first[k + 1])
+        merged = None
+        if len(terms) > 1 and kep_first[k + 1] == kep_first[k]:
+            merged = _merge_chebyshev(coefficients, [(*cheb_int[t], *cheb_real[t]) for t in terms])
+        if merged is None:
+            new_int.extend(cheb_int[t] for t in terms)
+            new_real.extend(cheb_real[t] for t in terms)
+        else:
+            block, jd0, days = merged
+            blocks.append(block.reshape(-1))
+            new_int.append((offset, block.shape[0], block.shape[2]))
+            new_real.append((jd0, days, 1.0))
+            offset += block.size
+        new_first.append(len(new_int))
+    return np.concatenate(blocks), new_int, new_real, new_first
+
+
 def compile_states(
     bodies: Sequence[str],
     central: str,
@@ -391,6 +500,7 @@ def compile_states(
     jd_tdb_max: float,
     *,
     source: str | None = None,
+    merge: bool = True,
 ) -> CompiledStates | None:
     """Tables for the states of ``bodies`` about ``central`` over a span of dates.
 
@@ -407,6 +517,9 @@ def compile_states(
     source : {None, "de423", "mean"}
         As for :func:`~solver.ephemeris.states.states`. ``"mean"`` (or a body whose only source
         is not DE423) has no compiled form: the result is None.
+    merge : bool
+        Merge each body's Chebyshev terms into one (see the module docstring); False keeps
+        DE423's own sets, term by term.
 
     Returns
     -------
@@ -430,12 +543,17 @@ def compile_states(
         cheb_first.append(len(builder.cheb_int))
         kep_first.append(len(builder.kep_state))
     coefficients = np.concatenate(builder.blocks) if builder.blocks else np.zeros(1)
+    cheb_int, cheb_real = builder.cheb_int, builder.cheb_real
+    if merge:
+        coefficients, cheb_int, cheb_real, cheb_first = _merged(
+            coefficients, cheb_int, cheb_real, cheb_first, kep_first
+        )
     return CompiledStates(
         names=names,
         central=center.name,
         coefficients=coefficients,
-        cheb_int=np.array(builder.cheb_int, dtype=np.int64).reshape(-1, 3),
-        cheb_real=np.array(builder.cheb_real, dtype=float).reshape(-1, 3),
+        cheb_int=np.array(cheb_int, dtype=np.int64).reshape(-1, 3),
+        cheb_real=np.array(cheb_real, dtype=float).reshape(-1, 3),
         kep_state=np.array(builder.kep_state, dtype=float).reshape(-1, 6),
         kep_real=np.array(builder.kep_real, dtype=float).reshape(-1, 3),
         cheb_first=np.array(cheb_first, dtype=np.int64),

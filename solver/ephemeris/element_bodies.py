@@ -239,9 +239,15 @@ class ElementSet:
         r_pf, v_pf = elements_to_state(
             self.semi_major_axis_km[sl, None], e, 0.0, 0.0, 0.0, nu, self.mu_km3_s2[sl, None]
         )
-        rot_t = self._perifocal_to_icrf[sl].transpose(0, 2, 1)
-        np.matmul(r_pf, rot_t, out=r_out)
-        np.matmul(v_pf, rot_t, out=v_out)
+        # The rotation written out term by term: a matrix product would go through BLAS for
+        # many epochs and through another loop for one, rounding the last bit differently, and
+        # a body's state at a date must not depend on which other dates were asked with it.
+        rot = self._perifocal_to_icrf[sl][:, None]  # (bodies, 1, 3, 3)
+        for axis in range(3):
+            r_out[..., axis] = r_pf[..., 0] * rot[..., axis, 0] + r_pf[..., 1] * rot[..., axis, 1]
+            r_out[..., axis] += r_pf[..., 2] * rot[..., axis, 2]
+            v_out[..., axis] = v_pf[..., 0] * rot[..., axis, 0] + v_pf[..., 1] * rot[..., axis, 1]
+            v_out[..., axis] += v_pf[..., 2] * rot[..., axis, 2]
 
 
 __all__ = ["ECLIPTICS", "ELEMENT_FRAMES", "EQUATOR", "ElementBody", "ElementSet", "frame_text"]

@@ -17,6 +17,11 @@ Two stages, shared by every caller:
    combination (within limits first, then the objective) is found by dynamic programming over
    the chain of legs, since every cost depends on one leg's slot or on two neighbours'.
 
+A search scores through :meth:`SequenceModel.score`, which runs both stages as one compiled,
+parallel pass (:mod:`solver.sequence.fused`, the same formulas per candidate, no population-sized
+temporaries) wherever the ephemeris has compiled tables; ``staged_score`` keeps the two stages
+(the reference the pass is tested against, and the path for the mean-element ephemeris).
+
 Legs that return to the body they left are solved with the sequence's resonance angle as the
 Lambert angle tolerance: when the two positions lie on one line through the central body the
 plane is undefined and the leg gets :attr:`~solver.reasons.Reason.RESONANT_RETURN`, never an arc.
@@ -38,31 +43,16 @@ from solver.ephemeris.timescales import elapsed_days
 from solver.mechanics.lambert import DEFAULT_ANGLE_TOL_RAD, slot_layout, solve_lambert
 from solver.reasons import Reason
 from solver.sequence.flyby import largest_turn_deg, solve_flybys
+from solver.sequence.fused import FusedPlan, UnsupportedRule, fused_plan, score_fused
 from solver.sequence.kernels import solve_batch
 from solver.sequence.limits import limit_value, rules_for, surface_violation
+from solver.sequence.penalty import MISSING, OBJECTIVE_SCALE, PENALTY_WEIGHT, TURN_SCALE_DEG
 from solver.sequence.resonance import miss_distance_km, resonant_velocity
 from solver.sequence.spec import Event, SequenceSpec
 from solver.time_units import SECONDS_PER_DAY
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies, body_states
 from solver.window.metrics import arc_conic, arc_metrics, arrival_dv_km_s
-
-PENALTY_WEIGHT = 1.0e4
-"""Objective units one unit of breach (a limit's scale) costs a search: large enough that any
-candidate within limits ranks before any outside them."""
-
-MISSING = 1.0e12
-"""What a search sees for a candidate with a leg that has no arc at all."""
-
-TURN_SCALE_DEG = 10.0
-"""Penalty scale of the turn a flyby lacks below its lowest periapsis altitude, deg."""
-
-OBJECTIVE_SCALE = {
-    "dv_total_km_s": 1.0,
-    "c3_km2_s2": 10.0,
-    "vinf_arrival_km_s": 1.0,
-    "duration_days": 100.0,
-}
 
 
 @dataclass
@@ -155,6 +145,7 @@ class SequenceModel:
             self.epoch_body[event.epoch_in] = body
             self.epoch_body[event.epoch_out] = body
         self._compiled: CompiledStates | bool | None = False
+        self._fused: FusedPlan | bool | None = False
         self.objective_scale = OBJECTIVE_SCALE[spec.objective]
 
     # -----------------------------------------------------------------------------------------
@@ -645,8 +636,27 @@ class SequenceModel:
     # -----------------------------------------------------------------------------------------
     # Search entry point
 
+    def fused(self) -> FusedPlan | None:
+        """The sequence as the compiled pass reads it (None where it has no compiled form: the
+        mean-element ephemeris, or a limit on a quantity the pass does not compute)."""
+        if self._fused is False:
+            try:
+                self._fused = fused_plan(self)
+            except UnsupportedRule:
+                self._fused = None
+        return self._fused  # type: ignore[return-value]
+
     def score(self, variables: NDArray[np.float64]) -> NDArray[np.float64]:
-        """Scores of candidates given as search variables, shape (M, D) -> (M,) (fast path)."""
+        """Scores of candidates given as search variables, shape (M, D) -> (M,) (fast path):
+        one compiled pass (:mod:`solver.sequence.fused`), or the two stages where there is none."""
+        x = np.atleast_2d(variables)
+        plan = self.fused()
+        if plan is not None:
+            return score_fused(plan, x).score
+        return self.staged_score(x)
+
+    def staged_score(self, variables: NDArray[np.float64]) -> NDArray[np.float64]:
+        """The same scores through the two stages (:meth:`arcs` on the fast path, :meth:`costs`)."""
         x = np.atleast_2d(variables)
         angles = self.spec.angles(x) if self.spec.resonant_legs else None
         return self.costs(self.arcs(self.spec.epochs(x), angles, fast=True)).score

@@ -60,9 +60,15 @@ def turn_angle_rad(vin_x, vin_y, vin_z, vout_x, vout_y, vout_z) -> float:
 
 
 @numba.njit(cache=True, error_model="numpy", inline="always")
-def _half_turn_of_w(w: float, a: float) -> float:
-    """asin(1/e) as a function of w = 1/r_p, with a = v∞²/μ: atan(w / sqrt(a² + 2aw))."""
-    return math.atan(w / math.sqrt(a * a + 2.0 * a * w))
+def _turn_of_w(w: float, a: float, b: float) -> float:
+    """asin(1/e_in) + asin(1/e_out) as a function of w = 1/r_p (a, b = v∞²/μ in and out).
+
+    Each half is atan(t) with t = w / sqrt(a² + 2aw); their sum is one atan2 (tangent
+    addition: both halves lie in [0, π/2), so the sum lies in [0, π) and atan2 places it).
+    """
+    ta = w / math.sqrt(a * a + 2.0 * a * w)
+    tb = w / math.sqrt(b * b + 2.0 * b * w)
+    return math.atan2(ta + tb, 1.0 - ta * tb)
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -92,7 +98,7 @@ def periapsis_for_turn(turn_rad: float, vin: float, vout: float, mu: float) -> f
     # to it for similar speeds) lands just left of the root; from there the iterates rise. The
     # step saves one evaluation on average; the bracket's left end is the fallback.
     w = 0.5 * (a + b) / e_half_minus_one
-    f = _half_turn_of_w(w, a) + _half_turn_of_w(w, b) - turn_rad
+    f = _turn_of_w(w, a, b) - turn_rad
     slope = a / ((a + w) * math.sqrt(a * a + 2.0 * a * w)) + b / (
         (b + w) * math.sqrt(b * b + 2.0 * b * w)
     )
@@ -100,7 +106,7 @@ def periapsis_for_turn(turn_rad: float, vin: float, vout: float, mu: float) -> f
     if not w > lo:
         w = lo
     for _ in range(_MAX_ITERATIONS):
-        f = _half_turn_of_w(w, a) + _half_turn_of_w(w, b) - turn_rad
+        f = _turn_of_w(w, a, b) - turn_rad
         slope = a / ((a + w) * math.sqrt(a * a + 2.0 * a * w)) + b / (
             (b + w) * math.sqrt(b * b + 2.0 * b * w)
         )

@@ -339,8 +339,10 @@ def sequence_kernels() -> tuple:
     from solver.ephemeris import compiled as compiled_states
     from solver.mechanics.kernels import Kernel
     from solver.sequence import flyby
+    from solver.sequence.fused import fused_kernels
 
     return (
+        *fused_kernels(),
         Kernel("sequence legs, small batches", _kernel_serial, _warm_batch(4)),
         Kernel("sequence legs, populations", _kernel, _warm_batch(_PARALLEL_MIN)),
         Kernel("flybys, small batches", flyby._flyby_kernel_serial, _warm_flybys(4)),

@@ -54,13 +54,9 @@ def resonant_velocity(
     pitch_deg, clock_deg : ndarray, shape (N,)
         Direction of the velocity (see the module docstring).
     """
-    period_s = np.asarray(tof_days, float) * SECONDS_PER_DAY / spacecraft_revolutions
-    a = np.cbrt(mu_km3_s2 * (period_s / (2.0 * math.pi)) ** 2)
-    r = np.linalg.norm(r_body_km, axis=-1)
+    speed = resonant_speed_km_s(r_body_km, tof_days, spacecraft_revolutions, mu_km3_s2)
+    ok = np.isfinite(speed)
     with np.errstate(invalid="ignore", divide="ignore"):
-        speed2 = mu_km3_s2 * (2.0 / r - 1.0 / a)
-        ok = speed2 > 0.0
-        speed = np.sqrt(np.where(ok, speed2, np.nan))
         along = v_body_km_s / np.linalg.norm(v_body_km_s, axis=-1, keepdims=True)
         normal = np.cross(r_body_km, v_body_km_s)
         normal /= np.linalg.norm(normal, axis=-1, keepdims=True)
@@ -73,9 +69,45 @@ def resonant_velocity(
     return speed[..., None] * direction, ok
 
 
+def resonant_speed_km_s(
+    r_body_km: NDArray[np.float64],
+    tof_days: NDArray[np.float64],
+    spacecraft_revolutions: int,
+    mu_km3_s2: float,
+) -> NDArray[np.float64]:
+    """Speed on the resonant orbit at the body's distance (vis-viva), km/s; NaN where no orbit
+    of period TOF / M reaches that distance."""
+    period_s = np.asarray(tof_days, float) * SECONDS_PER_DAY / spacecraft_revolutions
+    a = np.cbrt(mu_km3_s2 * (period_s / (2.0 * math.pi)) ** 2)
+    r = np.linalg.norm(r_body_km, axis=-1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        speed2 = mu_km3_s2 * (2.0 / r - 1.0 / a)
+        return np.sqrt(np.where(speed2 > 0.0, speed2, np.nan))
+
+
+def pitch_for_vinf_deg(
+    speed_km_s: NDArray[np.float64], body_speed_km_s: NDArray[np.float64], vinf_km_s: NDArray
+) -> NDArray[np.float64]:
+    """The pitch (deg) at which a velocity of magnitude ``speed_km_s`` leaves the body with
+    |v∞| = ``vinf_km_s``: the law of cosines in the triangle of the spacecraft's velocity, the
+    body's and v∞. Every clock angle then gives the same |v∞| (the resonance circle of tour
+    design, common practice), so a flyby into the resonant orbit can be unpowered. NaN where
+    no such triangle exists."""
+    s = np.asarray(speed_km_s, float)
+    vb = np.asarray(body_speed_km_s, float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cos_pitch = (s * s + vb * vb - np.asarray(vinf_km_s, float) ** 2) / (2.0 * s * vb)
+        return np.where(np.abs(cos_pitch) <= 1.0, np.degrees(np.arccos(cos_pitch)), np.nan)
+
+
 def miss_distance_km(r_first_km: NDArray, r_second_km: NDArray) -> NDArray[np.float64]:
     """How far the body is from where it was at the first encounter, km."""
     return np.linalg.norm(np.asarray(r_second_km) - np.asarray(r_first_km), axis=-1)
 
 
-__all__ = ["miss_distance_km", "resonant_velocity"]
+__all__ = [
+    "miss_distance_km",
+    "pitch_for_vinf_deg",
+    "resonant_speed_km_s",
+    "resonant_velocity",
+]

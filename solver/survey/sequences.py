@@ -258,6 +258,67 @@ def scan_sequence_task(task: Mapping[str, Any]) -> dict[str, Any]:
     return row
 
 
+SEQUENCE_SURVEY_FORMAT = 1
+"""Version of a sequence survey's chunk files (part of each key)."""
+
+
+def task_key(task: Mapping[str, Any]) -> str:
+    """SHA-256 of a task's inputs (case, year, target, settings) and the engine version: its
+    chunk file's name and resume key. The label only names the row and is left out."""
+    from solver.digest import cache_key
+
+    inputs = {k: v for k, v in task.items() if k != "label"}
+    # TOML dates (datetime objects) as their text; everything else is plain data already.
+    plain = json.loads(json.dumps(inputs, default=str))
+    return cache_key(
+        {
+            "sequence_survey_format": SEQUENCE_SURVEY_FORMAT,
+            "engine": ENGINE_VERSION,
+            "task": plain,
+        }
+    )
+
+
+def task_file_name(key: str) -> str:
+    """A task's chunk file name (``chunk-`` like every chunk, so one sweep covers them all)."""
+    return f"chunk-seq-{key[:32]}.parquet"
+
+
+def read_task_row(folder: str | Path, task: Mapping[str, Any]) -> dict[str, Any] | None:
+    """The task's row from its chunk file, when the file is complete and holds this task's key
+    and label; else None (computed again)."""
+    from solver.survey.store import read_frame
+
+    key = task_key(task)
+    found = read_frame(folder, task_file_name(key), key)
+    if found is None:
+        return None
+    frame, _record = found
+    if len(frame) != 1 or str(frame["label"].iloc[0]) != str(task.get("label", "")):
+        return None
+    row = frame.iloc[0].to_dict()
+    return {name: _plain(row.get(name)) for name in ROW_COLUMNS}
+
+
+def write_task_row(folder: str | Path, task: Mapping[str, Any], row: Mapping[str, Any]) -> Path:
+    """Write a finished task's row as its chunk file, atomically (solver.survey.store)."""
+    from solver.survey.store import write_frame
+
+    key = task_key(task)
+    frame = pd.DataFrame([{name: row.get(name) for name in ROW_COLUMNS}], columns=ROW_COLUMNS)
+    record = {"format": SEQUENCE_SURVEY_FORMAT, "key": key, "label": task.get("label", "")}
+    return write_frame(folder, task_file_name(key), frame, record)
+
+
+def _plain(value: Any) -> Any:
+    """A value read back from Parquet as the plain Python value the row had."""
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, float) and math.isnan(value):
+        return None
+    return value
+
+
 def rank_rows(rows: Sequence[Mapping[str, Any]]) -> pd.DataFrame:
     """Rows ranked: within limits first, then by objective value, ties by label."""
     frame = pd.DataFrame(list(rows), columns=list(ROW_COLUMNS))
@@ -279,30 +340,58 @@ def run_sequence_survey(
     client: Any = None,
     retries: int = 2,
     progress: Callable[[int, int], None] | None = None,
+    folder: str | Path | None = None,
 ) -> pd.DataFrame:
-    """Run every task (here, in order, or on a Dask client) and rank the rows."""
+    """Run every task (here, in order, or on a Dask client) and rank the rows.
+
+    With ``folder`` (``solver.survey.store.chunk_folder`` of the results file), each finished
+    task's row is written there as a chunk file, and a task whose chunk file is already there,
+    whole and of the same inputs and engine, is not run again: a rerun after an interruption
+    computes only what is missing or damaged.
+    """
     rows: list[dict[str, Any]] = []
     total = len(tasks)
+    pending = list(tasks)
+    if folder is not None:
+        from solver.survey.store import sweep_temporaries
+
+        sweep_temporaries(folder)
+        pending = []
+        for task in tasks:
+            row = read_task_row(folder, task)
+            if row is None:
+                pending.append(task)
+            else:
+                rows.append(row)
+        if rows and progress is not None:
+            progress(len(rows), total)
+
+    def finished(task: Mapping[str, Any], row: dict[str, Any]) -> None:
+        if folder is not None:
+            write_task_row(folder, task, row)
+        rows.append(row)
+        if progress is not None:
+            progress(len(rows), total)
+
     if client is None:
         from solver.survey.cluster import one_numba_thread
 
         with one_numba_thread():
-            for task in tasks:
-                rows.append(scan_sequence_task(task))
-                if progress is not None:
-                    progress(len(rows), total)
+            for task in pending:
+                finished(task, scan_sequence_task(task))
         return rank_rows(rows)
     from distributed import as_completed
 
     futures = [
-        client.submit(scan_sequence_task, dict(task), retries=retries, pure=False) for task in tasks
+        client.submit(scan_sequence_task, dict(task), retries=retries, pure=False)
+        for task in pending
     ]
     try:
         for future in as_completed(list(futures), loop=client.loop):
+            task = pending[futures.index(future)]
             try:
-                rows.append(future.result())
+                row = future.result()
             except Exception as exc:  # a task that failed after its retries keeps its row
-                task = tasks[futures.index(future)]
                 rows.append(
                     {
                         **{name: None for name in ROW_COLUMNS},
@@ -312,9 +401,11 @@ def run_sequence_survey(
                         "reason": f"{type(exc).__name__}: {exc}",
                         "engine_version": ENGINE_VERSION,
                     }
-                )
-            if progress is not None:
-                progress(len(rows), total)
+                )  # not written: a rerun tries it again
+                if progress is not None:
+                    progress(len(rows), total)
+                continue
+            finished(task, row)
     finally:
         for future in futures:
             future.cancel()
@@ -347,12 +438,16 @@ def write_sequence_survey(
 
 __all__ = [
     "ROW_COLUMNS",
+    "SEQUENCE_SURVEY_FORMAT",
     "STATUSES",
     "SequenceSurveySettings",
     "plan_sequence_survey",
     "rank_rows",
+    "read_task_row",
     "run_sequence_survey",
     "scan_sequence_task",
     "task_case",
+    "task_key",
     "write_sequence_survey",
+    "write_task_row",
 ]

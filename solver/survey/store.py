@@ -1,9 +1,11 @@
 """A survey's files: one Parquet file per finished chunk, merged at the end into the results.
 
 Chunk files live in a folder next to the results (``RESULTS.parquet.chunks/``), each named by its
-chunk key (a hash of the chunk's inputs and the engine version,
-:func:`solver.survey.scan.chunk_key`), so a rerun of the same survey finds the chunks already
-done and a changed base case, catalogue, setting or engine never reuses a stale one.
+chunk key, a hash of the chunk's inputs and the engine version (window surveys:
+:func:`solver.survey.scan.chunk_key`, ``chunk-KEY.parquet``; sequence surveys, one year-target
+each: :func:`solver.survey.sequences.task_key`, ``chunk-seq-KEY.parquet``; both written and read
+by :func:`write_frame` and :func:`read_frame`), so a rerun of the same survey finds the chunks
+already done and a changed base case, catalogue, setting or engine never reuses a stale one.
 
 * **Atomic**: a chunk is written through :func:`solver.files.atomic.atomic_output` (temporary
   file in the folder, fsync, rename) with its SHA-256 beside it (``chunk-<key>.parquet.sha256``).
@@ -58,25 +60,55 @@ def _atomic_write_table(table, path: Path) -> None:
         pq.write_table(table, handle)
 
 
-def write_chunk(folder: str | Path, chunk: Chunk, rows: list[dict]) -> Path:
-    """Write a finished chunk's rows atomically; returns the file's path."""
+def write_frame(folder: str | Path, file_name: str, frame: pd.DataFrame, record: dict) -> Path:
+    """Write one chunk file atomically: ``frame`` with ``record`` (which must hold the chunk's
+    ``key``) in its metadata. Any survey's chunks are written by this one function."""
     import pyarrow as pa
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    table = pa.Table.from_pandas(span_frame(rows), preserve_index=False)
+    table = pa.Table.from_pandas(frame, preserve_index=False)
+    metadata = dict(table.schema.metadata or {})
+    metadata[CHUNK_KEY] = json.dumps({**record, "engine": ENGINE_VERSION}).encode()
+    path = folder / file_name
+    _atomic_write_table(table.replace_schema_metadata(metadata), path)
+    return path
+
+
+def read_frame(
+    folder: str | Path, file_name: str, key: str, columns: list[str] | None = None
+) -> tuple[pd.DataFrame, dict] | None:
+    """A chunk file's rows and record if every byte matches its SHA-256, it reads whole and it
+    holds chunk ``key``; else None (a damaged, foreign or stale file is computed again, never
+    trusted)."""
+    import pyarrow.parquet as pq
+
+    path = Path(folder) / file_name
+    if not path.is_file():
+        return None
+    try:
+        verify_checksum(path)  # every byte, before the Parquet reader sees any of them
+        table = pq.read_table(path, columns=columns)
+        record = json.loads((table.schema.metadata or {}).get(CHUNK_KEY, b"{}"))
+        frame = table.to_pandas()
+    except Exception as exc:  # a damaged or foreign file is recomputed, never trusted
+        logger.debug("chunk file %s unreadable (%s): recomputing", path, exc)
+        return None
+    if not isinstance(record, dict) or record.get("key") != key:
+        logger.debug("chunk file %s does not hold chunk %s: recomputing", path, key)
+        return None
+    return frame, record
+
+
+def write_chunk(folder: str | Path, chunk: Chunk, rows: list[dict]) -> Path:
+    """Write a finished chunk's rows atomically; returns the file's path."""
     record = {
         "format": SURVEY_FORMAT,
         "key": chunk.key,
         "span": list(chunk.span),
         "targets": list(chunk.target_names),
-        "engine": ENGINE_VERSION,
     }
-    metadata = dict(table.schema.metadata or {})
-    metadata[CHUNK_KEY] = json.dumps(record).encode()
-    path = chunk_path(folder, chunk)
-    _atomic_write_table(table.replace_schema_metadata(metadata), path)
-    return path
+    return write_frame(folder, chunk.file_name, span_frame(rows), record)
 
 
 def read_chunk(
@@ -86,26 +118,16 @@ def read_chunk(
 
     ``columns`` reads only those (``target`` is always read: it is checked).
     """
-    import pyarrow.parquet as pq
-
-    path = chunk_path(folder, chunk)
-    if not path.is_file():
-        return None
     if columns is not None and "target" not in columns:
         columns = ["target", *columns]
-    try:
-        verify_checksum(path)  # every byte, before the Parquet reader sees any of them
-        table = pq.read_table(path, columns=columns)
-        record = json.loads((table.schema.metadata or {}).get(CHUNK_KEY, b"{}"))
-        frame = table.to_pandas()
-    except Exception as exc:  # a damaged or foreign file is recomputed, never trusted
-        logger.debug("chunk file %s unreadable (%s): recomputing", path, exc)
+    found = read_frame(folder, chunk.file_name, chunk.key, columns)
+    if found is None:
         return None
-    if not isinstance(record, dict) or record.get("key") != chunk.key:
-        logger.debug("chunk file %s does not hold chunk %s: recomputing", path, chunk.key)
-        return None
+    frame = found[0]
     if tuple(frame.get("target", ())) != chunk.target_names:
-        logger.debug("chunk file %s does not hold chunk %s: recomputing", path, chunk.key)
+        logger.debug(
+            "chunk file %s does not hold chunk %s: recomputing", chunk.file_name, chunk.key
+        )
         return None
     return frame
 
@@ -166,7 +188,9 @@ __all__ = [
     "chunk_path",
     "merge_chunks",
     "read_chunk",
+    "read_frame",
     "sweep_temporaries",
     "write_chunk",
+    "write_frame",
     "write_results",
 ]

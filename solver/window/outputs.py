@@ -131,6 +131,12 @@ def launch_limit_keys() -> tuple[str, ...]:
     return tuple(f"limits.{rule.key}" for rule in LIMIT_RULES if rule.quantity in LAUNCH_ONLY)
 
 
+def launch_setting_keys() -> tuple[str, ...]:
+    """Case settings that fit only a launch (``CaseOutputs.launch_limits``): the launch limits
+    and the launch vehicle the mass metrics use."""
+    return (*launch_limit_keys(), "spacecraft.vehicle")
+
+
 def case_outputs(case: Case, bodies: CaseBodies | None = None) -> CaseOutputs:
     """What describes ``case``'s arcs (see the module docstring)."""
     bodies = bodies or CaseBodies.of(case)

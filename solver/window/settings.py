@@ -392,6 +392,8 @@ SETTINGS: tuple[Setting, ...] = (
         unit="kg",
         low=0.0,
         high=1e7,
+        url="massmin",
+        control="number",
         description="Smallest mass delivered into the final orbit (needs a spacecraft mass: "
         "[[vehicles]] or spacecraft.wet_mass_max_kg).",
     ),
@@ -470,6 +472,8 @@ SETTINGS: tuple[Setting, ...] = (
         "spacecraft.vehicle",
         "text",
         "launch vehicle",
+        url="vehicle",
+        control="dropdown",
         description="Name of the [[vehicles]] entry the mass metrics use (default: the first).",
     ),
     Setting(

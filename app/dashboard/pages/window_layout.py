@@ -20,7 +20,7 @@ from solver.window.metrics import METRICS
 
 from .. import theme
 from ..controls import SLIDERS, Slider, control_field, controls_of, error_text, label
-from ..display_data import DetailRow
+from ..detail_rows import DetailNotes, DetailRow, DetailTable, Section
 from ..view_changes import short
 from ..view_state import MAP_METRICS
 
@@ -197,6 +197,16 @@ def orbit_controls() -> html.Section:
     return _section("Orbits", *[control_field(c) for c in controls_of("orbits")])
 
 
+def mass_controls() -> html.Section:
+    """The launch vehicle the mass metrics use, and what else the case says of mass and
+    launch (its spacecraft, propulsion and launch site, written in the case file)."""
+    return _section(
+        "Launch and mass",
+        *[control_field(c) for c in controls_of("mass")],
+        html.Div(id="text-mass-summary", className="aw-small"),
+    )
+
+
 def download_controls() -> html.Section:
     def button(button_id: str, text: str):
         return html.Button(text, id=button_id, className="aw-button aw-button-small", n_clicks=0)
@@ -241,6 +251,7 @@ def controls() -> html.Aside:
             map_controls(),
             limit_controls(),
             orbit_controls(),
+            mass_controls(),
             download_controls(),
         ],
         className="aw-controls",
@@ -436,37 +447,76 @@ def page_from_query(**params) -> html.Div:
 _NUMBER_RE = re.compile(r"^[-+−]?[\d,]*\.?\d+(\s*\(.*\))?$")
 
 
-def details_children(sections: list[tuple[str, list[DetailRow]]], note: str = "") -> list:
-    """The details panel's content: one compact table per section (numbers right-aligned)."""
+def _cell_class(text: str) -> str:
+    return "aw-num" if _NUMBER_RE.match(text) else "aw-text"
+
+
+def _rows_table(rows: list[DetailRow]) -> html.Table:
+    """Labelled values: label, value (numbers right-aligned), unit."""
+    return html.Table(
+        html.Tbody(
+            [
+                html.Tr(
+                    [
+                        html.Th(r.label),
+                        html.Td(r.value.replace("T", " ").rstrip("Z"), className="aw-text aw-date")
+                        if r.unit == "UTC"
+                        else html.Td(r.value, className=_cell_class(r.value)),
+                        html.Td(r.unit, className="aw-unit"),
+                    ]
+                )
+                for r in rows
+            ]
+        ),
+        className="aw-details-table",
+    )
+
+
+def _compare_table(table: DetailTable) -> list:
+    """A few rows side by side under column headings; the row in use in bold."""
+    head = html.Thead(
+        html.Tr(
+            [html.Th(table.columns[0])]
+            + [html.Th(c, className="aw-num") for c in table.columns[1:]]
+        )
+    )
+    body = html.Tbody(
+        [
+            html.Tr(
+                [html.Th(row[0])] + [html.Td(c, className="aw-num") for c in row[1:]],
+                className="aw-current" if k == table.current else "",
+            )
+            for k, row in enumerate(table.rows)
+        ]
+    )
+    out: list = [html.Table([head, body], className="aw-details-table aw-compare-table")]
+    out += [html.Div(line, className="aw-small") for line in table.notes]
+    return out
+
+
+def details_children(sections: list[Section], note: str = "") -> list:
+    """The details panel's content: one compact table per section (numbers right-aligned), a
+    table of columns for things compared side by side, folded notes."""
     out: list = []
     if note:
         out.append(html.Div(note, className="aw-small aw-details-note"))
-    for heading, rows in sections:
-        out.append(html.H3(heading, className="aw-subtitle"))
-        out.append(
-            html.Table(
-                html.Tbody(
+    for heading, content in sections:
+        if heading:
+            out.append(html.H3(heading, className="aw-subtitle"))
+        if isinstance(content, DetailTable):
+            out += _compare_table(content)
+        elif isinstance(content, DetailNotes):
+            out.append(
+                html.Details(
                     [
-                        html.Tr(
-                            [
-                                html.Th(r.label),
-                                html.Td(
-                                    r.value.replace("T", " ").rstrip("Z")
-                                    if r.unit == "UTC"
-                                    else r.value,
-                                    className="aw-text aw-date"
-                                    if r.unit == "UTC"
-                                    else ("aw-num" if _NUMBER_RE.match(r.value) else "aw-text"),
-                                ),
-                                html.Td(r.unit, className="aw-unit"),
-                            ]
-                        )
-                        for r in rows
-                    ]
-                ),
-                className="aw-details-table",
+                        html.Summary(content.summary),
+                        html.Ul([html.Li(item) for item in content.items]),
+                    ],
+                    className="aw-small aw-details-notes",
+                )
             )
-        )
+        else:
+            out.append(_rows_table(content))
     return out
 
 

@@ -41,6 +41,7 @@ from flask import request
 
 from solver.errors import InputError
 from solver.time_units import MINUTE_DAYS, MINUTES_PER_DAY
+from solver.window.metrics import METRICS
 
 from .. import theme
 from ..case_catalogue import MAX_UPLOAD_BYTES, clean_filename, forget, my_case_ids, remember
@@ -54,7 +55,7 @@ from ..controls import (
     SLIDERS,
     launch_fields,
 )
-from ..display_data import display_name
+from ..display_data import display_name, mass_summary
 from ..exports import arc_json, arc_oem, figure_html, view_stem
 from ..grid_jobs import grid_key
 from ..map_loop import (
@@ -290,8 +291,10 @@ def _register_view(app, service: WindowService) -> None:
         "errors": Output("store-control-errors", "data"),
         "stem": Output("store-download-stem", "data"),
     }
-    for key in ("case.departure_body", "case.target_body"):
+    for key in ("case.departure_body", "case.target_body", "spacecraft.vehicle"):
         outputs[f"options:{key}"] = Output(CONTROL_IDS[key], "options")
+    outputs["vehicle_disabled"] = Output(CONTROL_IDS["spacecraft.vehicle"], "disabled")
+    outputs["mass_summary"] = Output("text-mass-summary", "children")
     for slider in SLIDERS:
         for prop in ("min", "max", "step", "marks", "value"):
             outputs[f"{slider.url}_{prop}"] = Output(slider.id, prop)
@@ -427,6 +430,10 @@ def _fill_controls(out: dict, service: WindowService, view: ViewState, case, my_
     options = _body_options(case)
     for key in ("case.departure_body", "case.target_body"):
         out[f"options:{key}"] = options
+    vehicles = [{"value": v.name, "label": v.name} for v in case.mass.vehicles]
+    out["options:spacecraft.vehicle"] = vehicles
+    out["vehicle_disabled"] = not vehicles
+    out["mass_summary"] = [html.Div(line) for line in mass_summary(case, service.bodies(case))]
 
 
 # ---------------------------------------------------------------------------------------------
@@ -682,9 +689,15 @@ def _no_arc_within_limits(service: WindowService, view: ViewState, case, grid, d
         ]
         fig = theme.empty_figure(text)
         return fig, fig, lines, drawn
+    by = "the closest arc by the map's metric"
+    if block.ranked_by and block.ranked_by != view.metric:
+        by = (
+            f"no arc has a {METRICS[view.metric].label} (the mass budget below says why), so "
+            f"the closest arc by {METRICS[block.ranked_by].label}"
+        )
     lines = [
         html.Div(
-            "No arc within the limits. Shown: the closest arc by the map's metric, which breaks "
+            f"No arc within the limits. Shown: {by}, which breaks "
             + ("; ".join(block.breaches) or "no single limit (a combination)")
             + ".",
             className="aw-details-note aw-small",
