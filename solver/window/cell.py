@@ -21,6 +21,7 @@ from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies, body_states, transfer_angle_deg
 from solver.window.limits import within_limits
 from solver.window.metrics import METRICS, arc_metrics
+from solver.window.ties import ranks_before
 
 
 @dataclass(frozen=True)
@@ -133,8 +134,6 @@ def select_arc(
         )
     if metric not in METRICS:
         raise InputError("metric", metric, "one of " + ", ".join(METRICS))
-
-    from solver.window.grid import ranks_before  # the grid's one rule, for single arcs
 
     def order(a: Arc, b: Arc) -> int:
         # Within limits first, then other arcs, then cells' "no arc" entries; within a class the
