@@ -260,14 +260,26 @@ class Shortlist:
                     self._set_aside(problem)
             with self._connection() as connection:
                 connection.execute("PRAGMA journal_mode = WAL")
-                connection.executescript(_SCHEMA)
-                connection.execute(
-                    "INSERT OR IGNORE INTO meta (key, value) VALUES ('format', ?)",
-                    (str(FORMAT_VERSION),),
-                )
-                connection.execute(
-                    "INSERT OR IGNORE INTO meta (key, value) VALUES ('revision', '0')"
-                )
+                # The tables in one transaction: another handle (another server process)
+                # checking the store meanwhile sees none or all of them, never a half-made
+                # store it would set aside as "not a shortlist store".
+                connection.execute("BEGIN IMMEDIATE")
+                try:
+                    for statement in _SCHEMA.split(";"):
+                        if statement.strip():
+                            connection.execute(statement)
+                    connection.execute(
+                        "INSERT OR IGNORE INTO meta (key, value) VALUES ('format', ?)",
+                        (str(FORMAT_VERSION),),
+                    )
+                    connection.execute(
+                        "INSERT OR IGNORE INTO meta (key, value) VALUES ('revision', '0')"
+                    )
+                    connection.execute("COMMIT")
+                except BaseException:
+                    with contextlib.suppress(sqlite3.Error):
+                        connection.execute("ROLLBACK")
+                    raise
                 self._import_legacy(connection)
             self._sweep_legacy_temporaries()
             self._ready = True

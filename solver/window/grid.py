@@ -186,7 +186,8 @@ class WindowGrid:
             return values.reshape(-1) if axis is None else values
 
         def lowest(values: NDArray, among: NDArray[np.bool_]) -> NDArray[np.bool_]:
-            score = np.where(among, values, np.inf)
+            # an arc without a value (NaN: no mass where none is given) never ranks first
+            score = np.where(among & np.isfinite(values), values, np.inf)
             return tied_lowest(along(score), -1).reshape(shape)
 
         values = ranking_values(self.metric(metric), metric)
