@@ -104,6 +104,23 @@
         keys.map(function (k) { return k in progress ? progress[k] : noUpdate(); }));
     },
 
+    // The poll's watchdog: a view still polling whose last poll has had no answer for
+    // POLL_STALL_MS (a request lost on the network or failed on the server) gets one more tick,
+    // whose request replaces the lost one; otherwise the poll would wait for ever.
+    pollWatchdog: function (beat, ticks, maxTicks, disabled) {
+      var POLL_STALL_MS = 20000;
+      var now = Date.now();
+      var watch = window.arcwindow.pollWatch;
+      var armed = typeof maxTicks === "number" && maxTicks >= 0 && ticks < maxTicks;
+      if (!watch || disabled || armed || watch.ticks !== ticks) {
+        window.arcwindow.pollWatch = { ticks: ticks, since: now };
+        return noUpdate();
+      }
+      if (now - watch.since < POLL_STALL_MS) { return noUpdate(); }
+      watch.since = now;
+      return (ticks || 0) + 1;
+    },
+
     replaceSurveyQuery: function (name) {
       if (typeof name === "string" && name && window.location.pathname.indexOf("/survey") === 0) {
         var query = "?results=" + encodeURIComponent(name);

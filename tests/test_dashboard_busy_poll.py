@@ -157,3 +157,27 @@ def test_bp03_the_page_applies_an_answer_only_for_the_view_it_shows(busy_server,
     ]
     settled = dict(mine, status=None, poll_ms=None)
     assert page.evaluate(_ACCEPT, [settled, current])[:4] == ["no_update", True, "no_update", 8]
+
+
+_WATCHDOG = """
+([ticks, maxTicks, disabled, stalledMs]) => {
+  window.arcwindow.pollWatch = { ticks: 5, since: Date.now() - stalledMs };
+  const out = window.arcwindow.pollWatchdog(1, ticks, maxTicks, disabled);
+  return out === window.dash_clientside.no_update ? "no_update" : out;
+}
+"""
+
+
+def test_bp04_a_poll_whose_answer_never_comes_gets_another_tick(busy_server, tabs):
+    """One tick per answer leaves the poll waiting for ever if an answer is lost (a failed or
+    dropped request). The watchdog (assets/arcwindow.js pollWatchdog) arms one more tick after
+    20 s with no answer, and never while a tick is armed, the poll is off or ticks move on."""
+    tab = tabs()
+    page = tab.page
+    page.goto(busy_server + "?case=tallis_rendezvous")
+    page.wait_for_function("() => window.arcwindow && window.dash_clientside")
+    assert page.evaluate(_WATCHDOG, [5, 5, False, 21_000]) == 6  # stalled: one more tick
+    assert page.evaluate(_WATCHDOG, [5, 5, False, 5_000]) == "no_update"  # not yet
+    assert page.evaluate(_WATCHDOG, [5, 6, False, 21_000]) == "no_update"  # a tick is armed
+    assert page.evaluate(_WATCHDOG, [5, 5, True, 21_000]) == "no_update"  # polling is off
+    assert page.evaluate(_WATCHDOG, [7, 7, False, 21_000]) == "no_update"  # ticks moved on

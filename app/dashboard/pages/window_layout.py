@@ -416,6 +416,7 @@ def stores(query: str) -> html.Div:
             dcc.Store(id="store-download-stem"),
             dcc.Store(id="store-shortlist-version"),
             dcc.Interval(id="interval-grid-poll", interval=300, disabled=True),
+            dcc.Interval(id="interval-grid-watchdog", interval=5000),
             dcc.Interval(id="interval-shortlist-poll", interval=POLL_SHORTLIST_MS),
             # Outputs of client-side helpers that act on the page itself.
             html.Div(id="div-sink-url", hidden=True),

@@ -943,6 +943,16 @@ def _register_clientside(app) -> None:
         prevent_initial_call=True,
     )
     app.clientside_callback(
+        "function(beat, ticks, maxTicks, disabled) {"
+        " return window.arcwindow.pollWatchdog(beat, ticks, maxTicks, disabled); }",
+        Output("interval-grid-poll", "max_intervals", allow_duplicate=True),
+        Input("interval-grid-watchdog", "n_intervals"),
+        State("interval-grid-poll", "n_intervals"),
+        State("interval-grid-poll", "max_intervals"),
+        State("interval-grid-poll", "disabled"),
+        prevent_initial_call=True,
+    )
+    app.clientside_callback(
         "function(n) { return window.arcwindow.copyLink(n); }",
         Output("button-copy-link", "children"),
         Input("button-copy-link", "n_clicks"),
