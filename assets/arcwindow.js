@@ -1,6 +1,7 @@
-/* arcwindow client-side helpers: the address bar, slider labels and names, the copy-link
-   button, PNG downloads with the caution, the upload size check, refused controls marked for
-   screen readers. Dates on the sliders are days since 1970-01-01 UTC. */
+/* arcwindow client-side helpers: the address bar (window and sequence pages), slider labels and
+   names, the copy-link buttons, PNG downloads with the caution, the upload size check, going to
+   the page of a case, refused controls marked for screen readers. Dates on the sliders are days
+   since 1970-01-01 UTC. */
 (function () {
   var MINUTES_PER_DAY = 1440;
   var MS_PER_MINUTE = 60000;
@@ -121,6 +122,38 @@
       return (ticks || 0) + 1;
     },
 
+    // The sequence page's view in the address bar (replaced, never pushed); once the shown
+    // candidate is known, its own dates are added when the view does not carry them, so a
+    // copied link names the trajectory and not only its rank in a search.
+    replaceSequenceQuery: function (query, resolved) {
+      if (typeof query !== "string" || query.charAt(0) !== "?" ||
+          window.location.pathname !== "/sequence") { return noUpdate(); }
+      var full = query;
+      if (resolved && typeof resolved === "object" && resolved.view === query &&
+          query.indexOf("&at=") < 0) {
+        ["seq", "at", "arcs", "res"].forEach(function (name) {
+          if (typeof resolved[name] === "string" && resolved[name]) {
+            full += "&" + name + "=" + encodeURIComponent(resolved[name])
+              .replace(/%7E/gi, "~").replace(/%3A/gi, ":").replace(/%2F/gi, "/")
+              .replace(/%2C/gi, ",").replace(/%2A/gi, "*");
+          }
+        });
+      }
+      if (window.location.search !== full) {
+        window.history.replaceState(window.history.state, "", "/sequence" + full);
+      }
+      return noUpdate();
+    },
+
+    // Another page of the app for a case it shows (a one-leg case picked on the sequence
+    // page, a sequence picked on the window page).
+    goTo: function (href) {
+      if (typeof href === "string" && href.charAt(0) === "/" && href.charAt(1) !== "/") {
+        window.location.assign(href);
+      }
+      return noUpdate();
+    },
+
     replaceSurveyQuery: function (name) {
       if (typeof name === "string" && name && window.location.pathname.indexOf("/survey") === 0) {
         var query = "?results=" + encodeURIComponent(name);
@@ -131,13 +164,13 @@
       return noUpdate();
     },
 
-    copyLink: function () {
+    copyLink: function (n, buttonId) {
       var url = window.location.href;
+      var button = buttonId || "button-copy-link";
       function copied(text) {
-        window.dash_clientside.set_props("button-copy-link", { children: text });
+        window.dash_clientside.set_props(button, { children: text });
         window.setTimeout(function () {
-          window.dash_clientside.set_props("button-copy-link",
-            { children: "Copy link to this view" });
+          window.dash_clientside.set_props(button, { children: "Copy link to this view" });
         }, 2500);
       }
       if (navigator.clipboard && window.isSecureContext) {
@@ -161,12 +194,17 @@
       var graphs = {
         "button-png-map": ["graph-window-map", "window_map"],
         "button-png-arcview": ["graph-arc-view", "arc_view"],
-        "button-png-family": ["graph-family-chart", "family_chart"]
+        "button-png-family": ["graph-family-chart", "family_chart"],
+        "button-seq-png-arcview": ["graph-seq-arc-view", "arc_view"],
+        "button-seq-png-encounters": ["graph-seq-encounters", "encounter_chart"],
+        "button-seq-png-legmap": ["graph-seq-leg-map", "leg_map"],
+        "button-seq-png-family": ["graph-seq-family", "family_chart"]
       };
       var entry = graphs[buttonId];
       var gd = entry && document.querySelector("#" + entry[0] + " .js-plotly-plot");
       if (!gd || !window.Plotly) { return noUpdate(); }
-      var banner = document.getElementById("div-caution-banner");
+      var banner = document.getElementById("div-caution-banner") ||
+        document.getElementById("div-seq-caution");
       var caution = banner ? banner.innerText.replace(/\s+/g, " ").trim() : "";
       var words = caution.split(" "), lines = [""];
       words.forEach(function (w) {

@@ -4,6 +4,7 @@ speed goals live in `arcwindow bench`)."""
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 from app.bench import run_sections
 from app.cli import main
@@ -95,3 +96,43 @@ def test_instruction_counts_are_read_from_one_callgrind_dump_per_phase(tmp_path)
     assert [p.name for p in order] == [
         "callgrind.out.1", "callgrind.out.2", "callgrind.out.10", "callgrind.out"
     ]  # fmt: skip
+
+
+def test_sequence_page_leg_map_baseline_evaluates_the_same_cells():
+    """The leg-map baseline of the sequence page's bench lines (every cell evaluated whole)
+    gives the leg map's own total Δv and limits, or its ratio means nothing."""
+    import numpy as np
+
+    from app.bench.sequence_page_bench import whole_map_inputs
+    from solver.sequence.evaluate import SequenceModel
+    from solver.sequence.leg_map import leg_axes, leg_map
+    from solver.sequence.record import candidate_from_link
+    from solver.sequence.spec import load_sequence_case
+
+    sequence_case = load_sequence_case(
+        Path(__file__).resolve().parents[1] / "sample_cases/sequences/harrow_jupiter_veega.toml"
+    )
+    link = {  # a candidate a search of this sample found (any dates would do)
+        "seq": "earth-venus-earth-earth-jupiter",
+        "at": "2034-08-14T01:50:32.171Z~2034-11-02T19:03:01.114Z~2035-09-10T15:05:49.010Z"
+        "~2037-09-09T08:38:52.481Z~2040-06-30T13:58:34.836Z",
+        "arcs": "0.0.*.0",
+        "res": "15.135347/178.844036",
+    }
+    candidate = candidate_from_link(sequence_case, link)
+    model = SequenceModel(sequence_case.case, sequence_case.sequence(candidate.sequence))
+    epochs, angles = whole_map_inputs(model, candidate, 1, 6.0, 2.0)
+    whole = model.costs(model.arcs(epochs, angles, fast=True), detail=True)
+    a, b = model.spec.leg_epochs(1)
+    start, end = leg_axes(candidate.epochs_jd_tdb, a, b, 6.0, 2.0)
+    resonant = [
+        [g.metrics["pitch_deg"], g.metrics["clock_deg"]]
+        for g in candidate.legs
+        if g.branch == "resonant"
+    ]
+    legmap = leg_map(model, candidate.epochs_jd_tdb, 1, start, end, angles_deg=resonant)
+    shape = (len(start), len(end))  # the baseline is start-major; the map is (end, start)
+    assert np.array_equal(whole.within.reshape(shape).T, legmap.within)
+    assert legmap.within.any()
+    dv = whole.objective.reshape(shape).T
+    assert np.allclose(dv[legmap.within], legmap.values["dv_total_km_s"][legmap.within], rtol=1e-9)

@@ -99,6 +99,14 @@ def test_a_job_cancelled_behind_the_tabs_back_is_asked_for_again():
     assert plan.action == "restart"
 
 
+def test_a_grid_this_tab_cancelled_stays_cancelled_when_the_cancel_answer_was_lost():
+    """A tick in flight can make the browser drop the Cancel's answer; the server's ticket
+    says this tab withdrew, and the loop settles instead of solving the grid again."""
+    plan = plan_poll(solving(), V1, {"phase": "cancelled", "withdrawn": True}, None)
+    assert plan.action == "" and plan.status.phase == "cancelled"
+    assert plan.interval_ms is None and plan.progress.retry
+
+
 def test_a_stalled_or_failed_job_is_reported():
     plan = plan_poll(solving(), V1, {"phase": "running", "stalled": True}, None)
     assert plan.status.phase == "failed" and "no progress" in plan.status.message

@@ -87,8 +87,14 @@ def test_slowdown_setting_is_read_and_checked():
 
 def test_catalogue_lists_every_sample_by_title(tmp_path):
     catalogue = CaseCatalogue(SAMPLES, tmp_path)
-    values = [o["value"] for o in catalogue.options()]
-    assert values == sorted(p.stem for p in SAMPLES.glob("*.toml"))
+    options = catalogue.options()
+    values = [o["value"] for o in options]
+    one_leg = sorted(p.stem for p in SAMPLES.glob("*.toml"))
+    sequences = sorted(p.stem for p in (SAMPLES / "sequences").glob("*.toml"))
+    assert values == one_leg + sequences  # the sequence samples after the one-leg ones
+    assert all(o["label"].endswith("(sequence)") for o in options[len(one_leg) :])
+    assert all(catalogue.is_sequence(v) for v in sequences)
+    assert not any(catalogue.is_sequence(v) for v in one_leg)
     assert catalogue.default_id() == "tallis_rendezvous"
 
 

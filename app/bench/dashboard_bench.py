@@ -792,7 +792,15 @@ def run(size: str = "full") -> list[BenchLine]:
             SOAK_VIEWERS_QUICK if quick else VIEWERS,
         )
         lines += _crowd_lines(folder / "crowd", size)
+        lines += _sequence_page_lines(size)
     return lines
+
+
+def _sequence_page_lines(size: str) -> list[BenchLine]:
+    """Candidate selection and leg maps on the sequence page (sequence_page_bench)."""
+    from app.bench.sequence_page_bench import run as sequence_page_run
+
+    return sequence_page_run(size)
 
 
 def _crowd_lines(folder: Path, size: str) -> list[BenchLine]:

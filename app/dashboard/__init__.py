@@ -13,8 +13,12 @@ the survey results, as pages of one Dash app.
 * ``display_data``: solver results to display arrays; ``figures``: pure figure builders;
   ``theme``: colours and fonts;
 * ``window_service``: the above joined for the window page's callbacks;
-* ``pages``: ``window_page`` (``/``, layout in ``window_layout``) and ``survey_page``
-  (``/survey``);
+* ``pages``: ``window_page`` (``/``, layout in ``window_layout``), ``sequence_page``
+  (``/sequence``, layout in ``sequence_layout``) and ``survey_page`` (``/survey``);
+* the sequence page's own: ``sequence_view`` (its view, URL and settings), ``search_loop``
+  (its live loop, pure), ``sequence_service`` (searches in the job pool, candidates, leg maps,
+  figures, shortlist, downloads), ``sequence_display`` and ``sequence_figures`` (its display
+  data and pure figure builders);
 * ``slowdown``: the test-only setting that slows grid jobs and refinement down;
 * ``access``: the token, Host check, same-origin writes and security headers on every request;
   ``budget``: the memory budget of one request; ``downloads``: grid tables streamed from files
@@ -79,7 +83,8 @@ def create_app(
     """
     from . import access as access_module
     from . import downloads
-    from .pages import survey_page, window_page
+    from .pages import sequence_page, survey_page, window_page
+    from .sequence_service import SequenceService
 
     if service is None:
         service = WindowService(Settings.resolve(cache_dir, data_dir, cases_dir, surveys_dir))
@@ -98,7 +103,7 @@ def create_app(
     access_module.install(
         app.server, access or AccessPolicy.for_address("127.0.0.1", 0, token=None)
     )
-    for page in (window_page, survey_page):
+    for page in (window_page, sequence_page, survey_page):
         dash.register_page(
             page.__name__,
             path=page.PATH,
@@ -110,6 +115,9 @@ def create_app(
     window_page.register_callbacks(app, service)
     survey_page.register_callbacks(app, service.shelf)
     downloads.register(app, service)
+    sequences = SequenceService(service)
+    sequence_page.register_callbacks(app, sequences)
+    app.server.config["ARCWINDOW_SEQUENCES"] = sequences
     app.server.config["ARCWINDOW_SERVICE"] = service
     # What the data folder could not use (a store kept aside, entries refused): `serve` prints it.
     app.server.config["ARCWINDOW_STARTUP_NOTES"] = service.shortlist.problems()

@@ -13,6 +13,11 @@ fsync, rename), so a link that names it works for every viewer and the
 same file uploaded twice is one case. When it is read, its hash is checked again: a damaged file
 is refused and reported, never trusted.
 
+**Sequences.** Cases with a ``[sequence]`` section (the sample folder's ``sequences/`` and any
+upload that has one) open the sequence page; :meth:`CaseCatalogue.is_sequence` says which, and
+:meth:`CaseCatalogue.document` gives a case file's parsed TOML, which the sequence page changes
+and validates as a sequence case.
+
 **Per viewer.** The store is shared (that is what makes links work), but the case picker lists
 only the sample cases and the uploads of the viewer's own browser (kept in the browser's local
 storage, ``store-my-cases``), each removable from that list; one viewer's uploads do not pile up
@@ -56,11 +61,17 @@ def content_id(raw: bytes) -> str:
 class CaseCatalogue:
     """Sample and uploaded cases by id, and the cases that views make of them."""
 
-    def __init__(self, samples_dir: Path, uploads_dir: Path) -> None:
+    def __init__(
+        self, samples_dir: Path, uploads_dir: Path, sequences_dir: Path | None = None
+    ) -> None:
         self.samples_dir = Path(samples_dir)
         self.uploads_dir = Path(uploads_dir)
+        self.sequences_dir = (
+            Path(sequences_dir) if sequences_dir is not None else self.samples_dir / "sequences"
+        )
         self._lock = threading.Lock()
         self._loaded: dict[str, tuple[float, Case]] = {}
+        self._documents: dict[str, tuple[float, dict]] = {}
         self._effective: OrderedDict[tuple, Case] = OrderedDict()
 
     # -- the index -------------------------------------------------------------------------
@@ -70,6 +81,16 @@ class CaseCatalogue:
         return sorted(
             p.stem
             for p in self.samples_dir.glob("*.toml")
+            if CASE_ID_RE.fullmatch(p.stem) and not p.stem.startswith(UPLOAD_PREFIX)
+        )
+
+    def sequence_ids(self) -> list[str]:
+        """The sample cases with a ``[sequence]`` section (their own folder)."""
+        if not self.sequences_dir.is_dir():
+            return []
+        return sorted(
+            p.stem
+            for p in self.sequences_dir.glob("*.toml")
             if CASE_ID_RE.fullmatch(p.stem) and not p.stem.startswith(UPLOAD_PREFIX)
         )
 
@@ -86,28 +107,39 @@ class CaseCatalogue:
         if not isinstance(case_id, str) or not CASE_ID_RE.fullmatch(case_id):
             return None
         if UPLOAD_ID_RE.fullmatch(case_id):
-            folder, names = self.uploads_dir, self.upload_ids()
+            places = [(self.uploads_dir, self.upload_ids())]
         else:
-            folder, names = self.samples_dir, self.sample_ids()
-        for name in names:
-            if name == case_id:
-                return folder / f"{name}.toml"
+            places = [
+                (self.samples_dir, self.sample_ids()),
+                (self.sequences_dir, self.sequence_ids()),
+            ]
+        for folder, names in places:
+            for name in names:
+                if name == case_id:
+                    return folder / f"{name}.toml"
         return None
 
     def exists(self, case_id: object) -> bool:
         return self._path(case_id) is not None
 
     def options(self, my_cases: object = None) -> list[dict[str, str]]:
-        """Picker options: sample cases by title, then this viewer's uploads that exist."""
+        """Picker options: sample cases by title, the sequence samples, then this viewer's
+        uploads that exist (sequences marked, since they open the sequence page)."""
         out = []
         for case_id in self.sample_ids():
             try:
                 out.append({"value": case_id, "label": self.load(case_id).title})
             except InputError:
                 continue  # a broken sample file is left out rather than breaking the page
+        for case_id in self.sequence_ids():
+            try:
+                out.append({"value": case_id, "label": f"{self.load(case_id).title} (sequence)"})
+            except InputError:
+                continue
         for case_id in my_case_ids(my_cases):
             try:
-                out.append({"value": case_id, "label": f"{self.load(case_id).title} (uploaded)"})
+                kind = "sequence, uploaded" if self.is_sequence(case_id) else "uploaded"
+                out.append({"value": case_id, "label": f"{self.load(case_id).title} ({kind})"})
             except InputError:
                 continue
         return out
@@ -146,6 +178,32 @@ class CaseCatalogue:
         with self._lock:
             self._loaded[case_id] = (mtime, case)
         return case
+
+    def document(self, case_id: str) -> dict:
+        """The case file ``case_id`` as parsed TOML (a fresh copy each time: callers change it).
+        InputError as :meth:`load`."""
+        import copy
+
+        self.load(case_id)  # the same checks: the id, the content hash, a valid case
+        path = self._path(case_id)
+        assert path is not None
+        mtime = path.stat().st_mtime
+        with self._lock:
+            hit = self._documents.get(case_id)
+        if hit is None or hit[0] != mtime:
+            hit = (mtime, _toml(path.read_text(encoding="utf-8")))
+            with self._lock:
+                self._documents[case_id] = hit
+        return copy.deepcopy(hit[1])
+
+    def is_sequence(self, case_id: object) -> bool:
+        """Whether a case has a ``[sequence]`` section (it opens the sequence page)."""
+        if not isinstance(case_id, str) or not self.exists(case_id):
+            return False
+        try:
+            return "sequence" in self.document(case_id)
+        except InputError:
+            return False
 
     def effective(self, view: ViewState) -> Case:
         """The case a view shows: its file with the view's changes, validated by the engine
@@ -207,7 +265,12 @@ class CaseCatalogue:
         except UnicodeDecodeError:
             raise InputError("upload", name, "a UTF-8 text TOML case file") from None
         case = parse_case(text, source_path=name)
-        check_grid_size(case)
+        if "sequence" in _toml(text):
+            from solver.sequence.spec import parse_sequence_case
+
+            parse_sequence_case(text, source_path=name)  # a sequence is checked as one
+        else:
+            check_grid_size(case)
         return self._store(raw)
 
     def add_case(self, case: Case) -> str:
@@ -233,6 +296,16 @@ class CaseCatalogue:
         with self._lock:
             self._loaded.pop(case_id, None)
         return case_id
+
+
+def _toml(text: str) -> dict:
+    """A case file's TOML as a dict (the text was validated as a case before)."""
+    import tomllib
+
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError:
+        raise InputError("case file", text[:40], "valid TOML (see sample_cases/)") from None
 
 
 def my_case_ids(my_cases: object) -> list[str]:

@@ -1,5 +1,5 @@
-"""Solved grids for the dashboard: an in-process LRU in front of the disk cache, and fair
-background jobs that make them.
+"""Solved grids (and sequence searches) for the dashboard: an in-process LRU in front of the disk
+cache, and fair background jobs that make them.
 
 A grid request is answered from memory when the grid was solved recently (a metric change or a
 second viewer costs no solving); otherwise a job is queued. The callback that asked returns at
@@ -8,9 +8,11 @@ failed, cancelled, lost) and the page polls the ticket.
 
 Fairness, as a shared server needs it:
 
-* **A pool with a queue, in two lanes.** Grids up to :data:`LARGE_JOB_CELL_ARCS` cell-arcs go to
+* **A pool with a queue, in lanes.** Grids up to :data:`LARGE_JOB_CELL_ARCS` cell-arcs go to
   the small lane (two workers), larger ones to the large lane (one worker), so a grid just under
-  the cap never holds up another viewer's small grid.
+  the cap never holds up another viewer's small grid. Sequence searches (the sequence page's
+  :class:`Work`, seconds to a minute each) have a lane of their own (one worker), so a search
+  never holds up a grid, nor a grid a search.
 * **Jobs are shared and owned by their waiters.** Every viewer (one browser tab) that asks for a
   grid becomes one of its job's waiters. A viewer may cancel only its own wait; the job stops
   when nobody waits for it any more. A viewer that moves on to another grid stops waiting for
@@ -24,6 +26,11 @@ Jobs never vanish silently: a job whose worker raised, or whose grid was dropped
 before anyone drew it, reports so (``failed`` or ``lost``), and the page restarts or reports it.
 The disk cache is written after the grid is in memory, on a writer thread of its own, so a large
 grid's file write neither delays its map nor holds a lane.
+
+Any other background work joins the same pool as a :class:`Work` (:meth:`GridJobs.submit`): its
+key, its lane, how to compute it (with progress and a cancel check), its size in memory and,
+optionally, how to read and write it in the disk cache; it gets the same tickets, waiters,
+leases, per-address limits and cancellation as a grid.
 
 Why threads and not a task queue: the grid engine spends its time in numpy and compiled kernels
 that let other threads run, one server process serves a team, and threads need no broker, no
@@ -41,6 +48,7 @@ from collections import OrderedDict
 from collections.abc import Callable
 from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
+from typing import Any
 
 from solver.errors import InputError
 from solver.files.cache import GridCache
@@ -58,6 +66,11 @@ LARGE_JOB_CELL_ARCS = 2_000_000
 """Grids above this many cell-arcs (a few seconds of solving) go to the large lane."""
 SMALL_LANE_WORKERS = 2
 LARGE_LANE_WORKERS = 1
+SEARCH_LANE_WORKERS = 1
+LANES = ("small", "large", "search")
+MAX_WITHDRAWN = 4096
+"""Cancelled waits remembered (per viewer and job) so a page's later polls see them."""
+WITHDRAWN = "Cancelled: this tab no longer waits for it (other viewers may)."
 LEASE_S = 30.0
 """A waiter that has not polled for this long is dropped (the page polls every 2 s at most)."""
 STALL_S = 120.0
@@ -92,6 +105,11 @@ class Ticket:
         Running, with no progress for :data:`STALL_S` seconds.
     message : str
         Why a job failed or was cancelled.
+    note : str
+        How a running job is going, in words (a search's best score so far), when it says.
+    withdrawn : bool
+        Phase ``cancelled`` because this viewer pressed Cancel (not a lapsed wait): a page that
+        lost its Cancel's answer settles on it instead of asking again.
     """
 
     key: str
@@ -101,13 +119,54 @@ class Ticket:
     ahead: int = 0
     stalled: bool = False
     message: str = ""
+    note: str = ""
+    withdrawn: bool = False
+
+
+Check = Callable[[], None]
+"""Called between steps of a job; raises :class:`Cancelled` when nobody waits for it any more."""
+Report = Callable[[int, int], None]
+"""A job's progress: ``(done, total)`` steps (it also checks for a cancel)."""
+
+
+@dataclass(frozen=True)
+class Work:
+    """One piece of background work for the pool.
+
+    Attributes
+    ----------
+    key : str
+        What identifies the result (its cache key): two requests with one key share one job.
+    lane : {"small", "large", "search"}
+    compute : callable(report, check) -> result
+        Does the work; calls ``report(done, total)`` now and then (which raises
+        :class:`Cancelled` once nobody waits).
+    nbytes : callable(result) -> int
+        Memory the result holds (the LRU's bound).
+    load : callable() -> result or None, optional
+        The result from the disk cache, if it is there.
+    store : callable(result) -> None, optional
+        Write the result to the disk cache (on the writer thread, after it is in memory).
+    pause : callable(check) -> None, optional
+        The test-only delay before the work (``slowdown``).
+    note : callable() -> str, optional
+        A line on how the work is going (shown beside its progress).
+    """
+
+    key: str
+    lane: str
+    compute: Callable[[Report, Check], Any]
+    nbytes: Callable[[Any], int]
+    load: Callable[[], Any] | None = None
+    store: Callable[[Any], None] | None = None
+    pause: Callable[[Check], None] | None = None
+    note: Callable[[], str] | None = None
 
 
 @dataclass
 class _Job:
     key: str
-    case: Case
-    cell_arcs: int
+    work: Work
     lane: str
     address: str
     state: str = "queued"  # queued, running, done, failed, cancelled
@@ -142,13 +201,14 @@ def grid_nbytes(grid: WindowGrid) -> int:
 
 
 class GridJobs:
-    """Solved grids by cache key: memory LRU, disk cache, fair background jobs.
+    """Solved grids (and other :class:`Work`) by key: memory LRU, disk cache, fair background
+    jobs.
 
     Parameters
     ----------
     cache : GridCache or None
         Disk cache read and written by the jobs (None: memory only).
-    small_workers, large_workers : int
+    small_workers, large_workers, search_workers : int
         Workers of each lane.
     large_cell_arcs : int
         Grids above this many cell-arcs go to the large lane.
@@ -168,6 +228,7 @@ class GridJobs:
         *,
         small_workers: int = SMALL_LANE_WORKERS,
         large_workers: int = LARGE_LANE_WORKERS,
+        search_workers: int = SEARCH_LANE_WORKERS,
         large_cell_arcs: int = LARGE_JOB_CELL_ARCS,
         max_grids: int = DEFAULT_MEMORY_GRIDS,
         max_bytes: int = DEFAULT_MEMORY_BYTES,
@@ -189,17 +250,21 @@ class GridJobs:
         self._compute = compute
         self._clock = clock
         self._lock = threading.Lock()
-        self._grids: OrderedDict[str, tuple[WindowGrid, int]] = OrderedDict()
+        self._grids: OrderedDict[str, tuple[Any, int]] = OrderedDict()
         self._jobs: OrderedDict[str, _Job] = OrderedDict()
         self._interest: dict[str, str] = {}  # viewer -> key of the grid it waits for
+        # (viewer, key) of the waits viewers cancelled, until they ask for that key again.
+        self._withdrawn: OrderedDict[tuple[str, str], None] = OrderedDict()
         self._lanes = {
             "small": ThreadPoolExecutor(small_workers, thread_name_prefix="arcwindow-grid"),
             "large": ThreadPoolExecutor(large_workers, thread_name_prefix="arcwindow-large"),
+            "search": ThreadPoolExecutor(search_workers, thread_name_prefix="arcwindow-search"),
         }
         self._writer = ThreadPoolExecutor(1, thread_name_prefix="arcwindow-cache-write")
 
     # -- memory ----------------------------------------------------------------------------
-    def memory_get(self, key: str) -> WindowGrid | None:
+    def memory_get(self, key: str) -> Any:
+        """The grid (or other result) of ``key`` if it is in memory, else None."""
         with self._lock:
             hit = self._grids.get(key)
             if hit is None:
@@ -207,8 +272,9 @@ class GridJobs:
             self._grids.move_to_end(key)
             return hit[0]
 
-    def memory_put(self, key: str, grid: WindowGrid) -> None:
-        size = grid_nbytes(grid)
+    def memory_put(self, key: str, grid: Any, nbytes: int | None = None) -> None:
+        """Keep a result in memory (a grid's size is measured; other results say theirs)."""
+        size = grid_nbytes(grid) if nbytes is None else int(nbytes)
         with self._lock:
             self._grids[key] = (grid, size)
             self._grids.move_to_end(key)
@@ -227,10 +293,31 @@ class GridJobs:
         cell-arc cap, or when this address or the whole queue already holds too many jobs.
         """
         key = grid_key(case)
+        ticket = self._join(key, viewer)
+        if ticket is not None:
+            return ticket
+        n_dep, n_arr, slots = check_grid_size(case)  # arithmetic: no date axis is built
+        cell_arcs = n_dep * n_arr * slots
+        lane = "large" if cell_arcs > self.large_cell_arcs else "small"
+        return self._queue(self._grid_work(case, key, lane), viewer, address)
+
+    def submit(self, work: Work, viewer: str, address: str = "") -> Ticket:
+        """Work other than a grid (a sequence search): ready, or the (new or shared) job that
+        does it, with the same waiters, limits and cancellation as a grid."""
+        if work.lane not in LANES:
+            raise ValueError(f"unknown lane {work.lane!r}")
+        ticket = self._join(work.key, viewer)
+        if ticket is not None:
+            return ticket
+        return self._queue(work, viewer, address)
+
+    def _join(self, key: str, viewer: str) -> Ticket | None:
+        """The ticket when the result is in memory or its job runs (the viewer joins it)."""
         now = self._clock()
         with self._lock:
             self._expire_leases(now)
             self._leave(viewer, keep=key)
+            self._withdrawn.pop((viewer, key), None)  # asked again: no longer cancelled
             if key in self._grids:
                 self._grids.move_to_end(key)
                 self._interest.pop(viewer, None)
@@ -240,8 +327,11 @@ class GridJobs:
                 job.waiters[viewer] = now
                 self._interest[viewer] = key
                 return self._ticket(job, now)
-        n_dep, n_arr, slots = check_grid_size(case)  # arithmetic: no date axis is built
-        cell_arcs = n_dep * n_arr * slots
+        return None
+
+    def _queue(self, work: Work, viewer: str, address: str) -> Ticket:
+        key, lane = work.key, work.lane
+        now = self._clock()
         with self._lock:
             job = self._jobs.get(key)
             if job is not None and job.active:  # another viewer started it meanwhile
@@ -262,11 +352,9 @@ class GridJobs:
                     f"{len(mine)} grids being solved for this address",
                     f"at most {self.max_per_address} at once per address; cancel one or wait",
                 )
-            lane = "large" if cell_arcs > self.large_cell_arcs else "small"
             job = _Job(
                 key=key,
-                case=case,
-                cell_arcs=cell_arcs,
+                work=work,
                 lane=lane,
                 address=address,
                 queued_at=now,
@@ -281,6 +369,29 @@ class GridJobs:
         future.add_done_callback(lambda f, job=job: self._worker_ended(job, f))
         return self._ticket(job, now)
 
+    def _grid_work(self, case: Case, key: str, lane: str) -> Work:
+        compute = self._compute
+
+        def run(report: Report, check: Check) -> WindowGrid:
+            return compute(case, cache=None, progress=report)
+
+        def load() -> WindowGrid | None:
+            return self._cached(case, key)
+
+        def store(grid: WindowGrid) -> None:
+            if not grid.from_cache:
+                self._store(key, grid)
+
+        return Work(
+            key=key,
+            lane=lane,
+            compute=run,
+            nbytes=grid_nbytes,
+            load=load if self.cache is not None else None,
+            store=store if self.cache is not None else None,
+            pause=self.slowdown.grid_pause,
+        )
+
     def ticket(self, key: str, viewer: str) -> Ticket:
         """The state of grid ``key`` for ``viewer`` (refreshes the viewer's wait)."""
         now = self._clock()
@@ -288,6 +399,8 @@ class GridJobs:
             self._expire_leases(now)
             if key in self._grids:
                 return Ticket(key, "ready")
+            if (viewer, key) in self._withdrawn:
+                return Ticket(key, "cancelled", message=WITHDRAWN, withdrawn=True)
             job = self._jobs.get(key)
             if job is None:
                 return Ticket(key, "lost", message="The server no longer knows this grid job.")
@@ -310,6 +423,9 @@ class GridJobs:
             del job.waiters[viewer]
             if self._interest.get(viewer) == key:
                 del self._interest[viewer]
+            self._withdrawn[(viewer, key)] = None
+            while len(self._withdrawn) > MAX_WITHDRAWN:
+                self._withdrawn.popitem(last=False)
             if not job.waiters:
                 job.cancel_event.set()
             return True
@@ -324,7 +440,7 @@ class GridJobs:
             job = self._jobs.get(key)
             return len(job.waiters) if job is not None and job.active else 0
 
-    def wait(self, key: str, timeout_s: float) -> WindowGrid | None:
+    def wait(self, key: str, timeout_s: float) -> Any:
         """Wait up to ``timeout_s`` for grid ``key``; the grid if it is ready by then."""
         with self._lock:
             job = self._jobs.get(key)
@@ -346,6 +462,12 @@ class GridJobs:
                 if j.lane == job.lane and j.state == "queued" and j.queued_at < job.queued_at
             )
         phase = {"done": "ready"}.get(job.state, job.state)
+        note = ""
+        if job.work.note is not None and job.state == "running":
+            try:
+                note = job.work.note()[:300]
+            except Exception:  # a note is a courtesy; it never breaks a ticket
+                note = ""
         return Ticket(
             key=job.key,
             phase=phase,
@@ -354,6 +476,7 @@ class GridJobs:
             ahead=ahead,
             stalled=job.state == "running" and now - job.progress_at > STALL_S,
             message=job.message,
+            note=note,
         )
 
     def _leave(self, viewer: str, keep: str | None) -> None:
@@ -402,24 +525,35 @@ class GridJobs:
             job.done_rows, job.total_rows = done, total
             check()
 
-        grid = None
+        work = job.work
+        result = None
         try:
-            self.slowdown.grid_pause(check)
-            grid = self._cached(job.case, job.key)
-            if grid is None:
-                grid = self._compute(job.case, cache=None, progress=progress)
+            if work.pause is not None:
+                work.pause(check)
+            result = work.load() if work.load is not None else None
+            from_cache = result is not None
+            if result is None:
+                result = work.compute(progress, check)
         except Cancelled:
             self._finish(job, "cancelled", "Computation cancelled.")
         except InputError as exc:
             self._finish(job, "failed", str(exc))
         except Exception as exc:  # a failed job must be reported, not lost with its thread
-            _LOG.exception("grid job failed")
-            self._finish(job, "failed", f"Grid computation failed: {exc!r}"[:300])
+            _LOG.exception("background job failed")
+            what = "Grid computation" if work.lane != "search" else "The search"
+            self._finish(job, "failed", f"{what} failed: {exc!r}"[:300])
         else:
-            self.memory_put(job.key, grid)
-            self._finish(job, "done", "read from the disk cache" if grid.from_cache else "computed")
-            if self.cache is not None and not grid.from_cache:
-                self._writer.submit(self._store, job.key, grid)
+            self.memory_put(job.key, result, work.nbytes(result))
+            self._finish(job, "done", "read from the disk cache" if from_cache else "computed")
+            if work.store is not None and not from_cache:
+                self._writer.submit(self._write_quietly, work, result)
+
+    @staticmethod
+    def _write_quietly(work: Work, result: Any) -> None:
+        try:
+            work.store(result)  # type: ignore[misc]
+        except OSError:
+            _LOG.warning("could not write %s to the disk cache", work.key[:12])
 
     def _cached(self, case: Case, key: str) -> WindowGrid | None:
         if self.cache is None:
@@ -447,7 +581,7 @@ class GridJobs:
         pool was shut down before it ran) leaves the job failed, never running for ever."""
         if job.finished_at is None:
             error = future.exception() if not future.cancelled() else None
-            self._finish(job, "failed", f"The grid worker stopped: {error!r}"[:300])
+            self._finish(job, "failed", f"The worker stopped: {error!r}"[:300])
 
     def shutdown(self) -> None:
         with self._lock:
@@ -458,6 +592,7 @@ class GridJobs:
 
 
 __all__ = [
+    "LANES",
     "LARGE_JOB_CELL_ARCS",
     "LEASE_S",
     "MAX_JOBS_PER_ADDRESS",
@@ -465,6 +600,7 @@ __all__ = [
     "STALL_S",
     "GridJobs",
     "Ticket",
+    "Work",
     "grid_key",
     "grid_nbytes",
 ]

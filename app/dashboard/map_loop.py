@@ -36,6 +36,11 @@ REFINE_WAIT_POLLS = 120
 keeps the grid node and says so."""
 
 PHASES = ("solving", "ready", "failed", "cancelled")
+CANCELLED = (
+    "Cancelled: this tab no longer waits for the grid (other viewers may). "
+    "Press “Compute again” to solve it."
+)
+"""What the progress strip says once this tab cancelled its grid."""
 BEST = ("node", "refined", "none", "unrefined")
 
 
@@ -208,6 +213,9 @@ def plan_poll(
         if phase == "ready":
             new = replace(status, phase="ready", best=_best_of(best_state), polls=0)
             return _moved(new, None)
+        if phase == "cancelled" and (ticket or {}).get("withdrawn"):
+            # This tab pressed Cancel (its answer may have been lost to a tick in flight).
+            return _moved(replace(status, phase="cancelled", message=CANCELLED, polls=0), None)
         if phase in ("lost", "cancelled"):
             # Lost, or cancelled without this tab asking (its wait lapsed): ask again.
             if status.restarts < MAX_RESTARTS:
@@ -380,6 +388,7 @@ def plan_selection(
 
 __all__ = [
     "BEST",
+    "CANCELLED",
     "MAX_RESTARTS",
     "PHASES",
     "REFINE_WAIT_POLLS",

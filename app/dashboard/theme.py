@@ -82,6 +82,23 @@ PARABOLA_COLOR = "#8a94a3"
 MIN_ENERGY_COLOR = "#111111"
 
 
+# Sequence page. Legs: one hue each, in order, chosen to stay apart for the common colour-vision
+# deficiencies (blue, orange, teal, purple, olive, rose) and from the muted body orbits.
+LEG_COLORS = ["#1f5fa8", "#d9822b", "#2a9d8f", "#7b4fa0", "#7a8a1f", "#c2456e"]
+ORBIT_COLOR = "#9aa3b0"
+# Encounter chart: v∞ in and out as a blue/orange pair (distinct in greyscale by shape too),
+# altitudes green above their minimum (red below it: ERROR_INK), Δv bars in the accent colour.
+VINF_IN_COLOR = "#1f5fa8"
+VINF_OUT_COLOR = "#d9822b"
+ALTITUDE_OK_COLOR = "#2e7d4f"
+DV_BAR_COLOR = ACCENT
+
+
+def leg_color(index: int) -> str:
+    """Line colour of leg ``index`` (1-based; the palette repeats beyond its length)."""
+    return LEG_COLORS[(int(index) - 1) % len(LEG_COLORS)]
+
+
 def revolution_color(revolutions: int) -> str:
     """Line colour of the N-revolution curves (the palette repeats beyond its length)."""
     return REVOLUTION_COLORS[int(revolutions) % len(REVOLUTION_COLORS)]

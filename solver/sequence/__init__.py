@@ -58,6 +58,7 @@ __all__, __getattr__, __dir__ = lazy_api(
             "grid_search",
             "grid_search_case",
         ],
+        "leg_map": ["LEG_MAP_METRICS", "LegMap", "leg_axes", "leg_map"],
         "polish": ["polish"],
         "resonance": ["miss_distance_km", "resonant_velocity"],
         "provenance": ["sequence_hash", "sequence_label", "sequence_provenance"],

@@ -40,6 +40,8 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         "objective",
         choices=OBJECTIVES,
         default="dv_total_km_s",
+        url="objective",
+        control="dropdown",
         description="What the search minimizes among candidates within limits.",
     ),
     Setting(
@@ -48,6 +50,8 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         "unpowered flybys only",
         choices=("true", "false"),
         default="false",
+        url="unpowered",
+        control="dropdown",
         description="Refuse flybys whose arrival and departure v∞ differ by more than the "
         "tolerance (true/false, as a TOML boolean).",
     ),
@@ -68,6 +72,8 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         unit="days",
         low=0.0,
         high=1e5,
+        url="durmax",
+        control="number",
         description="Limit: longest time from departure to final arrival.",
     ),
     Setting(
@@ -77,6 +83,8 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         unit="km/s",
         low=0.0,
         high=50.0,
+        url="fdvmax",
+        control="number",
         description="Limit: largest periapsis burn of any one flyby.",
     ),
     Setting(
@@ -105,6 +113,8 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         "leg.to",
         "body",
         "to",
+        url="to",
+        control="dropdown",
         description="The body at the end of the leg (the last leg ends at case.target_body, "
         "which it may repeat or leave out).",
     ),
@@ -123,6 +133,8 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         low=1.0 / 1440.0,
         high=1e5,
         required=True,
+        url="tofmin",
+        control="number",
         description="Shortest time of flight of the leg (a search bound and a limit).",
     ),
     Setting(
@@ -133,6 +145,8 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         low=1.0 / 1440.0,
         high=1e5,
         required=True,
+        url="tofmax",
+        control="number",
         description="Longest time of flight of the leg (a search bound and a limit).",
     ),
     Setting(
@@ -168,6 +182,8 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         unit="km",
         low=0.0,
         high=1e8,
+        url="altmin",
+        control="number",
         description="Lowest periapsis altitude of this flyby (default: the body's entry in "
         "sequence.flyby_altitude_min_km, else the built-in default).",
     ),
@@ -179,6 +195,8 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         low=0.0,
         high=1e5,
         default=0.0,
+        url="staymin",
+        control="number",
         description="Shortest stay at a stop.",
     ),
     Setting(
@@ -188,6 +206,8 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         unit="days",
         low=0.0,
         high=1e5,
+        url="staymax",
+        control="number",
         description="Longest stay at a stop (required for a stop).",
     ),
     Setting(
@@ -226,7 +246,9 @@ SEQUENCE_SETTINGS: tuple[Setting, ...] = (
         description="Apoapsis altitude of that orbit (default: the periapsis, circular).",
     ),
 )
-"""Every scalar setting of a sequence, in the order the documentation lists them."""
+"""Every scalar setting of a sequence, in the order the documentation lists them. Those with a
+``url`` are edited on the dashboard's sequence page (a ``leg.*`` one per leg, its link parameter
+followed by the leg's number: ``tofmin2``)."""
 
 SEQUENCE_SETTING: dict[str, Setting] = {s.key: s for s in SEQUENCE_SETTINGS}
 

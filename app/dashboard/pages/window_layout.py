@@ -415,12 +415,14 @@ def stores(query: str) -> html.Div:
             dcc.Store(id="store-control-errors"),
             dcc.Store(id="store-download-stem"),
             dcc.Store(id="store-shortlist-version"),
+            dcc.Store(id="store-redirect"),
             dcc.Interval(id="interval-grid-poll", interval=300, disabled=True),
             dcc.Interval(id="interval-grid-watchdog", interval=5000),
             dcc.Interval(id="interval-shortlist-poll", interval=POLL_SHORTLIST_MS),
             # Outputs of client-side helpers that act on the page itself.
             html.Div(id="div-sink-url", hidden=True),
             html.Div(id="div-sink-errors", hidden=True),
+            html.Div(id="div-sink-redirect", hidden=True),
         ]
     )
 
@@ -521,12 +523,18 @@ def details_children(sections: list[Section], note: str = "") -> list:
     return out
 
 
-def shortlist_children(entries, current_case: str | None, problem: str = "") -> list:
-    """The shortlist table (newest first), with a link that opens each arc and a remove button;
-    ``problem``: the store's latest problem, one line above the table."""
+def shortlist_children(
+    entries,
+    current_case: str | None,
+    remove_type: str = "button-shortlist-remove",
+    problem: str = "",
+) -> list:
+    """The shortlist table (newest first), with a link that opens each arc (a sequence
+    candidate on the sequence page) and a remove button (``remove_type``: the pattern id of the
+    page that shows the table); ``problem``: the store's latest problem, one line above it."""
     notice = [html.Div(short(problem), className="aw-message-error")] if problem else []
     if not entries:
-        return [*notice, html.Div("No arcs kept yet.", className="aw-small")]
+        return [*notice, html.Div("Nothing kept yet.", className="aw-small")]
     head = html.Thead(
         html.Tr(
             [
@@ -536,11 +544,11 @@ def shortlist_children(entries, current_case: str | None, problem: str = "") -> 
                     "case",
                     "departure (UTC)",
                     "arrival (UTC)",
-                    "arc",
+                    "arc or sequence",
                     "C3 (km²/s²)",
                     "arrival v∞ (km/s)",
                     "total Δv (km/s)",
-                    "TOF (days)",
+                    "TOF or duration (days)",
                     "note",
                     "by",
                     "kept (UTC)",
@@ -558,16 +566,22 @@ def shortlist_children(entries, current_case: str | None, problem: str = "") -> 
     rows = []
     for e in reversed(entries):
         arc = "N = 0" if e.revolutions == 0 else f"N = {e.revolutions}, {e.branch}"
+        page = "/"
+        extra = e.extra if isinstance(e.extra, dict) else {}
+        if extra.get("kind") == "sequence":
+            page = "/sequence"
+            record = extra.get("record") if isinstance(extra.get("record"), dict) else {}
+            arc = "sequence: " + str(record.get("sequence_label", "") or "")[:80]
         rows.append(
             html.Tr(
                 [
                     # Actions first, so they show without scrolling the table sideways.
                     html.Td(
                         [
-                            dcc.Link("open", href="/" + e.view, className="aw-link"),
+                            dcc.Link("open", href=page + e.view, className="aw-link"),
                             html.Button(
                                 "remove",
-                                id={"type": "button-shortlist-remove", "index": e.id},
+                                id={"type": remove_type, "index": e.id},
                                 className="aw-button-link",
                                 n_clicks=0,
                             ),
@@ -577,7 +591,7 @@ def shortlist_children(entries, current_case: str | None, problem: str = "") -> 
                     html.Td(e.case_title, className="aw-clip"),
                     html.Td(e.departure_utc.replace("T", " ").rstrip("Z")),
                     html.Td(e.arrival_utc.replace("T", " ").rstrip("Z")),
-                    html.Td(arc),
+                    html.Td(arc, className="aw-clip" if page != "/" else ""),
                     html.Td(num(e.metrics.get("c3_km2_s2"), 3), className="aw-num"),
                     html.Td(num(e.metrics.get("vinf_arrival_km_s"), 3), className="aw-num"),
                     html.Td(num(e.metrics.get("dv_total_km_s"), 3), className="aw-num"),

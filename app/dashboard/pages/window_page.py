@@ -59,6 +59,7 @@ from ..display_data import display_name, mass_summary
 from ..exports import arc_json, arc_oem, figure_html, view_stem
 from ..grid_jobs import grid_key
 from ..map_loop import (
+    CANCELLED,
     GridStatus,
     Progress,
     Shown,
@@ -290,6 +291,7 @@ def _register_view(app, service: WindowService) -> None:
         "arc_value": Output("dropdown-arc-slot", "value"),
         "errors": Output("store-control-errors", "data"),
         "stem": Output("store-download-stem", "data"),
+        "redirect": Output("store-redirect", "data"),
     }
     for key in ("case.departure_body", "case.target_body", "spacecraft.vehicle"):
         outputs[f"options:{key}"] = Output(CONTROL_IDS[key], "options")
@@ -339,6 +341,10 @@ def _register_view(app, service: WindowService) -> None:
             trigger = "arcs"
         else:
             trigger = "controls"
+        redirect = _sequence_redirect(service, trigger, page, case_id)
+        if redirect:  # a case with a [sequence] section opens the sequence page
+            out["redirect"] = redirect
+            return out
         values = dict(controls)
         values.update(sliders)
         inputs = ViewInputs(
@@ -388,6 +394,22 @@ def _register_view(app, service: WindowService) -> None:
         out["status"] = status.to_dict()
         out["answer"] = _answer(out["query"], status, _first_poll(status), progress)
         return out
+
+
+def _sequence_redirect(service: WindowService, trigger: str, page: Any, case_id: Any) -> str:
+    """The sequence page's address when the case asked for is a sequence ("" otherwise)."""
+    from urllib.parse import parse_qs
+
+    if trigger == "case" and isinstance(case_id, str):
+        if service.catalogue.is_sequence(case_id):
+            return "/sequence?case=" + case_id
+        return ""
+    if trigger == "page" and isinstance(page, str):
+        params = parse_qs(page.lstrip("?"))
+        wanted = (params.get("case") or [""])[0]
+        if wanted and service.catalogue.is_sequence(wanted):
+            return "/sequence" + page
+    return ""
 
 
 def _revolutions(service: WindowService, view: ViewState) -> int:
@@ -486,8 +508,7 @@ def _register_map(app, service: WindowService) -> None:
                 **{
                     **status.to_dict(),
                     "phase": "cancelled",
-                    "message": "Cancelled: this tab no longer waits for the grid (other viewers "
-                    "may). Press “Compute again” to solve it.",
+                    "message": CANCELLED,
                     "polls": 0,
                 }
             )
@@ -925,6 +946,12 @@ def _register_clientside(app) -> None:
         "function(query) { return window.arcwindow.replaceQuery(query); }",
         Output("div-sink-url", "children"),
         Input("store-view-query", "data"),
+        prevent_initial_call=True,
+    )
+    app.clientside_callback(
+        "function(href) { return window.arcwindow.goTo(href); }",
+        Output("div-sink-redirect", "children"),
+        Input("store-redirect", "data"),
         prevent_initial_call=True,
     )
     # The one writer of the poll's pace and of the progress strip: an answer of the view callback
