@@ -860,7 +860,7 @@ def _register_shortlist(app, service: WindowService) -> None:
         entries = shortlist.entries()
         problems = shortlist.problems()
         table = layout.shortlist_children(
-            entries, view.case if view else None, problems[-1] if problems else ""
+            entries, view.case if view else None, problem=problems[-1] if problems else ""
         )
         return table, now, note_out, message
 
