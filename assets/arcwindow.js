@@ -91,7 +91,7 @@
     // flight at a time and no answer is dropped by the next tick's request. Returns the grid
     // status, the poll's disabled, interval and max_intervals, then the progress properties
     // named by `progressKeys`.
-    acceptPolled: function (answer, current, ticks, progressKeys) {
+    acceptGridAnswer: function (answer, current, ticks, progressKeys) {
       var keys = progressKeys || [];
       var nothing = [noUpdate(), noUpdate(), noUpdate(), noUpdate()].concat(
         keys.map(function () { return noUpdate(); }));
@@ -103,6 +103,14 @@
       var progress = answer.progress || {};
       return [status, stop, stop ? noUpdate() : answer.poll_ms, (ticks || 0) + 1].concat(
         keys.map(function (k) { return k in progress ? progress[k] : noUpdate(); }));
+    },
+
+    // The sequence page's poll: a status the poll moved on becomes the tab's status, unless the
+    // view changed while the poll was on its way (the new view has its own status already).
+    acceptPolled: function (polled, current) {
+      if (!polled || !current || polled.view !== current.view) { return noUpdate(); }
+      if (JSON.stringify(polled) === JSON.stringify(current)) { return noUpdate(); }
+      return polled;
     },
 
     // The poll's watchdog: a view still polling whose last poll has had no answer for

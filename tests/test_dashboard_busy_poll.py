@@ -117,7 +117,7 @@ def test_bp02_a_change_while_a_slow_poll_is_on_its_way_ends_on_the_new_view(busy
 _ACCEPT = """
 ([answer, current]) => {
   const keys = ["panel", "text"];
-  const out = window.arcwindow.acceptPolled(answer, current, 7, keys);
+  const out = window.arcwindow.acceptGridAnswer(answer, current, 7, keys);
   const none = window.dash_clientside.no_update;
   return out.map(v => v === none ? "no_update" : v);
 }
@@ -125,7 +125,7 @@ _ACCEPT = """
 
 
 def test_bp03_the_page_applies_an_answer_only_for_the_view_it_shows(busy_server, tabs):
-    """The page's gate (assets/arcwindow.js acceptPolled) on the two interleavings: an answer
+    """The page's gate (assets/arcwindow.js acceptGridAnswer) on the two interleavings: an answer
     for a view the tab has left changes nothing (it once disabled the new view's poll); an
     answer for the shown view moves the status on and arms exactly one more tick."""
     tab = tabs()

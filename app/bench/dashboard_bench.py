@@ -147,7 +147,7 @@ class DashClient:
         return status
 
     def accept(self, reply: dict | None) -> bool:
-        """Apply a view or poll answer as the page does (``acceptPolled`` in
+        """Apply a view or poll answer as the page does (``acceptGridAnswer`` in
         assets/arcwindow.js): only for the current view; True if it moved the status on."""
         answer = ((reply or {}).get("response") or {}).get("store-grid-polled", {}).get("data")
         current = self.values.get("store-grid-status.data")

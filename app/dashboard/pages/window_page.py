@@ -206,7 +206,7 @@ def _answer(
 ) -> dict[str, Any]:
     """What the view callback or a poll answers (the ``store-grid-polled`` data): for which view,
     the status moved on (None: unchanged), when to poll next (None: stop) and the progress
-    strip. The page applies it only while it still shows that view (``acceptPolled``), so an
+    strip. The page applies it only while it still shows that view (``acceptGridAnswer``), so an
     answer that arrives late, for a view the tab has left, changes nothing."""
     return {
         "view": view,
@@ -464,7 +464,7 @@ def _fill_controls(out: dict, service: WindowService, view: ViewState, case, my_
 
 def _register_map(app, service: WindowService) -> None:
     # The poll answers into its own store, never into the page's controls: the page applies an
-    # answer (``acceptPolled`` in assets/arcwindow.js) only while it shows the answer's view,
+    # answer (``acceptGridAnswer`` in assets/arcwindow.js) only while it shows the answer's view,
     # and arms exactly one more tick of the interval for each answer it applies. So one poll is
     # in flight at a time: Dash drops the answer of a request still in flight when the same
     # callback is asked again, and a poll ticking on its own clock on a server slower than the
@@ -957,8 +957,8 @@ def _register_clientside(app) -> None:
     # The one writer of the poll's pace and of the progress strip: an answer of the view callback
     # or of the poll, applied while the tab still shows its view (see ``_register_map``).
     app.clientside_callback(
-        "function(answer, current, ticks) { return window.arcwindow.acceptPolled(answer, current,"
-        f" ticks, {json.dumps(list(PROGRESS_OUTPUTS))}); }}",
+        "function(answer, current, ticks) { return window.arcwindow.acceptGridAnswer(answer,"
+        f" current, ticks, {json.dumps(list(PROGRESS_OUTPUTS))}); }}",
         Output("store-grid-status", "data", allow_duplicate=True),
         Output("interval-grid-poll", "disabled"),
         Output("interval-grid-poll", "interval"),
