@@ -84,12 +84,50 @@
       return noUpdate();
     },
 
-    // A status the poll moved on becomes the tab's grid status, unless the view changed while
-    // the poll was on its way (the new view has its own status already).
+    // An answer of the view callback or of the grid poll (window_page.py `_answer`), applied
+    // only while the tab shows the answer's view: a late answer for a view the tab has left
+    // changes nothing (the new view's own answer set its status, pace and progress). Each
+    // applied answer arms exactly one more tick of the poll (max_intervals), so one poll is in
+    // flight at a time and no answer is dropped by the next tick's request. Returns the grid
+    // status, the poll's disabled, interval and max_intervals, then the progress properties
+    // named by `progressKeys`.
+    acceptGridAnswer: function (answer, current, ticks, progressKeys) {
+      var keys = progressKeys || [];
+      var nothing = [noUpdate(), noUpdate(), noUpdate(), noUpdate()].concat(
+        keys.map(function () { return noUpdate(); }));
+      var view = current && typeof current.view === "string" ? current.view : "";
+      if (!answer || answer.view !== view) { return nothing; }
+      var status = answer.status && JSON.stringify(answer.status) !== JSON.stringify(current)
+        ? answer.status : noUpdate();
+      var stop = typeof answer.poll_ms !== "number";
+      var progress = answer.progress || {};
+      return [status, stop, stop ? noUpdate() : answer.poll_ms, (ticks || 0) + 1].concat(
+        keys.map(function (k) { return k in progress ? progress[k] : noUpdate(); }));
+    },
+
+    // The sequence page's poll: a status the poll moved on becomes the tab's status, unless the
+    // view changed while the poll was on its way (the new view has its own status already).
     acceptPolled: function (polled, current) {
       if (!polled || !current || polled.view !== current.view) { return noUpdate(); }
       if (JSON.stringify(polled) === JSON.stringify(current)) { return noUpdate(); }
       return polled;
+    },
+
+    // The poll's watchdog: a view still polling whose last poll has had no answer for
+    // POLL_STALL_MS (a request lost on the network or failed on the server) gets one more tick,
+    // whose request replaces the lost one; otherwise the poll would wait for ever.
+    pollWatchdog: function (beat, ticks, maxTicks, disabled) {
+      var POLL_STALL_MS = 20000;
+      var now = Date.now();
+      var watch = window.arcwindow.pollWatch;
+      var armed = typeof maxTicks === "number" && maxTicks >= 0 && ticks < maxTicks;
+      if (!watch || disabled || armed || watch.ticks !== ticks) {
+        window.arcwindow.pollWatch = { ticks: ticks, since: now };
+        return noUpdate();
+      }
+      if (now - watch.since < POLL_STALL_MS) { return noUpdate(); }
+      watch.since = now;
+      return (ticks || 0) + 1;
     },
 
     // The sequence page's view in the address bar (replaced, never pushed); once the shown

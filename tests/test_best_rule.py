@@ -76,3 +76,51 @@ def test_cli_best_says_which_rule_chose_the_arc(capsys):
     assert main(["best", "orrery_jupiter_flyby", "--metric", "dv_total_km_s", "--no-cache"]) == 0
     out = capsys.readouterr().out
     assert "does not rank them" in out and "lowest C3" in out
+
+
+@pytest.fixture(scope="module")
+def relay():
+    """Satellites of Earth with several revolutions: every cell holds several arcs, all of
+    the same TOF (the cell's), so a TOF ranking ties in every cell."""
+    case = load("kestrel_relay_leo").with_changes(
+        **{"window.departure_step_days": 0.25, "window.arrival_step_days": 0.25}
+    )
+    return case, compute_window(case)
+
+
+def test_each_cells_best_arc_follows_the_one_rule(relay):
+    """The best arc of each cell (the map's "best arc of each cell") once took the first slot
+    whenever the metric tied, as for TOF in every cell; it now follows WindowGrid.best_cell's
+    rule, restricted to that cell."""
+    _, grid = relay
+    # a cell's arcs within limits if it has any, else its other arcs (as best_slot ranks them)
+    qualifying = np.where(grid.within.any(axis=-1, keepdims=True), grid.within, grid.converged)
+    for metric in ("tof_days", "dv_total_km_s"):
+        slots = grid.best_slot(metric)
+        checked = 0
+        for i, j in zip(*np.nonzero(qualifying.sum(axis=-1) > 1), strict=True):
+            mask = np.zeros_like(grid.within)
+            mask[i, j] = qualifying[i, j]
+            assert grid.best_cell(metric, mask=mask) == (i, j, slots[i, j]), (metric, i, j)
+            checked += 1
+            if checked >= 40:
+                break
+        assert checked >= 1
+    tof_slots = grid.best_slot("tof_days")
+    ties = qualifying.sum(axis=-1) > 1
+    assert (tof_slots[ties] != 0).any()  # the tie-break decided somewhere, not the slot order
+
+
+def test_one_cells_arcs_are_picked_by_the_same_rule(relay):
+    """select_arc (the arc and launch commands, the dashboard's selected cell) once picked the
+    first arc among equal metrics; it now agrees with the grid's per-cell best slot."""
+    from solver.window.cell import select_arc, solve_cell
+
+    case, grid = relay
+    slots = grid.best_slot("tof_days")
+    i, j = (int(k[0]) for k in np.nonzero((grid.within.sum(axis=-1) > 1) & (slots != 0)))
+    arcs = solve_cell(case, float(grid.departure_jd_tdb[i]), float(grid.arrival_jd_tdb[j]))
+    chosen = select_arc(arcs, metric="tof_days")
+    assert arcs.index(chosen) == slots[i, j]
+    within = [a for a in arcs if a.within]
+    assert chosen.metrics["dv_total_km_s"] == min(a.metrics["dv_total_km_s"] for a in within)

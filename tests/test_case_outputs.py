@@ -197,3 +197,16 @@ def test_dashboard_reads_the_decision_from_the_solver(tmp_path):
     assert "Departure burn" in headings and "Phasing" in headings
     rows = [label for _h, label in detail_rows(arc_details(case, arc, {}))]
     assert "C3" not in rows and "DLA" not in rows
+
+
+@pytest.mark.parametrize(
+    ("sample", "launch_limits"),
+    [("tallis_rendezvous", True), ("vesper_venus_orbiter", True), ("kestrel_relay_leo", False)],
+)
+def test_launch_limits_fit_only_a_launch_from_a_planet_about_the_sun(sample, launch_limits):
+    """A C3 or |DLA| limit and a launch vehicle limit what a launch vehicle delivers (common
+    practice); a transfer between satellites of a planet has none to limit."""
+    from solver.window.outputs import case_outputs, launch_limit_keys
+
+    assert case_outputs(load(sample)).launch_limits is launch_limits
+    assert launch_limit_keys() == ("limits.c3_max_km2_s2", "limits.dla_max_deg")

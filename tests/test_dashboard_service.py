@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import base64
 import json
+import sqlite3
 import threading
 import time
 import tracemalloc
@@ -157,7 +158,7 @@ def test_upload_is_stored_once_by_content_hash_and_checked_when_read(tmp_path):
     assert first == content_id(text.encode()) and catalogue.upload_ids() == [first]
     other = CaseCatalogue(SAMPLES, tmp_path)  # another server process on the same data folder
     assert other.load(first).title == "Vesper Venus orbiter, 2031 opportunity"
-    assert not list(tmp_path.glob(".upload-*"))  # no temporary file left behind
+    assert not list(tmp_path.glob(".*.tmp"))  # no temporary file left behind
     # A damaged file is refused and reported, never trusted; uploading it again repairs it.
     stored = tmp_path / f"{first}.toml"
     stored.write_text(text.replace("2031", "2032", 1))
@@ -166,6 +167,39 @@ def test_upload_is_stored_once_by_content_hash_and_checked_when_read(tmp_path):
         fresh.load(first)
     assert fresh.add_upload("again.toml", data_url(text)) == first
     assert CaseCatalogue(SAMPLES, tmp_path).load(first).title.startswith("Vesper")
+
+
+def test_an_upload_is_stored_whole_or_not_at_all(tmp_path, monkeypatch):
+    """Uploads go through the project's atomic writer (solver/files/atomic.py): a disk that
+    fails before the rename leaves no case file and no temporary file, and the stored case
+    another upload made before is untouched."""
+    import app.dashboard.case_catalogue as case_catalogue
+    import solver.files.atomic as atomic
+
+    written = []
+
+    def spy(path, **kwargs):
+        written.append(Path(path).name)
+        return atomic.atomic_output(path, **kwargs)
+
+    monkeypatch.setattr(case_catalogue, "atomic_output", spy)
+    catalogue = CaseCatalogue(SAMPLES, tmp_path)
+    kept = catalogue.add_upload(
+        "kept.toml", data_url((SAMPLES / "tallis_rendezvous.toml").read_text())
+    )
+    before = (tmp_path / f"{kept}.toml").read_bytes()
+    assert written == [f"{kept}.toml"]  # the one writer every file of the project goes through
+
+    def full_disk(fd):
+        raise OSError(28, "No space left on device")
+
+    text = (SAMPLES / "vesper_venus_orbiter.toml").read_text()
+    with monkeypatch.context() as disk, pytest.raises(OSError, match="No space left"):
+        disk.setattr(atomic.os, "fsync", full_disk)
+        catalogue.add_upload("mine.toml", data_url(text))
+    assert catalogue.upload_ids() == [kept]
+    assert (tmp_path / f"{kept}.toml").read_bytes() == before
+    assert not list(tmp_path.glob(".*.tmp"))
 
 
 def test_uploads_are_listed_per_viewer_not_for_everyone(tmp_path):
@@ -223,9 +257,53 @@ def test_element_only_case_in_year_one_gets_a_message(tmp_path):
         text = text.replace(a, b)
     catalogue = CaseCatalogue(SAMPLES, tmp_path)
     # Refused by the case parser itself: element bodies have a date range of their own
-    # (solver/ephemeris/bodies.py), narrower still on the dashboard (DATE_RANGE).
+    # (solver/ephemeris/bodies.py), the one rule the dashboard reads too.
     with pytest.raises(InputError, match=r"window\.departure_start = '0001-03-01T00:00:00'.*range"):
         catalogue.add_upload("old.toml", data_url(text))
+
+
+def _element_only_case(year: int) -> str:
+    """The relay sample about an invented element-defined planet P0, in another year."""
+    text = (SAMPLES / "kestrel_relay_leo.toml").read_text()
+    text = text.replace(
+        'central_body = "earth"\ndeparture_body', 'central_body = "P0"\ndeparture_body'
+    )
+    text = text.replace("[[bodies]]", ELEMENT_PLANET + "\n[[bodies]]", 1)
+    text = text.replace('central_body = "earth"\nframe', 'central_body = "P0"\nframe')
+    return text.replace("2031-", f"{year:04d}-")
+
+
+@pytest.mark.parametrize("year", [1500, 2900])
+def test_element_only_cases_take_the_engines_date_range_on_the_dashboard(tmp_path, year):
+    """The dashboard once held element-only cases to 1800-2200 while the engine accepts
+    1000-3000 for element bodies: one rule now (solver/ephemeris/bodies.py), and such a case
+    is shown like any other."""
+    client, service, _ = _client(tmp_path)
+    case_id = service.catalogue.add_upload("far.toml", data_url(_element_only_case(year)))
+    client.open_page(f"?case={case_id}")
+    assert client.settle(60.0)
+    assert client.values["graph-window-map.figure"]["data"][0]["type"] == "heatmap"
+    assert str(year) in json.dumps(client.values["div-details-arc.children"])
+    assert set(client.statuses) == {200}
+    service.shutdown()
+
+
+def test_a_date_outside_the_element_range_is_refused_on_its_control(tmp_path):
+    """A slider moved outside what the engine accepts: one line on the date control naming the
+    field, the value and the accepted range; the view keeps its last good dates."""
+    client, service, _ = _client(tmp_path)
+    case_id = service.catalogue.add_upload("far.toml", data_url(_element_only_case(2900)))
+    client.open_page(f"?case={case_id}")
+    client.settle(60.0)
+    before = client.values["store-view-query.data"]
+    end = iso_to_unix_days("3000-06-01")
+    client.values["slider-arrival-range.value"] = [end - 10.0, end]
+    assert client.sync("slider-arrival-range.value") == 200
+    error = client.values["store-control-errors.data"]["arr"]
+    assert "window.arrival_start" in error and "3000-05-22" in error
+    assert "1000-01-01 to 3000-01-01" in error
+    assert client.values["store-view-query.data"] == before
+    service.shutdown()
 
 
 ELEMENT_PLANET = """[[bodies]]
@@ -769,6 +847,31 @@ def test_inputs_that_change_together_are_all_heard(tmp_path):
     service.shutdown()
 
 
+def test_a_shortlist_that_cannot_save_says_so_on_the_page(tmp_path, monkeypatch):
+    """A full or locked store once answered the "Add" click with a server error and a line in
+    the server's log only; the page now says why in one line, and keeps the note for a retry."""
+    import app.dashboard.shortlist as shortlist_module
+
+    client, service, _ = _client(tmp_path)
+    client.open_page("?case=vesper_venus_orbiter")
+    client.settle(60.0)
+
+    def full(*args, **kwargs):
+        raise sqlite3.OperationalError("database or disk is full")
+
+    monkeypatch.setattr(shortlist_module.Shortlist, "_ensure", full)
+    client.values["button-shortlist-add.n_clicks"] = 1
+    client.values["input-shortlist-note.value"] = "check the DLA"
+    status, reply = client.call("div-shortlist-table.children", ["button-shortlist-add.n_clicks"])
+    assert status == 200
+    message = json.dumps(reply["response"]["div-message-shortlist"]["children"])
+    assert "Shortlist: not kept" in message and "full" in message
+    assert "input-shortlist-note" not in reply["response"]  # the note stays for another try
+    monkeypatch.undo()
+    assert service.shortlist.entries() == []
+    service.shutdown()
+
+
 def test_upload_over_http_joins_the_viewers_list_and_is_shown(tmp_path):
     client, service, _ = _client(tmp_path)
     client.open_page("")
@@ -790,4 +893,31 @@ def test_upload_over_http_joins_the_viewers_list_and_is_shown(tmp_path):
     assert status == 200 and client.values["store-my-cases.data"] == []
     assert reply["response"]["dropdown-case"]["value"] == "tallis_rendezvous"
     assert all(o["value"] != case_id for o in client.values["dropdown-case.options"])
+    service.shutdown()
+
+
+def test_a_satellite_case_hides_the_launch_only_controls_and_says_why(tmp_path):
+    """docs/dashboard.md: controls that do not fit the case (C3 and DLA for a transfer that
+    leaves a satellite) are not offered. A launch from a planet about the Sun shows them; a
+    transfer between satellites of Earth hides them with one line saying why."""
+    from app.dashboard.controls import LAUNCH_FIELD_KEYS, launch_fields
+
+    assert LAUNCH_FIELD_KEYS == ("limits.c3_max_km2_s2", "limits.dla_max_deg", "spacecraft.vehicle")
+    styles, hint = launch_fields(True, "Sun")
+    assert hint == "" and all(style == {} for style in styles.values())
+    styles, hint = launch_fields(False, "Earth")
+    assert set(styles) == set(LAUNCH_FIELD_KEYS)
+    assert all(style == {"display": "none"} for style in styles.values())
+    assert "C3 max" in hint and "|DLA| max" in hint and "launch vehicle" in hint
+    assert "Earth" in hint
+
+    client, service, _ = _client(tmp_path)
+    client.open_page("?case=kestrel_relay_leo")
+    assert client.values["field-c3max.style"] == {"display": "none"}
+    assert client.values["field-dlamax.style"] == {"display": "none"}
+    assert client.values["field-vehicle.style"] == {"display": "none"}
+    assert "Earth" in client.values["text-launch-hint.children"]
+    client.open_page("?case=tallis_rendezvous")
+    assert client.values["field-c3max.style"] == {} == client.values["field-dlamax.style"]
+    assert client.values["text-launch-hint.children"] == ""
     service.shutdown()

@@ -169,3 +169,31 @@ def test_ctrl_c_stops_cleanly_with_the_best_found_so_far():
     assert process.returncode == 130, err[-2000:]
     assert "#1 " in out and "stopped early, the best found so far" in out
     assert "Traceback" not in err
+
+
+def test_out_and_oem_make_missing_folders(tmp_path):
+    """Like `grid --out`: the folders of --out and --oem are made (they once failed with a
+    traceback after the whole search)."""
+    out = tmp_path / "new" / "deeper" / "found.csv"
+    oem = tmp_path / "other" / "best.oem"
+    code = main(
+        ["sequence", "corrow_lissa_tour", "--top", "1", "--out", str(out), "--oem", str(oem),
+         *QUICK]
+    )  # fmt: skip
+    assert code == 0 and out.is_file() and oem.is_file()
+    assert "CCSDS_OEM_VERS" in oem.read_text()
+
+
+@pytest.mark.parametrize("option", ["--out", "--oem"])
+def test_bad_output_paths_get_one_line_before_any_search(tmp_path, capsys, option):
+    blocker = tmp_path / "a_file"
+    blocker.write_text("in the way")
+    cases = [str(blocker / "x.csv"), str(tmp_path)]  # a file where a folder must go; a folder
+    if option == "--out":
+        cases.append(str(tmp_path / "found.txt"))  # neither .csv nor .parquet
+    for bad in cases:
+        code = main(["sequence", "corrow_lissa_tour", option, bad, *QUICK])
+        err = capsys.readouterr().err
+        assert code == 2, err
+        lines = [line for line in err.splitlines() if line.strip()]
+        assert len(lines) == 1 and option in lines[0] and bad in lines[0], err

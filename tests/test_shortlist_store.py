@@ -297,3 +297,48 @@ def test_writers_in_several_processes_lose_nothing(tmp_path):
         assert process.exitcode == 0
     notes = {e.note for e in Shortlist(tmp_path / STORE_NAME).entries()}
     assert notes == {"seed"} | {f"w{w}-{k}" for w in range(4) for k in range(40)}
+
+
+# ---------------------------------------------------------------------------------------------
+# A store that refuses a change
+
+
+def test_a_locked_store_refuses_with_one_line_and_keeps_what_it_had(tmp_path, monkeypatch):
+    """Another writer holding the store's lock past the busy timeout: the add is refused with
+    one line saying so (it once reached the page as a server error), the entries are as they
+    were, and the line is among the store's problems."""
+    import app.dashboard.shortlist as module
+
+    store = Shortlist(tmp_path / STORE_NAME)
+    store.add(**ENTRY, note="first", author="RM")
+    monkeypatch.setattr(module, "_BUSY_TIMEOUT_S", 0.2)
+    other = sqlite3.connect(tmp_path / STORE_NAME, isolation_level=None)
+    other.execute("BEGIN IMMEDIATE")  # holds the write lock
+    try:
+        with pytest.raises(module.ShortlistUnavailable) as info:
+            store.add(**ENTRY, note="second", author="RM")
+        with pytest.raises(module.ShortlistUnavailable):
+            store.remove(store.entries()[0].id)
+    finally:
+        other.execute("ROLLBACK")
+        other.close()
+    line = str(info.value)
+    assert "\n" not in line and "not kept" in line and "busy" in line
+    assert [e.note for e in store.entries()] == ["first"]
+    assert line in store.problems()
+
+
+@pytest.mark.parametrize(
+    ("error", "words"),
+    [
+        (sqlite3.OperationalError("database or disk is full"), "full"),
+        (sqlite3.OperationalError("attempt to write a readonly database"), "read-only"),
+        (sqlite3.DatabaseError("database disk image is malformed"), "damaged"),
+        (OSError(28, "No space left on device"), "full"),
+    ],
+)
+def test_each_store_failure_is_named_in_one_line(error, words):
+    from app.dashboard.shortlist import store_problem
+
+    line = store_problem(error, "kept")
+    assert words in line and "\n" not in line and line.startswith("Shortlist: not kept")

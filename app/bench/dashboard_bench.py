@@ -121,7 +121,8 @@ class DashClient:
         """The view callback; with ``redraw``, the map and the selection follow a new status
         (as the page does)."""
         before = self.values.get("store-grid-status.data")
-        status = self.call("store-view-state.data", [changed])[0]
+        status, reply = self.call("store-view-state.data", [changed])
+        self.accept(reply)
         if redraw and status == 200 and self.values.get("store-grid-status.data") != before:
             self.redraw()
         return status
@@ -140,18 +141,34 @@ class DashClient:
         self.values["interval-grid-poll.n_intervals"] = (
             int(self.values.get("interval-grid-poll.n_intervals") or 0) + 1
         )
-        before = self.values.get("store-grid-status.data")
         status, reply = self.call("store-grid-polled.data", [changed])
-        polled = ((reply or {}).get("response") or {}).get("store-grid-polled", {}).get("data")
-        if (
-            isinstance(polled, dict)
-            and isinstance(before, dict)
-            and polled.get("view") == before.get("view")
-            and polled != before
-        ):
-            self.values["store-grid-status.data"] = polled
+        if self.accept(reply):
             self.redraw()
         return status
+
+    def accept(self, reply: dict | None) -> bool:
+        """Apply a view or poll answer as the page does (``acceptGridAnswer`` in
+        assets/arcwindow.js): only for the current view; True if it moved the status on."""
+        answer = ((reply or {}).get("response") or {}).get("store-grid-polled", {}).get("data")
+        current = self.values.get("store-grid-status.data")
+        view = current.get("view", "") if isinstance(current, dict) else ""
+        if not isinstance(answer, dict) or answer.get("view") != view:
+            return False
+        poll_ms = answer.get("poll_ms")
+        self.values["interval-grid-poll.disabled"] = not isinstance(poll_ms, int)
+        if isinstance(poll_ms, int):
+            self.values["interval-grid-poll.interval"] = poll_ms
+        from app.dashboard.pages.window_page import PROGRESS_OUTPUTS
+
+        for name, value in (answer.get("progress") or {}).items():
+            if name in PROGRESS_OUTPUTS:
+                component, prop = PROGRESS_OUTPUTS[name]
+                self.values[f"{component}.{prop}"] = value
+        status = answer.get("status")
+        if isinstance(status, dict) and status != current:
+            self.values["store-grid-status.data"] = status
+            return True
+        return False
 
     @property
     def polling(self) -> bool:

@@ -14,7 +14,7 @@ import argparse
 import sys
 import time
 
-from app.commands._common import CAUTION
+from app.commands._common import CAUTION, output_file
 
 
 def add_parser(subparsers: argparse._SubParsersAction) -> None:
@@ -161,6 +161,10 @@ def run(args: argparse.Namespace) -> int:
     from solver.sequence.spec import load_sequence_case
 
     sequence_case = load_sequence_case(resolve_sequence_case_path(args.case))
+    # Output paths are checked (and their folders made) before any search: a bad path is one
+    # line now, not a traceback after minutes of work.
+    out_path = output_file(args.out, "--out", (".csv", ".parquet")) if args.out else None
+    oem_path = output_file(args.oem, "--oem", None) if args.oem else None
     prepare_sequence_solver()
     if args.years or args.targets:
         from app.commands.sequence_survey import run_survey
@@ -209,16 +213,16 @@ def run(args: argparse.Namespace) -> int:
             + ("; stopped early, the best found so far" if interrupted else "")
         )
 
-    if args.out:
+    if out_path is not None:
         from solver.files.sequence_export import write_candidates
 
-        write_candidates(sequence_case, candidates, args.out)
-    if args.oem and candidates:
+        write_candidates(sequence_case, candidates, out_path)
+    if oem_path is not None and candidates:
         from solver.files.atomic import write_bytes_atomic
         from solver.files.sequence_export import candidate_oem_text
 
         text = candidate_oem_text(sequence_case, candidates[0])
-        write_bytes_atomic(args.oem, text.encode("ascii"), checksum=True)
+        write_bytes_atomic(oem_path, text.encode("ascii"), checksum=True)
 
     if args.json:
         from solver.files.sequence_export import candidate_json

@@ -7,8 +7,9 @@ folders); nothing a page sends is ever joined into a path, so no other file on t
 be read through a case reference.
 
 **Uploads are content-addressed.** An uploaded (or survey-opened) case is stored under the first
-12 hex digits of the SHA-256 of its text (``upload-<hash>.toml``), written atomically (temporary
-file in the same folder, fsync, rename), so a link that names it works for every viewer and the
+12 hex digits of the SHA-256 of its text (``upload-<hash>.toml``), written through the project's
+atomic writer (:func:`solver.files.atomic.atomic_output`: temporary file in the same folder,
+fsync, rename), so a link that names it works for every viewer and the
 same file uploaded twice is one case. When it is read, its hash is checked again: a damaged file
 is refused and reported, never trusted.
 
@@ -31,12 +32,12 @@ import hashlib
 import logging
 import os
 import re
-import tempfile
 import threading
 from collections import OrderedDict
 from pathlib import Path
 
 from solver.errors import InputError
+from solver.files.atomic import atomic_output, sweep_temporaries
 from solver.window.case import Case, dumps_toml, parse_case
 from solver.window.grid import check_grid_size
 
@@ -47,10 +48,6 @@ UPLOAD_PREFIX = "upload-"
 UPLOAD_ID_RE = re.compile(r"upload-[0-9a-f]{12}")
 MAX_MY_CASES = 50
 """Uploads a viewer's picker lists at most (the most recent)."""
-DATE_RANGE = ("1800-01-01", "2200-12-31")
-"""Window dates the dashboard shows: the span of the JPL DE423 ephemeris. Cases of bodies given
-by orbital elements alone have no ephemeris span of their own, so the dashboard holds them to
-this one (its date axes, sliders and UTC labels are made for it)."""
 _EFFECTIVE_CACHE_SIZE = 64
 
 _LOG = logging.getLogger(__name__)
@@ -59,22 +56,6 @@ _LOG = logging.getLogger(__name__)
 def content_id(raw: bytes) -> str:
     """The id of an uploaded case's text: ``upload-`` and 12 hex digits of its SHA-256."""
     return UPLOAD_PREFIX + hashlib.sha256(raw).hexdigest()[:12]
-
-
-def check_dates(case: Case) -> None:
-    """InputError when a window date lies outside :data:`DATE_RANGE`."""
-    from solver.ephemeris.timescales import utc_to_jd_tdb
-
-    lo, hi = (float(utc_to_jd_tdb(d)) for d in DATE_RANGE)
-    for key, jd in (
-        ("window.departure_start", case.departure_start_jd_tdb),
-        ("window.departure_end", case.departure_end_jd_tdb),
-        ("window.arrival_start", case.arrival_start_jd_tdb),
-        ("window.arrival_end", case.arrival_end_jd_tdb),
-    ):
-        if not lo <= jd <= hi + 1.0:
-            text = getattr(case, key.split(".", 1)[1])
-            raise InputError(key, text, f"a date from {DATE_RANGE[0]} to {DATE_RANGE[1]}")
 
 
 class CaseCatalogue:
@@ -225,8 +206,9 @@ class CaseCatalogue:
             return False
 
     def effective(self, view: ViewState) -> Case:
-        """The case a view shows: its file with the view's changes, validated, its dates within
-        :data:`DATE_RANGE` and its grid size checked (arithmetic, before anything is built)."""
+        """The case a view shows: its file with the view's changes, validated by the engine
+        (window dates within each body's ephemeris or element range, the one rule: solver/
+        ephemeris/bodies.py) and its grid size checked (arithmetic, before anything is built)."""
         key = view.case_part()
         with self._lock:
             if key in self._effective:
@@ -234,7 +216,6 @@ class CaseCatalogue:
                 return self._effective[key]
         base = self.load(view.case)
         case = base.with_changes(**view.change_dict()) if view.changes else base
-        check_dates(case)
         check_grid_size(case)
         with self._lock:
             self._effective[key] = case
@@ -249,9 +230,9 @@ class CaseCatalogue:
         Raises
         ------
         InputError
-            Empty, too large, not text, not TOML, not a case the engine accepts, dates outside
-            the dashboard's range or a grid over the cap (the message names the key and what is
-            accepted).
+            Empty, too large, not text, not TOML, not a case the engine accepts (its dates
+            within each body's ephemeris or element range) or a grid over the cap (the
+            message names the key and what is accepted).
         """
         name = clean_filename(filename)
         if not isinstance(contents, str) or "," not in contents:
@@ -284,7 +265,6 @@ class CaseCatalogue:
         except UnicodeDecodeError:
             raise InputError("upload", name, "a UTF-8 text TOML case file") from None
         case = parse_case(text, source_path=name)
-        check_dates(case)
         if "sequence" in _toml(text):
             from solver.sequence.spec import parse_sequence_case
 
@@ -295,7 +275,6 @@ class CaseCatalogue:
 
     def add_case(self, case: Case) -> str:
         """Store a case built by the server (a survey target's window); returns its case id."""
-        check_dates(case)
         check_grid_size(case)
         return self._store(dumps_toml(case).encode("utf-8"))
 
@@ -311,19 +290,9 @@ class CaseCatalogue:
                 pass
             _LOG.warning("replacing damaged upload %s with a fresh copy", case_id)
         self.uploads_dir.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(dir=self.uploads_dir, prefix=".upload-", suffix=".tmp")
-        try:
-            with os.fdopen(fd, "wb") as handle:
-                handle.write(raw)
-                handle.flush()
-                os.fsync(handle.fileno())
-            os.replace(tmp, target)
-        except BaseException:
-            try:
-                os.unlink(tmp)
-            except FileNotFoundError:
-                pass
-            raise
+        sweep_temporaries(self.uploads_dir)  # what writers killed mid-write left (hours old)
+        with atomic_output(target) as handle:  # whole or not at all; fsynced, then renamed
+            handle.write(raw)
         with self._lock:
             self._loaded.pop(case_id, None)
         return case_id
@@ -374,12 +343,10 @@ def _size(n: int) -> str:
 
 
 __all__ = [
-    "DATE_RANGE",
     "MAX_UPLOAD_BYTES",
     "UPLOAD_ID_RE",
     "UPLOAD_PREFIX",
     "CaseCatalogue",
-    "check_dates",
     "clean_filename",
     "content_id",
     "forget",

@@ -21,6 +21,7 @@ from typing import Any
 from dash import dcc, html
 
 from solver.errors import InputError
+from solver.window.outputs import launch_setting_keys
 from solver.window.settings import SETTINGS, Setting
 
 PANELS = {
@@ -106,6 +107,9 @@ CONTROLS: tuple[Control, ...] = tuple(
 )
 CONTROL_BY_KEY: dict[str, Control] = {c.key: c for c in CONTROLS}
 CONTROL_IDS: dict[str, str] = {c.key: c.id for c in CONTROLS}
+LAUNCH_FIELD_KEYS: tuple[str, ...] = tuple(k for k in launch_setting_keys() if k in CONTROL_BY_KEY)
+"""Controls that fit only a launch (C3 max, |DLA| max, launch vehicle), hidden for a satellite
+case."""
 """Control ids by the dotted case key they change."""
 
 
@@ -207,9 +211,40 @@ def control_field(control: Control) -> html.Div:
         )
     return html.Div(
         [label(s.label, s.unit, control.id, label_id), widget, error_text(s.url)],
+        id=f"field-{s.url}",
         className="aw-field",
         **{"data-setting": s.key},
     )
+
+
+def launch_fields(launch_limits: bool, central: str) -> tuple[dict[str, dict], str]:
+    """Which launch-only controls a case shows, and why the others are not offered.
+
+    Parameters
+    ----------
+    launch_limits : bool
+        ``CaseOutputs.launch_limits`` of the case (a launch from a planet about the Sun).
+    central : str
+        The case's central body, as shown.
+
+    Returns
+    -------
+    styles : dict
+        The style of each launch-only control's field (:data:`LAUNCH_FIELD_KEYS`), by key.
+    hint : str
+        One line saying why they are hidden ("" when they are shown).
+    """
+    shown = {} if launch_limits else {"display": "none"}
+    styles = {key: shown for key in LAUNCH_FIELD_KEYS}
+    if launch_limits:
+        return styles, ""
+    labels = [CONTROL_BY_KEY[key].label for key in LAUNCH_FIELD_KEYS]
+    names = ", ".join(labels[:-1]) + " and " + labels[-1] if len(labels) > 1 else labels[0]
+    hint = (
+        f"{names} are not offered: this transfer is about {central}, between bodies in orbit "
+        "about it, so no launch vehicle leaves the departure body."
+    )
+    return styles, hint
 
 
 def controls_of(panel: str) -> list[Control]:
@@ -223,6 +258,7 @@ __all__ = [
     "CONTROL_IDS",
     "EMPTY_OPTIONS_TEXT",
     "ERROR_TARGETS",
+    "LAUNCH_FIELD_KEYS",
     "PANELS",
     "SLIDERS",
     "SLIDER_BY_URL",
@@ -234,4 +270,5 @@ __all__ = [
     "error_target",
     "error_text",
     "label",
+    "launch_fields",
 ]

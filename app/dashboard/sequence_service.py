@@ -42,7 +42,6 @@ from solver.sequence.result import Candidate
 from solver.sequence.spec import SequenceCase, sequence_case_from_dict
 
 from . import figures, sequence_figures
-from .case_catalogue import check_dates
 from .display_data import display_name
 from .grid_jobs import Ticket, Work
 from .sequence_display import (
@@ -145,8 +144,8 @@ class SequenceService:
         if not self.catalogue.is_sequence(view.case):
             raise InputError("case", view.case, "a case with a [sequence] section")
         document = apply_changes(self.catalogue.document(view.case), view.change_dict())
+        # validated by the engine, dates included (each body's ephemeris or element range)
         sequence_case = sequence_case_from_dict(document, source_path=f"{view.case}.toml")
-        check_dates(sequence_case.case)
         return self._cases.put(key, sequence_case)
 
     def view_from_url(self, search: str | None) -> tuple[SequenceView, SequenceCase, list[str]]:

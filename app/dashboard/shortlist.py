@@ -64,6 +64,7 @@ _BRANCHES = frozenset({"single", "low", "high"})
 _MAX_TEXT_CHARS = 300
 _MAX_VIEW_CHARS = 2000
 _BUSY_TIMEOUT_S = 30.0
+_MAX_NOTES = 20
 
 _LOG = logging.getLogger(__name__)
 
@@ -196,6 +197,35 @@ def validated_entry(data: Any) -> ShortlistEntry:
     if not isinstance(values.get("extra", {}), dict):
         raise ValueError("extra is not a table")
     return ShortlistEntry(**values)
+
+
+class ShortlistUnavailable(Exception):
+    """The store refused or failed a change (locked, full, read-only, damaged); the message is
+    one line for the page, saying what happened and that nothing was half written."""
+
+
+def store_problem(exc: BaseException, doing: str) -> str:
+    """One line for a failed change of the store, by what SQLite or the system said.
+
+    Parameters
+    ----------
+    exc : sqlite3.Error or OSError
+        What the store raised.
+    doing : str
+        What was being done ("kept", "removed").
+    """
+    text = str(exc).lower()
+    if "locked" in text or "busy" in text:
+        why = "the store is busy with another writer for too long; try again in a moment"
+    elif "full" in text or getattr(exc, "errno", None) == 28:
+        why = "the server's data folder is full; ask whoever runs the server to free space"
+    elif "readonly" in text or "read-only" in text or getattr(exc, "errno", None) in (13, 30):
+        why = "the server may not write to its data folder (read-only or no permission)"
+    elif "malformed" in text or "not a database" in text or "corrupt" in text:
+        why = "the store is damaged; restart the server to set it aside and start a new one"
+    else:
+        why = str(exc).splitlines()[0][:160] if str(exc) else type(exc).__name__
+    return f"Shortlist: not {doing}, {why}. Nothing was half written."
 
 
 class Shortlist:
@@ -413,30 +443,40 @@ class Shortlist:
 
     def _note(self, message: str) -> None:
         _LOG.warning("shortlist: %s", message)
-        self._notes.append(message)
+        if message not in self._notes:  # a store that keeps failing is one note, not one a poll
+            self._notes = [*self._notes, message][-_MAX_NOTES:]
 
     # -- reading ---------------------------------------------------------------------------
+    def _exists(self) -> bool:
+        """Whether there is a store to read (opened once); a store that cannot be opened is
+        noted in :meth:`problems` and read as empty."""
+        try:
+            return self._ensure(create=False)
+        except (sqlite3.Error, OSError) as exc:
+            self._note(f"Shortlist: the store could not be opened ({str(exc)[:160]}).")
+            return False
+
     def version(self) -> str:
         """Changes whenever an entry is added or removed (a revision counter in the store)."""
-        if not self._ensure(create=False):
+        if not self._exists():
             return "empty"
         try:
             with self._connection() as connection:
                 row = connection.execute("SELECT value FROM meta WHERE key = 'revision'").fetchone()
-        except sqlite3.DatabaseError as exc:
+        except sqlite3.Error as exc:
             return f"unreadable-{type(exc).__name__}"
         return f"r{row[0]}" if row else "empty"
 
     def _rows(self) -> list[tuple[str, str, str]]:
-        if not self._ensure(create=False):
+        if not self._exists():
             return []
         try:
             with self._connection() as connection:
                 return connection.execute(
                     "SELECT id, record, sha256 FROM entries ORDER BY seq"
                 ).fetchall()
-        except sqlite3.DatabaseError as exc:
-            self._note(f"the shortlist store could not be read ({exc})")
+        except sqlite3.Error as exc:
+            self._note(f"Shortlist: the store could not be read ({str(exc)[:160]}).")
             return []
 
     def entries(self) -> list[ShortlistEntry]:
@@ -462,16 +502,24 @@ class Shortlist:
 
     # -- writing ---------------------------------------------------------------------------
     @contextlib.contextmanager
-    def _write(self) -> Iterator[sqlite3.Connection]:
-        self._ensure(create=True)
-        with self._connection() as connection:
-            connection.execute("BEGIN IMMEDIATE")
-            try:
-                yield connection
-                connection.execute("COMMIT")
-            except BaseException:
-                connection.execute("ROLLBACK")
-                raise
+    def _write(self, doing: str) -> Iterator[sqlite3.Connection]:
+        """One transaction; a store that refuses or fails it raises ShortlistUnavailable (the
+        transaction rolled back: nothing half written), also noted in :meth:`problems`."""
+        try:
+            self._ensure(create=True)
+            with self._connection() as connection:
+                connection.execute("BEGIN IMMEDIATE")
+                try:
+                    yield connection
+                    connection.execute("COMMIT")
+                except BaseException:
+                    with contextlib.suppress(sqlite3.Error):
+                        connection.execute("ROLLBACK")
+                    raise
+        except (sqlite3.Error, OSError) as exc:
+            line = store_problem(exc, doing)
+            self._note(line)
+            raise ShortlistUnavailable(line) from exc
 
     def add(self, **values) -> ShortlistEntry:
         """Keep an arc; ``values`` are the entry fields but ``id`` and ``created_utc``.
@@ -493,7 +541,7 @@ class Shortlist:
         except ValueError as exc:
             raise InputError("shortlist entry", entry.id, f"a valid entry ({exc})") from None
         author_key = entry.author.strip().casefold()
-        with self._write() as connection:
+        with self._write("kept") as connection:
             mine = connection.execute(
                 "SELECT COUNT(*) FROM entries WHERE author_key = ?", (author_key,)
             ).fetchone()[0]
@@ -518,9 +566,9 @@ class Shortlist:
 
     def remove(self, entry_id: str) -> bool:
         """Drop an entry by id; False if there was none."""
-        if not isinstance(entry_id, str) or not self._ensure(create=False):
+        if not isinstance(entry_id, str) or not self._exists():
             return False
-        with self._write() as connection:
+        with self._write("removed") as connection:
             removed = connection.execute("DELETE FROM entries WHERE id = ?", (entry_id,)).rowcount
             if removed:
                 self._bump(connection)
@@ -534,6 +582,8 @@ __all__ = [
     "MAX_NOTE_CHARS",
     "Shortlist",
     "ShortlistEntry",
+    "ShortlistUnavailable",
     "clean_text",
+    "store_problem",
     "validated_entry",
 ]

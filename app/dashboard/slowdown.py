@@ -10,8 +10,9 @@ every run::
 
 ``grid`` seconds are added to every grid job (spent in ten steps before the solve, so a cancel
 is heard between steps); ``refine`` seconds are added to every refinement of a best arc;
-``search`` seconds to every sequence search (in ten steps, like a grid's). Unset (the default),
-nothing is slowed.
+``search`` seconds to every sequence search (in ten steps, like a grid's); ``poll`` seconds to
+every answer of the window page's grid poll (a server so busy that a poll takes longer than the
+poll interval). Unset (the default), nothing is slowed.
 """
 
 from __future__ import annotations
@@ -28,16 +29,17 @@ _STEPS = 10
 
 @dataclass(frozen=True)
 class Slowdown:
-    """Seconds added to each grid job and each refinement (0: none)."""
+    """Seconds added to each grid job, each refinement and each poll answer (0: none)."""
 
     grid_s: float = 0.0
     refine_s: float = 0.0
     search_s: float = 0.0
+    poll_s: float = 0.0
 
     @classmethod
     def from_text(cls, text: str | None) -> Slowdown:
-        """Read ``"grid=3,refine=4,search=2"`` (any part may be left out)."""
-        values = {"grid": 0.0, "refine": 0.0, "search": 0.0}
+        """Read ``"grid=3,refine=4,search=2,poll=0.5"`` (any part may be left out)."""
+        values = {"grid": 0.0, "refine": 0.0, "search": 0.0, "poll": 0.0}
         for part in (text or "").split(","):
             if not part.strip():
                 continue
@@ -49,10 +51,17 @@ class Slowdown:
                 seconds = -1.0
             if not sep or name not in values or not 0.0 <= seconds <= 600.0:
                 raise InputError(
-                    ENV_SLOWDOWN, text, "grid=SECONDS,refine=SECONDS,search=SECONDS (0 to 600)"
+                    ENV_SLOWDOWN,
+                    text,
+                    "grid=SECONDS,refine=SECONDS,search=SECONDS,poll=SECONDS (0 to 600)",
                 )
             values[name] = seconds
-        return cls(grid_s=values["grid"], refine_s=values["refine"], search_s=values["search"])
+        return cls(
+            grid_s=values["grid"],
+            refine_s=values["refine"],
+            search_s=values["search"],
+            poll_s=values["poll"],
+        )
 
     @classmethod
     def from_environment(cls) -> Slowdown:
@@ -72,6 +81,10 @@ class Slowdown:
     def refine_pause(self) -> None:
         if self.refine_s > 0:
             threading.Event().wait(self.refine_s)
+
+    def poll_pause(self) -> None:
+        if self.poll_s > 0:
+            threading.Event().wait(self.poll_s)
 
 
 def _pause(seconds: float, check) -> None:

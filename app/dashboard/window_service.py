@@ -141,6 +141,7 @@ class WindowService:
     ) -> None:
         self.settings = settings
         slowdown = slowdown or Slowdown.from_environment()
+        self.slowdown = slowdown
         self.catalogue = CaseCatalogue(settings.cases_dir, settings.uploads_dir)
         self.grids = jobs or GridJobs(GridCache(settings.cache_dir), slowdown=slowdown)
         self.shortlist = Shortlist(settings.shortlist_path)
@@ -245,6 +246,10 @@ class WindowService:
         """The map metrics that describe a case's arcs (``MAP_METRICS`` it computes)."""
         fit = case_outputs(case, self.bodies(case))
         return tuple(m for m in MAP_METRICS if m in fit.metrics)
+
+    def launch_limits(self, case: Case) -> bool:
+        """Whether the case's launch-only controls fit it (``CaseOutputs.launch_limits``)."""
+        return case_outputs(case, self.bodies(case)).launch_limits
 
     def metric_options(self, case: Case) -> list[dict[str, str]]:
         """The metric picker's choices for a case: the map metrics that fit it."""
@@ -443,10 +448,7 @@ class WindowService:
             changes[start_key] = unix_days_to_iso(days[0])
             changes[end_key] = unix_days_to_iso(days[1])
             changes[step_key] = max(span / (PREVIEW_MAX_POINTS - 1), MINUTE_DAYS)
-        coarse = case.with_changes(**changes)
-        from .case_catalogue import check_dates
-
-        check_dates(coarse)
+        coarse = case.with_changes(**changes)  # validated: dates within the engine's ranges
         grid = compute_window(coarse)
         data = map_data(
             grid, view.metric, view.arcs, preview=True, title=self.map_title(view, case)

@@ -48,7 +48,7 @@ from solver.ephemeris.element_bodies import (
     ElementSet,
 )
 from solver.ephemeris.frames import FRAME_ALIASES, ICRF
-from solver.ephemeris.timescales import utc_to_jd_tdb
+from solver.ephemeris.timescales import jd_tdb_to_iso_tdb, utc_to_jd_tdb
 from solver.errors import InputError, has_control_characters
 from solver.mechanics.kepler import true_to_mean_anomaly
 
@@ -123,7 +123,8 @@ def element_body(
         raise InputError(
             pre + epoch[0],
             epoch[1],
-            f"an epoch from 1000-01-01 to 3000-01-01 (JD {ELEMENT_JD_TDB_MIN} to "
+            f"an epoch from {jd_tdb_to_iso_tdb(ELEMENT_JD_TDB_MIN, digits=0)[:10]} to "
+            f"{jd_tdb_to_iso_tdb(ELEMENT_JD_TDB_MAX, digits=0)[:10]} (JD {ELEMENT_JD_TDB_MIN} to "
             f"{ELEMENT_JD_TDB_MAX} TDB), the dates element bodies cover",
         )
 

@@ -5,7 +5,7 @@
 
 from __future__ import annotations
 
-import math
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -20,7 +20,8 @@ from solver.time_units import SECONDS_PER_DAY
 from solver.window.case import Case
 from solver.window.case_bodies import CaseBodies, body_states, transfer_angle_deg
 from solver.window.limits import within_limits
-from solver.window.metrics import METRICS, arc_metrics, ranking_values
+from solver.window.metrics import METRICS, arc_metrics
+from solver.window.ties import ranks_before
 
 
 @dataclass(frozen=True)
@@ -134,14 +135,18 @@ def select_arc(
     if metric not in METRICS:
         raise InputError("metric", metric, "one of " + ", ".join(METRICS))
 
-    def score(arc: Arc) -> tuple[int, float]:
-        value = float(ranking_values(arc.metrics.get(metric, math.nan), metric))
-        return (
-            0 if arc.within else 1 if arc.ok else 2,
-            value if math.isfinite(value) else math.inf,
-        )
+    def order(a: Arc, b: Arc) -> int:
+        # Within limits first, then other arcs, then cells' "no arc" entries; within a class the
+        # rule of WindowGrid.best_cell (the metric, then its tie-break); then the slot order.
+        a_class = 0 if a.within else 1 if a.ok else 2
+        b_class = 0 if b.within else 1 if b.ok else 2
+        if a_class != b_class:
+            return -1 if a_class < b_class else 1
+        if ranks_before(a.metrics, b.metrics, metric):
+            return -1
+        return 1 if ranks_before(b.metrics, a.metrics, metric) else 0
 
-    return min(arcs, key=score)
+    return min(arcs, key=functools.cmp_to_key(order))
 
 
 __all__ = ["Arc", "select_arc", "solve_cell"]

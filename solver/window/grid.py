@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
+import itertools
 import math
 import os
-from collections.abc import Callable, Mapping
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -28,6 +29,7 @@ from solver.window.dates import (
 from solver.window.limits import within_limits
 from solver.window.metrics import METRICS, arc_metrics, ranking_values
 from solver.window.provenance import provenance, window_cache_key
+from solver.window.ties import TIE_BREAK, ranks_before, tie_tolerance, tied_lowest
 
 # 20 million cell-arcs are about 2.5 GB of arrays (BYTES_PER_CELL_ARC each); solving and writing
 # them peaks well within a third of a 24 GiB machine's memory (docs/engine.md, "Budgets").
@@ -43,35 +45,6 @@ family, reason and within flags (one byte each)."""
 
 class Cancelled(Exception):
     """Raised by a progress callback to stop a grid computation."""
-
-
-TIE_BREAK: tuple[str, ...] = ("dv_total_km_s", "c3_km2_s2", "vinf_arrival_km_s", "tof_days")
-"""How arcs that the chosen metric does not separate are ranked: by these metrics in turn (the
-chosen one skipped), then by the earliest departure and arrival dates. Total Δv first (what
-the spacecraft pays), then the launch energy, the arrival speed and the time of flight."""
-
-TIE_RELATIVE = 1e-9
-"""Values within this fraction of the lowest (or 1e-12 absolute) count as equal: a TOF on a
-whole-day diagonal, a Δv that is 0 for every arc (no parking orbit, a flyby)."""
-
-
-def tie_tolerance(value: float) -> float:
-    """How far from ``value`` another value still ties with it (in the metric's unit)."""
-    return max(1e-12, TIE_RELATIVE * abs(value)) if np.isfinite(value) else 0.0
-
-
-def ranks_before(values: Mapping[str, float], other: Mapping[str, float], metric: str) -> bool:
-    """Whether an arc with metrics ``values`` ranks strictly before one with ``other`` by
-    ``metric`` under the grid's rule (:meth:`WindowGrid.best_cell`): the metric first, ties
-    (within :func:`tie_tolerance`) by :data:`TIE_BREAK`. For single arcs (refinement)."""
-    for name in (metric, *(n for n in TIE_BREAK if n != metric)):
-        a = float(ranking_values(values.get(name, np.nan), name))
-        b = float(ranking_values(other.get(name, np.nan), name))
-        a = a if np.isfinite(a) else np.inf
-        b = b if np.isfinite(b) else np.inf
-        if abs(a - b) > tie_tolerance(min(a, b)) or not np.isfinite(min(a, b)):
-            return a < b
-    return False
 
 
 @dataclass(frozen=True)
@@ -189,13 +162,47 @@ class WindowGrid:
         return self.arcs[name]
 
     def best_slot(self, metric: str = "c3_km2_s2") -> NDArray[np.int64]:
-        """Per cell, the slot of the best arc by ``metric``: within limits first, -1 if none."""
-        values = ranking_values(self.metric(metric), metric)
-        score = np.where(self.converged, values, np.inf)
-        score_within = np.where(self.within, score, np.inf)
-        any_within = self.within.any(axis=-1)
-        slot = np.where(any_within, np.argmin(score_within, axis=-1), np.argmin(score, axis=-1))
+        """Per cell, the slot of the best arc by ``metric``: within limits first, -1 if none.
+
+        Among a cell's arcs, the rule of :meth:`best_cell`: the lowest ``metric``, arcs it does
+        not separate ranked by :data:`TIE_BREAK` (a TOF, the same for every arc of a cell, is
+        decided by the total Δv), then the lowest slot."""
+        any_within = self.within.any(axis=-1, keepdims=True)
+        qualifies = np.where(any_within, self.within, self.converged)
+        best = self._tie_broken(qualifies, metric, axis=-1)[-1][1]
+        slot = np.argmax(best, axis=-1)
         return np.where(self.converged.any(axis=-1), slot, -1)
+
+    def _tie_broken(
+        self, qualifies: NDArray[np.bool_], metric: str, axis: int | None
+    ) -> list[tuple[str, NDArray[np.bool_]]]:
+        """The one tie rule, step by step: the arcs of ``qualifies`` with the lowest ``metric``,
+        then narrowed by each :data:`TIE_BREAK` metric in turn (along ``axis``: -1 per cell,
+        None over the whole grid). Each step is (the metric, the arcs still tied); the first
+        arc left in date and slot order is the best."""
+        shape = qualifies.shape
+
+        def along(values: NDArray) -> NDArray:
+            return values.reshape(-1) if axis is None else values
+
+        def lowest(values: NDArray, among: NDArray[np.bool_]) -> NDArray[np.bool_]:
+            # an arc without a value (NaN: no mass where none is given) never ranks first
+            score = np.where(among & np.isfinite(values), values, np.inf)
+            return tied_lowest(along(score), -1).reshape(shape)
+
+        values = ranking_values(self.metric(metric), metric)
+        tied = lowest(values, qualifies)
+        steps = [(metric, tied)]
+        for name in TIE_BREAK:
+            if name == metric:
+                continue
+            narrowed = lowest(ranking_values(self.metric(name), name), tied)
+            if axis is None:
+                tied = narrowed if narrowed.any() else tied
+            else:  # a cell whose arcs this metric cannot rank (all NaN) keeps its ties
+                tied = np.where(narrowed.any(axis=axis, keepdims=True), narrowed, tied)
+            steps.append((name, tied))
+        return steps
 
     def best_values(self, metric: str = "c3_km2_s2", by: str | None = None) -> NDArray[np.float64]:
         """(n_dep, n_arr) values of ``metric`` on each cell's best arc ranked ``by`` a metric."""
@@ -250,22 +257,15 @@ class WindowGrid:
             return None
         low = float(score[finite].min())
         high = float(score[finite].max())
-        candidates = np.flatnonzero(score.reshape(-1) <= low + tie_tolerance(low))
-        tied = len(candidates)
+        steps = self._tie_broken(qualifies, metric, axis=None)
+        tied = int(steps[0][1].sum())
         decided_by = None
-        for name in TIE_BREAK:
-            if len(candidates) == 1:
+        for (_, before), (name, after) in itertools.pairwise(steps):
+            if int(after.sum()) < int(before.sum()):
+                decided_by = name
                 break
-            if name == metric:
-                continue
-            values = ranking_values(self.metric(name), name).reshape(-1)[candidates]
-            values = np.where(np.isfinite(values), values, np.inf)
-            best = float(values.min())
-            narrowed = candidates[values <= best + tie_tolerance(best)]
-            if len(narrowed) < len(candidates):
-                decided_by = decided_by or name
-                candidates = narrowed
-        i, j, k = np.unravel_index(int(candidates[0]), score.shape)  # earliest dates first
+        first = int(np.flatnonzero(steps[-1][1].reshape(-1))[0])  # earliest dates first
+        i, j, k = np.unravel_index(first, score.shape)
         return BestChoice(
             index=(int(i), int(j), int(k)),
             metric=metric,
@@ -534,5 +534,6 @@ __all__ = [
     "max_cell_arcs",
     "ranks_before",
     "tie_tolerance",
+    "tied_lowest",
     "window_notes",
 ]

@@ -82,6 +82,14 @@ class CaseOutputs:
     def launch_periods(self) -> bool:
         return self.launch
 
+    @property
+    def launch_limits(self) -> bool:
+        """Whether the limits of a launch (:func:`launch_limit_keys`: C3, |DLA|) and a launch
+        vehicle fit the case: a launch from a planet about the Sun. A satellite case (the
+        transfer is about a planet: between its moons or its satellites) has no launch vehicle
+        to limit."""
+        return self.launch and not self.planet_centred
+
     def check_metric(self, metric: str, field: str = "--metric") -> str:
         """``metric`` if it describes this case's arcs, else InputError naming what does."""
         if metric not in METRICS:
@@ -113,6 +121,20 @@ class CaseOutputs:
                 "a body given by elements without GM and radius, so the transfer starts with a "
                 "burn and has no launch period (use 'arcwindow best' or 'arcwindow grid')",
             )
+
+
+def launch_limit_keys() -> tuple[str, ...]:
+    """Case settings that limit a launch: the limits of :data:`LAUNCH_ONLY` metrics, read from
+    ``solver.window.limits.LIMIT_RULES`` (``("limits.c3_max_km2_s2", "limits.dla_max_deg")``)."""
+    from solver.window.limits import LIMIT_RULES
+
+    return tuple(f"limits.{rule.key}" for rule in LIMIT_RULES if rule.quantity in LAUNCH_ONLY)
+
+
+def launch_setting_keys() -> tuple[str, ...]:
+    """Case settings that fit only a launch (``CaseOutputs.launch_limits``): the launch limits
+    and the launch vehicle the mass metrics use."""
+    return (*launch_limit_keys(), "spacecraft.vehicle")
 
 
 def case_outputs(case: Case, bodies: CaseBodies | None = None) -> CaseOutputs:
@@ -255,6 +277,7 @@ __all__ = [
     "arc_burns",
     "case_outputs",
     "in_rtn",
+    "launch_limit_keys",
     "phase_angles_deg",
     "rtn_axes",
     "transfer_time_text",

@@ -21,6 +21,7 @@ from solver.window.metrics import METRICS
 from .. import theme
 from ..controls import SLIDERS, Slider, control_field, controls_of, error_text, label
 from ..detail_rows import DetailNotes, DetailRow, DetailTable, Section
+from ..view_changes import short
 from ..view_state import MAP_METRICS
 
 POLL_SHORTLIST_MS = 3000
@@ -188,6 +189,7 @@ def limit_controls() -> html.Section:
         "Limits",
         html.Div([control_field(c) for c in controls_of("limits")], className="aw-grid2"),
         html.Div("Leave a box empty for no limit.", className="aw-small"),
+        html.Div(id="text-launch-hint", className="aw-small"),
     )
 
 
@@ -415,6 +417,7 @@ def stores(query: str) -> html.Div:
             dcc.Store(id="store-shortlist-version"),
             dcc.Store(id="store-redirect"),
             dcc.Interval(id="interval-grid-poll", interval=300, disabled=True),
+            dcc.Interval(id="interval-grid-watchdog", interval=5000),
             dcc.Interval(id="interval-shortlist-poll", interval=POLL_SHORTLIST_MS),
             # Outputs of client-side helpers that act on the page itself.
             html.Div(id="div-sink-url", hidden=True),
@@ -521,13 +524,17 @@ def details_children(sections: list[Section], note: str = "") -> list:
 
 
 def shortlist_children(
-    entries, current_case: str | None, remove_type: str = "button-shortlist-remove"
+    entries,
+    current_case: str | None,
+    remove_type: str = "button-shortlist-remove",
+    problem: str = "",
 ) -> list:
     """The shortlist table (newest first), with a link that opens each arc (a sequence
     candidate on the sequence page) and a remove button (``remove_type``: the pattern id of the
-    page that shows the table)."""
+    page that shows the table); ``problem``: the store's latest problem, one line above it."""
+    notice = [html.Div(short(problem), className="aw-message-error")] if problem else []
     if not entries:
-        return [html.Div("Nothing kept yet.", className="aw-small")]
+        return [*notice, html.Div("Nothing kept yet.", className="aw-small")]
     head = html.Thead(
         html.Tr(
             [
@@ -597,7 +604,7 @@ def shortlist_children(
                 **{"data-entry-id": e.id},
             )
         )
-    return [html.Table([head, html.Tbody(rows)], className="aw-shortlist-table")]
+    return [*notice, html.Table([head, html.Tbody(rows)], className="aw-shortlist-table")]
 
 
 __all__ = [

@@ -20,6 +20,8 @@ what to do, call the service (``window_service``) and pack the answer:
 
 from __future__ import annotations
 
+import itertools
+import json
 import math
 from dataclasses import asdict
 from typing import Any
@@ -43,7 +45,16 @@ from solver.window.metrics import METRICS
 
 from .. import theme
 from ..case_catalogue import MAX_UPLOAD_BYTES, clean_filename, forget, my_case_ids, remember
-from ..controls import CONTROL_IDS, CONTROLS, ERROR_TARGETS, SLIDER_IDS, SLIDERS
+from ..controls import (
+    CONTROL_BY_KEY,
+    CONTROL_IDS,
+    CONTROLS,
+    ERROR_TARGETS,
+    LAUNCH_FIELD_KEYS,
+    SLIDER_IDS,
+    SLIDERS,
+    launch_fields,
+)
 from ..display_data import display_name, mass_summary
 from ..exports import arc_json, arc_oem, figure_html, view_stem
 from ..grid_jobs import grid_key
@@ -59,6 +70,7 @@ from ..map_loop import (
     progress_of,
     status_from_ticket,
 )
+from ..shortlist import ShortlistUnavailable
 from ..view_changes import ViewInputs, errors_by_target, plan_view, short
 from ..view_state import (
     ViewState,
@@ -175,12 +187,38 @@ def _body_options(case) -> list[dict]:
     return [{"value": n, "label": display_name(n)} for n in names]
 
 
-def _progress_out(out: dict, progress: Progress) -> None:
-    out["panel"] = {"display": "flex"} if progress.visible else {"display": "none"}
-    out["fill"] = {"width": f"{100 * progress.fraction:.1f}%"}
-    out["text"] = progress.text
-    out["cancel_style"] = {} if progress.cancel else {"display": "none"}
-    out["retry_style"] = {} if progress.retry else {"display": "none"}
+def _progress_props(progress: Progress) -> dict[str, Any]:
+    """The progress strip's component properties (by ``PROGRESS_OUTPUTS`` name)."""
+    return {
+        "panel": {"display": "flex"} if progress.visible else {"display": "none"},
+        "fill": {"width": f"{100 * progress.fraction:.1f}%"},
+        "text": progress.text,
+        "cancel_style": {} if progress.cancel else {"display": "none"},
+        "retry_style": {} if progress.retry else {"display": "none"},
+    }
+
+
+_ANSWERS = itertools.count()
+
+
+def _answer(
+    view: str, status: GridStatus | None, poll_ms: int | None, progress: Progress
+) -> dict[str, Any]:
+    """What the view callback or a poll answers (the ``store-grid-polled`` data): for which view,
+    the status moved on (None: unchanged), when to poll next (None: stop) and the progress
+    strip. The page applies it only while it still shows that view (``acceptGridAnswer``), so an
+    answer that arrives late, for a view the tab has left, changes nothing."""
+    return {
+        "view": view,
+        "status": None if status is None else status.to_dict(),
+        "poll_ms": poll_ms,
+        "progress": _progress_props(progress),
+        "seq": next(_ANSWERS),  # every answer is new to the page, even one like the last
+    }
+
+
+def _first_poll(status: GridStatus) -> int | None:
+    return None if status.settled else poll_interval_ms(0)
 
 
 def _address() -> str:
@@ -238,8 +276,7 @@ def _register_view(app, service: WindowService) -> None:
         "store": Output("store-view-state", "data"),
         "query": Output("store-view-query", "data"),
         "status": Output("store-grid-status", "data"),
-        "poll_off": Output("interval-grid-poll", "disabled"),
-        "poll_ms": Output("interval-grid-poll", "interval"),
+        "answer": Output("store-grid-polled", "data"),
         "message": Output("div-message-view", "children"),
         "case_options": Output("dropdown-case", "options"),
         "case_value": Output("dropdown-case", "value"),
@@ -256,8 +293,6 @@ def _register_view(app, service: WindowService) -> None:
         "stem": Output("store-download-stem", "data"),
         "redirect": Output("store-redirect", "data"),
     }
-    for name, (cid, prop) in PROGRESS_OUTPUTS.items():
-        outputs[name] = Output(cid, prop)
     for key in ("case.departure_body", "case.target_body", "spacecraft.vehicle"):
         outputs[f"options:{key}"] = Output(CONTROL_IDS[key], "options")
     outputs["vehicle_disabled"] = Output(CONTROL_IDS["spacecraft.vehicle"], "disabled")
@@ -267,6 +302,9 @@ def _register_view(app, service: WindowService) -> None:
             outputs[f"{slider.url}_{prop}"] = Output(slider.id, prop)
     for control in CONTROLS:
         outputs[f"control:{control.key}"] = Output(control.id, "value")
+    for key in LAUNCH_FIELD_KEYS:
+        outputs[f"field:{key}"] = Output(f"field-{CONTROL_BY_KEY[key].setting.url}", "style")
+    outputs["launch_hint"] = Output("text-launch-hint", "children")
     for target in ERROR_TARGETS:
         outputs[f"error:{target}"] = Output(f"text-error-{target}", "children")
 
@@ -354,9 +392,7 @@ def _register_view(app, service: WindowService) -> None:
         out["stem"] = view_stem(case, view)
         status, progress = grid_status(service, view, case, viewer)
         out["status"] = status.to_dict()
-        out["poll_off"] = status.settled
-        out["poll_ms"] = poll_interval_ms(0)
-        _progress_out(out, progress)
+        out["answer"] = _answer(out["query"], status, _first_poll(status), progress)
         return out
 
 
@@ -409,6 +445,10 @@ def _fill_controls(out: dict, service: WindowService, view: ViewState, case, my_
     out["title"] = case.title
     out["description"] = case.description
     out["central"] = f"Central body: {display_name(case.central_body)}"
+    styles, hint = launch_fields(service.launch_limits(case), display_name(case.central_body))
+    for key, style in styles.items():
+        out[f"field:{key}"] = style
+    out["launch_hint"] = hint
     options = _body_options(case)
     for key in ("case.departure_body", "case.target_body"):
         out[f"options:{key}"] = options
@@ -423,56 +463,46 @@ def _fill_controls(out: dict, service: WindowService, view: ViewState, case, my_
 
 
 def _register_map(app, service: WindowService) -> None:
-    # The poll writes its own store, which the page copies into the grid status when it moves
-    # on (``acceptPolled`` in assets/arcwindow.js): the map and the selection callbacks read the
-    # status, and a callback waits while any of its inputs is the output of a request in flight;
-    # reading the poll's output directly, a map would wait for ever on a busy server, where the
-    # next poll is always on its way.
-    poll_outputs = {
-        "status": Output("store-grid-polled", "data"),
-        "poll_off": Output("interval-grid-poll", "disabled", allow_duplicate=True),
-        "poll_ms": Output("interval-grid-poll", "interval", allow_duplicate=True),
-    }
-    for name, (cid, prop) in PROGRESS_OUTPUTS.items():
-        poll_outputs[name] = Output(cid, prop, allow_duplicate=True)
+    # The poll answers into its own store, never into the page's controls: the page applies an
+    # answer (``acceptGridAnswer`` in assets/arcwindow.js) only while it shows the answer's view,
+    # and arms exactly one more tick of the interval for each answer it applies. So one poll is
+    # in flight at a time: Dash drops the answer of a request still in flight when the same
+    # callback is asked again, and a poll ticking on its own clock on a server slower than the
+    # interval never heard an answer (the status never moved on). And an answer for a view the
+    # tab has left cannot stop the new view's polling nor overwrite its progress. The map and
+    # the selection read the grid status, which the page copies from an applied answer: a
+    # callback waits while any of its inputs is the output of a request in flight, and reading
+    # the poll's output directly, a map would wait for ever on a busy server.
 
     @app.callback(
-        output=poll_outputs,
-        inputs={
-            "tick": Input("interval-grid-poll", "n_intervals"),
-            "retry": Input("button-grid-retry", "n_clicks"),
-            "cancel": Input("button-grid-cancel", "n_clicks"),
-            "status_data": State("store-grid-status", "data"),
-            "view_data": State("store-view-state", "data"),
-            "viewer": State("store-viewer-id", "data"),
-        },
+        Output("store-grid-polled", "data", allow_duplicate=True),
+        Input("interval-grid-poll", "n_intervals"),
+        Input("button-grid-retry", "n_clicks"),
+        Input("button-grid-cancel", "n_clicks"),
+        State("store-grid-status", "data"),
+        State("store-view-state", "data"),
+        State("store-viewer-id", "data"),
         prevent_initial_call=True,
     )
     def poll_grid(tick, retry, cancel, status_data, view_data, viewer):
-        out: dict[str, Any] = dict.fromkeys(poll_outputs, no_update)
+        fired = _fired()
+        if "interval-grid-poll" in fired:
+            service.slowdown.poll_pause()  # test-only: a server too busy to answer in time
         view = _read_view(view_data)
         status = GridStatus.from_dict(status_data)
         if view is None:
-            out["poll_off"] = True
-            return out
-        fired = _fired()
+            return _answer(status.view if status else "", None, None, Progress())
+        query = to_query(view)
         try:
             case = service.case(view)
         except InputError as exc:
-            out["poll_off"] = True
-            _progress_out(out, Progress(True, short(str(exc)), retry=False))
-            return out
-        query = to_query(view)
+            return _answer(query, None, None, Progress(True, short(str(exc)), retry=False))
         if "button-grid-retry" in fired and retry:
             new, progress = grid_status(service, view, case, viewer)
-            out["status"] = new.to_dict()
-            out["poll_off"] = new.settled
-            out["poll_ms"] = poll_interval_ms(0)
-            _progress_out(out, progress)
-            return out
+            return _answer(query, new, _first_poll(new), progress)
         if "button-grid-cancel" in fired and cancel:
             if status is None or status.view != query or status.phase != "solving":
-                return out
+                return no_update
             service.grids.cancel(status.grid, viewer or "anonymous")
             new = GridStatus(
                 **{
@@ -482,10 +512,7 @@ def _register_map(app, service: WindowService) -> None:
                     "polls": 0,
                 }
             )
-            out["status"] = new.to_dict()
-            out["poll_off"] = True
-            _progress_out(out, progress_of(new, None))
-            return out
+            return _answer(query, new, None, progress_of(new, None))
         ticket = None
         best = None
         if status is not None and status.view == query:
@@ -498,18 +525,8 @@ def _register_map(app, service: WindowService) -> None:
         plan = plan_poll(status, query, ticket, best)
         if plan.action == "restart" and plan.status is not None:
             new, progress = grid_status(service, view, case, viewer, plan.status.restarts)
-            out["status"] = new.to_dict()
-            out["poll_off"] = new.settled
-            out["poll_ms"] = poll_interval_ms(0)
-            _progress_out(out, progress)
-            return out
-        if plan.status is not None:
-            out["status"] = plan.status.to_dict()
-        out["poll_off"] = plan.interval_ms is None
-        if plan.interval_ms is not None:
-            out["poll_ms"] = plan.interval_ms
-        _progress_out(out, plan.progress)
-        return out
+            return _answer(query, new, _first_poll(new), progress)
+        return _answer(query, plan.status, plan.interval_ms, plan.progress)
 
     map_outputs = {
         "figure": Output("graph-window-map", "figure"),
@@ -763,6 +780,10 @@ def _register_cases(app, service: WindowService) -> None:
             title = service.catalogue.load(case_id).title
         except InputError as exc:
             return _notes([f"{name} was not loaded: {exc}"]), no_update, no_update, no_update
+        except OSError as exc:  # the server's disk (full, read-only): nothing half written
+            reason = exc.strerror or type(exc).__name__
+            line = f"{name} was not stored on the server ({reason}); try again later."
+            return _notes([line]), no_update, no_update, no_update
         mine = remember(my_cases, case_id)
         return (
             html_ok(f"Loaded “{title}” from {name}; it is in your case list."),
@@ -823,16 +844,24 @@ def _register_shortlist(app, service: WindowService) -> None:
                 service.keep(view, note, author, best)
             except InputError as exc:
                 message = _notes([f"Not kept: {exc}"])
+            except ShortlistUnavailable as exc:  # the note stays in its box for another try
+                message = _notes([str(exc)])
             else:
                 note_out, message = "", html_ok("Kept in the shortlist.")
         elif isinstance(trigger, dict) and trigger.get("type") == "button-shortlist-remove":
             if ctx.triggered and ctx.triggered[0].get("value"):
-                shortlist.remove(str(trigger["index"]))
+                try:
+                    shortlist.remove(str(trigger["index"]))
+                except ShortlistUnavailable as exc:
+                    message = _notes([str(exc)])
         now = shortlist.version()
         if now == version and trigger != "button-shortlist-add" and ctx.triggered_id:
             return no_update, no_update, note_out, message
         entries = shortlist.entries()
-        table = layout.shortlist_children(entries, view.case if view else None)
+        problems = shortlist.problems()
+        table = layout.shortlist_children(
+            entries, view.case if view else None, problem=problems[-1] if problems else ""
+        )
         return table, now, note_out, message
 
 
@@ -925,11 +954,29 @@ def _register_clientside(app) -> None:
         Input("store-redirect", "data"),
         prevent_initial_call=True,
     )
+    # The one writer of the poll's pace and of the progress strip: an answer of the view callback
+    # or of the poll, applied while the tab still shows its view (see ``_register_map``).
     app.clientside_callback(
-        "function(polled, current) { return window.arcwindow.acceptPolled(polled, current); }",
+        "function(answer, current, ticks) { return window.arcwindow.acceptGridAnswer(answer,"
+        f" current, ticks, {json.dumps(list(PROGRESS_OUTPUTS))}); }}",
         Output("store-grid-status", "data", allow_duplicate=True),
+        Output("interval-grid-poll", "disabled"),
+        Output("interval-grid-poll", "interval"),
+        Output("interval-grid-poll", "max_intervals"),
+        *[Output(cid, prop) for cid, prop in PROGRESS_OUTPUTS.values()],
         Input("store-grid-polled", "data"),
         State("store-grid-status", "data"),
+        State("interval-grid-poll", "n_intervals"),
+        prevent_initial_call=True,
+    )
+    app.clientside_callback(
+        "function(beat, ticks, maxTicks, disabled) {"
+        " return window.arcwindow.pollWatchdog(beat, ticks, maxTicks, disabled); }",
+        Output("interval-grid-poll", "max_intervals", allow_duplicate=True),
+        Input("interval-grid-watchdog", "n_intervals"),
+        State("interval-grid-poll", "n_intervals"),
+        State("interval-grid-poll", "max_intervals"),
+        State("interval-grid-poll", "disabled"),
         prevent_initial_call=True,
     )
     app.clientside_callback(
