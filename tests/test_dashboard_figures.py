@@ -374,3 +374,18 @@ def test_an_arc_the_grid_does_not_hold_is_never_drawn_from_another_slot(tallis):
     assert shown_slot(grid, "2H") == -1 and not any_arc_shown(grid, "2H")
     with pytest.raises(InputError, match="arcs = '2H'"):
         map_data(grid, "c3_km2_s2", "2H")
+
+
+def test_a_window_of_hours_has_upright_one_line_ticks_and_names_its_day_once():
+    """Windows of hours: labels short and upright (tilted long labels ran into the axis title
+    and the legend on a 1280-pixel screen); a window inside one UTC day names the day in the
+    title; windows of days keep plotly's own labels."""
+    hour_ms = 3_600_000.0
+    day0 = float(np.datetime64("2031-03-01T00:00", "ms").astype(np.int64))
+    one_day, title = figures._date_ticks(day0 + hour_ms * np.arange(0.0, 6.5, 0.5))
+    assert one_day == {"tickformat": "%H:%M", "tickangle": 0}
+    assert title == ", 2031-03-01"
+    two_days, title = figures._date_ticks(day0 + hour_ms * np.arange(0.0, 40.0))
+    assert two_days["tickangle"] == 0 and "%d %b" in two_days["tickformat"]
+    assert title == ""
+    assert figures._date_ticks(day0 + 86_400_000.0 * np.arange(30.0)) == ({}, "")

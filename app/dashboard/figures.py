@@ -337,11 +337,22 @@ def marker_layout(
     return {"annotations": annotations, "shapes": shapes}
 
 
-def _date_ticks(ms: NDArray) -> dict:
-    """One-line tick labels for windows of hours (plotly's default puts the date on a second
-    line, which collides with the axis title)."""
-    span_days = (float(ms[-1]) - float(ms[0])) / MS_PER_DAY
-    return {"tickformat": "%d %b %H:%M"} if span_days < 3.0 else {}
+def _date_ticks(ms: NDArray) -> tuple[dict, str]:
+    """Tick labels for windows of hours, and the day to name in the axis title.
+
+    Plotly's default puts the date on a second line, which collides with the axis title, and on
+    a narrow map it tilts long labels into the title and the legend below. A window inside one
+    UTC day is labelled by the time alone, its day named once in the title; a longer window of
+    hours gets one-line labels, few and upright.
+    """
+    first, last = float(ms[0]), float(ms[-1])
+    if (last - first) / MS_PER_DAY >= 3.0:
+        return {}, ""
+    day_first = np.datetime64(int(first), "ms").astype("datetime64[D]")
+    day_last = np.datetime64(int(last), "ms").astype("datetime64[D]")
+    if day_first == day_last:
+        return {"tickformat": "%H:%M", "tickangle": 0}, f", {day_first}"
+    return {"tickformat": "%d %b %H:%M", "tickangle": 0, "nticks": 5}, ""
 
 
 def _key_trace(name: str, marker: dict) -> go.Scatter:
@@ -427,6 +438,8 @@ def window_map_figure(data: MapData) -> go.Figure:
         if shown == (n_arr, n_dep)
         else f"{n_dep} × {n_arr} cells, drawn at {shown[1]} × {shown[0]}"
     )
+    x_ticks, x_day = _date_ticks(data.departure_ms)
+    y_ticks, y_day = _date_ticks(data.arrival_ms)
     # The layout goes to the constructor: update_layout() costs ~20x more per figure.
     return go.Figure(
         data=[
@@ -457,17 +470,17 @@ def window_map_figure(data: MapData) -> go.Figure:
             },
             xaxis=theme.axis_style(
                 type="date",
-                title={"text": f"departure (UTC) — {note}", "standoff": 6},
+                title={"text": f"departure (UTC{x_day}) — {note}", "standoff": 6},
                 range=[data.departure_ms[0], data.departure_ms[-1]],
                 hoverformat="%Y-%m-%d %H:%M",
-                **_date_ticks(data.departure_ms),
+                **x_ticks,
             ),
             yaxis=theme.axis_style(
                 type="date",
-                title={"text": "arrival (UTC)"},
+                title={"text": f"arrival (UTC{y_day})"},
                 range=[data.arrival_ms[0], data.arrival_ms[-1]],
                 hoverformat="%Y-%m-%d %H:%M",
-                **_date_ticks(data.arrival_ms),
+                **y_ticks,
             ),
             clickmode="event",
             dragmode="zoom",
