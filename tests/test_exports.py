@@ -110,3 +110,24 @@ def test_arc_json_is_complete(kestrel):
     assert len(data["r1_km"]) == 3 and data["frame"] == "ICRF"
     assert data["provenance"]["case_hash"] == grid.provenance["case_hash"]
     assert data["elements"]["e"] == pytest.approx(arc.metrics["e"], rel=1e-9)
+
+
+@pytest.mark.parametrize(
+    "sample", ["kestrel_relay_leo", "vesper_venus_orbiter", "orrery_jupiter_flyby"]
+)
+def test_every_metric_of_a_case_is_a_grid_column(sample, monkeypatch):
+    """A metric registered in METRICS reaches the grid table without a second list: the
+    exported columns hold every metric the case's outputs name, a newly registered one too."""
+    import solver.files.export as export
+    import solver.window.outputs as outputs
+    from solver.window.metrics import METRICS, Metric
+
+    case = load(sample)
+    columns = grid_columns(case)
+    assert set(outputs.case_outputs(case).metrics) <= set(columns)
+
+    new = Metric("c3_arrival_km2_s2", "arrival C3", "km²/s²", "square of the arrival v∞")
+    monkeypatch.setitem(METRICS, new.column, new)
+    columns = export.grid_columns(case)
+    assert "c3_arrival_km2_s2" in columns
+    assert columns.index("c3_arrival_km2_s2") < columns.index("within_limits")

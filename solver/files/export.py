@@ -125,6 +125,13 @@ def grid_columns(case: Case) -> tuple[str, ...]:
         columns = tuple(
             c for c in BURN_GRID_COLUMNS if c not in METRICS or c in fit.metrics or c == "tof_days"
         )
+    # A metric the layouts above do not place (a newly registered one) still gets its column,
+    # before the limits' verdict: every metric of the case is exported.
+    placed = set(columns)
+    extra = tuple(m for m in fit.metrics if m not in placed)
+    if extra:
+        at = columns.index("within_limits")
+        columns = (*columns[:at], *extra, *columns[at:])
     # Mass columns only where the case gives a mass (how it is counted: the provenance).
     columns = tuple(c for c in columns if c not in MASS_METRICS or c in fit.metrics)
     if not any(c in fit.metrics for c in MASS_METRICS):
