@@ -736,12 +736,11 @@ def _best_path(
     back: list[NDArray[np.int64]] = []
     for k, pair in enumerate(pairs):
         total = cost[:, :, None] + pair + unary[k + 1][:, None, :]
-        arg = np.argmin(total, axis=1)
-        back.append(arg)
-        cost = np.take_along_axis(total, arg[:, None, :], axis=1)[:, 0, :]
+        back.append(np.argmin(total, axis=1))
+        cost = np.min(total, axis=1)  # the value at the argmin (no NaN: missing costs are inf)
     slots = np.empty((n, len(unary)), dtype=np.int64)
     last = np.argmin(cost, axis=1)
-    best = cost[np.arange(n), last]
+    best = np.min(cost, axis=1)
     slots[:, -1] = last
     for k in range(len(pairs) - 1, -1, -1):
         slots[:, k] = back[k][np.arange(n), slots[:, k + 1]]
