@@ -61,6 +61,11 @@ class LegArcs:
 
     ``r1_km``, ``r2_km`` (N, 3) the leg's ends; ``v1_km_s``, ``v2_km_s`` (N, S, 3); ``reason``
     (N, S); ``tof_days`` (N,); ``revolutions``, ``branch`` (S,).
+
+    ``rows`` (N,), when set, says that candidates share arcs: the arrays then hold M rows (the
+    distinct arcs) and candidate ``n``'s arcs are row ``rows[n]`` (a leg map's neighbouring legs
+    change with one date only, so 300 arcs serve 90,000 candidates). Candidates sharing a row
+    share the leg's two dates and the bodies' states at them.
     """
 
     r1_km: NDArray[np.float64]
@@ -73,6 +78,7 @@ class LegArcs:
     branch: NDArray[np.int8]
     miss_km: NDArray[np.float64] | None = None
     angles_deg: NDArray[np.float64] | None = None
+    rows: NDArray[np.int64] | None = None
 
     @property
     def ok(self) -> NDArray[np.bool_]:
@@ -102,7 +108,10 @@ class BatchCosts:
     when a leg has no arc); ``objective`` and ``penalty`` its two parts; ``slots`` (N, L) the
     chosen arc slot of each leg (-1 when none); ``reason`` (N,) OK or why a leg has no arc;
     ``within`` (N,) no limit broken. With ``detail``: ``values``, the per-leg and per-encounter
-    quantities on the chosen path.
+    quantities by slot (``values["legs"][k]`` of leg ``k``, ``values["event<i>"]`` of
+    encounter ``i``). Where arcs are shared (:attr:`LegArcs.rows`), a leg's or an encounter's
+    values are per shared row: ``values["leg_rows"][k]`` and ``values["event<i>"]["rows"]`` map
+    candidates to them (None: one row per candidate).
     """
 
     score: NDArray[np.float64]
@@ -419,38 +428,41 @@ class SequenceModel:
         *,
         detail: bool = False,
         pinned: list[int | None] | None = None,
+        every_leg: bool = True,
     ) -> BatchCosts:
         """Stage 2: the best slot path of every candidate, its score and whether it is within
         limits (and with ``detail`` every quantity on that path). ``pinned`` fixes the slot of
-        some legs (None leaves a leg free)."""
+        some legs (None leaves a leg free). ``every_leg=False`` keeps the window engine's
+        metrics of the first and last legs only in the detail (the others' conic alone, which
+        is all the costs need: a leg map, whose middle legs are solved per cell)."""
         spec, case = self.spec, self.case
         epochs = arcs.epochs
         n = epochs.shape[0]
         n_legs = len(spec.legs)
         w = PENALTY_WEIGHT * self.objective_scale
         objective = spec.objective
-        body_v = arcs.body_v_km_s
 
-        # Per-leg metrics: the window engine's for the first and last legs (every leg with
-        # detail), the arc's conic for the surface rule otherwise.
+        # Per-leg metrics (on each leg's own rows where arcs are shared): the window engine's
+        # for the first and last legs (every leg with detail), the arc's conic for the surface
+        # rule otherwise.
         leg_metrics: list[dict[str, NDArray]] = []
         for k, leg_arcs in enumerate(arcs.legs):
             a, b = spec.leg_epochs(k)
-            if detail or k == 0 or k == n_legs - 1:
+            if (detail and every_leg) or k == 0 or k == n_legs - 1:
                 metrics = arc_metrics(
                     case,
                     self.leg_bodies[k],
                     leg_arcs.r1_km[:, None, :],
                     leg_arcs.v1_km_s,
                     leg_arcs.v2_km_s,
-                    body_v[:, a][:, None, :],
-                    body_v[:, b][:, None, :],
+                    _body_v(arcs, leg_arcs, a)[:, None, :],
+                    _body_v(arcs, leg_arcs, b)[:, None, :],
                 )
             else:
                 metrics = arc_conic(leg_arcs.r1_km[:, None, :], leg_arcs.v1_km_s, self.mu)
             leg_metrics.append(metrics)
 
-        # Unary costs per leg slot (N, S_k): objective part and breach part.
+        # Unary costs per leg slot (N_k, S_k), on each leg's own rows: objective and breaches.
         unary_obj = [np.zeros(leg.reason.shape) for leg in arcs.legs]
         unary_pen = [
             surface_violation(leg_metrics[k]["periapsis_km"], self.case_bodies.central.radius_km)
@@ -481,13 +493,13 @@ class SequenceModel:
             for rule in rules_for("leg"):
                 limit = limit_value(rule, case, spec, leg)
                 if limit is not None:
-                    const_pen += rule.violation(arcs.legs[k].tof_days, limit)
+                    const_pen += _each(arcs.legs[k], rule.violation(arcs.legs[k].tof_days, limit))
         for leg_arcs in arcs.legs:
             if leg_arcs.miss_km is not None:
                 for rule in rules_for("resonance"):
                     limit = limit_value(rule, case, spec)
                     if limit is not None:
-                        const_pen += rule.violation(leg_arcs.miss_km, limit)
+                        const_pen += _each(leg_arcs, rule.violation(leg_arcs.miss_km, limit))
         duration = epochs[:, -1] - epochs[:, 0]
         for rule in rules_for("sequence"):
             limit = limit_value(rule, case, spec)
@@ -508,10 +520,13 @@ class SequenceModel:
         pair_obj: list[NDArray] = []
         pair_pen: list[NDArray] = []
         for event in spec.events[1:-1]:
-            po, pp, event_values = self._encounter(event, arcs, objective == "dv_total_km_s")
-            pair_obj.append(po)
-            pair_pen.append(pp)
+            po, pp, event_values, rows_shared = self._encounter(
+                event, arcs, objective == "dv_total_km_s"
+            )
+            pair_obj.append(po if rows_shared is None else po[rows_shared])
+            pair_pen.append(pp if rows_shared is None else pp[rows_shared])
             if detail:
+                event_values["rows"] = rows_shared
                 values[f"event{event.index}"] = event_values
             if event.kind == "stop":
                 leg = spec.legs[event.leg_in]
@@ -521,11 +536,14 @@ class SequenceModel:
                     if limit is not None:
                         const_pen += rule.violation(stay, limit)
 
-        # Slots with no arc cost MISSING; then the chain's best path.
+        # Slots with no arc cost MISSING; then the chain's best path (per candidate).
         unary = []
         for k in range(n_legs):
             total = unary_obj[k] + w * unary_pen[k]
-            allowed = arcs.legs[k].ok & np.isfinite(total)
+            allowed = _each(arcs.legs[k], arcs.legs[k].ok & np.isfinite(total))
+            total = _each(arcs.legs[k], total)
+            unary_obj[k] = _each(arcs.legs[k], unary_obj[k])
+            unary_pen[k] = _each(arcs.legs[k], unary_pen[k])
             if pinned is not None and pinned[k] is not None:
                 allowed = allowed & (np.arange(allowed.shape[1]) == pinned[k])
             unary.append(np.where(allowed, total, math.inf))
@@ -550,13 +568,16 @@ class SequenceModel:
 
         reason = np.full(n, np.int8(Reason.OK), dtype=np.int8)
         for leg_arcs in reversed(arcs.legs):
-            no_arc = ~leg_arcs.ok.any(axis=-1)
-            reason = np.where(no_arc, leg_arcs.reason[:, 0], reason).astype(np.int8)
+            no_arc = _each(leg_arcs, np.asarray(~leg_arcs.ok.any(axis=-1)))
+            reason = np.where(no_arc, _each(leg_arcs, leg_arcs.reason[:, 0]), reason).astype(
+                np.int8
+            )
         finite = np.isfinite(best)
         score = np.where(finite, objective_value + w * penalty, MISSING)
         within = finite & (penalty == 0.0) & (reason == Reason.OK)
         if detail:
             values["legs"] = leg_metrics
+            values["leg_rows"] = [leg_arcs.rows for leg_arcs in arcs.legs]
             values["duration_days"] = duration
         return BatchCosts(
             score=score,
@@ -569,14 +590,25 @@ class SequenceModel:
         )
 
     def _encounter(self, event: Event, arcs: BatchArcs, count_dv: bool):
-        """Objective and breach parts (N, S_in, S_out) of one flyby or stop, and its values."""
+        """Objective and breach parts (M, S_in, S_out) of one flyby or stop, its values, and
+        which of the M rows each candidate's are (None: M = N, one per candidate). An encounter
+        whose two legs share their rows (or one of which is one row for all) is solved once per
+        shared row."""
         spec, case = self.spec, self.case
         leg = spec.legs[event.leg_in]
         body = self.bodies[event.index]
         arriving = arcs.legs[event.leg_in]
         leaving = arcs.legs[event.leg_out]
-        v_in = arriving.v2_km_s - arcs.body_v_km_s[:, event.epoch_in][:, None, :]
-        v_out = leaving.v1_km_s - arcs.body_v_km_s[:, event.epoch_out][:, None, :]
+        v_in = arriving.v2_km_s - _body_v(arcs, arriving, event.epoch_in)[:, None, :]
+        v_out = leaving.v1_km_s - _body_v(arcs, leaving, event.epoch_out)[:, None, :]
+        rows = _shared_rows(arriving, leaving)
+        if rows is None:  # one row per candidate
+            v_in = _each(arriving, v_in)
+            v_out = _each(leaving, v_out)
+        else:  # one of the two may be a single row for all
+            m = max(len(v_in), len(v_out))
+            v_in = np.broadcast_to(v_in, (m, *v_in.shape[1:]))
+            v_out = np.broadcast_to(v_out, (m, *v_out.shape[1:]))
         shape = (v_in.shape[0], v_in.shape[1], v_out.shape[1])
         obj = np.zeros(shape)
         pen = np.zeros(shape)
@@ -631,7 +663,7 @@ class SequenceModel:
                 "dv_in_km_s": dv_in,
                 "dv_out_km_s": dv_out,
             }
-        return obj, pen, values
+        return obj, pen, values, rows
 
     # -----------------------------------------------------------------------------------------
     # Search entry point
@@ -662,6 +694,35 @@ class SequenceModel:
         return self.costs(self.arcs(self.spec.epochs(x), angles, fast=True)).score
 
 
+def _each(leg_arcs: LegArcs, array: NDArray) -> NDArray:
+    """A per-row array of a leg (first axis) for every candidate (see :attr:`LegArcs.rows`)."""
+    return array if leg_arcs.rows is None else array[leg_arcs.rows]
+
+
+def _body_v(arcs: BatchArcs, leg_arcs: LegArcs, column: int) -> NDArray[np.float64]:
+    """The body's velocity (M, 3) at one of a leg's dates, on the leg's own rows: read at one
+    candidate of each shared row (they share the date)."""
+    if leg_arcs.rows is None:
+        return arcs.body_v_km_s[:, column]
+    some = np.zeros(len(leg_arcs.reason), dtype=np.int64)
+    some[leg_arcs.rows] = np.arange(len(leg_arcs.rows))
+    return arcs.body_v_km_s[some, column]
+
+
+def _shared_rows(arriving: LegArcs, leaving: LegArcs) -> NDArray[np.int64] | None:
+    """The rows two legs meeting at an encounter share (None when the encounter has to be
+    solved per candidate): the same rows, or one leg's when the other is one row for all."""
+    if arriving.rows is None or leaving.rows is None:
+        return None
+    if arriving.rows is leaving.rows:
+        return arriving.rows
+    if len(leaving.reason) == 1:
+        return arriving.rows
+    if len(arriving.reason) == 1:
+        return leaving.rows
+    return None
+
+
 def _best_path(
     unary: list[NDArray[np.float64]], pairs: list[NDArray[np.float64]]
 ) -> tuple[NDArray[np.int64], NDArray[np.float64]]:
@@ -675,12 +736,11 @@ def _best_path(
     back: list[NDArray[np.int64]] = []
     for k, pair in enumerate(pairs):
         total = cost[:, :, None] + pair + unary[k + 1][:, None, :]
-        arg = np.argmin(total, axis=1)
-        back.append(arg)
-        cost = np.take_along_axis(total, arg[:, None, :], axis=1)[:, 0, :]
+        back.append(np.argmin(total, axis=1))
+        cost = np.min(total, axis=1)  # the value at the argmin (no NaN: missing costs are inf)
     slots = np.empty((n, len(unary)), dtype=np.int64)
     last = np.argmin(cost, axis=1)
-    best = cost[np.arange(n), last]
+    best = np.min(cost, axis=1)
     slots[:, -1] = last
     for k in range(len(pairs) - 1, -1, -1):
         slots[:, k] = back[k][np.arange(n), slots[:, k + 1]]

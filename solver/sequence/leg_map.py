@@ -11,8 +11,10 @@ limits.
 Only three legs change across a map: the leg itself (every start x end pair), the leg before it
 (every start date) and the leg after it (every end date); the others are the candidate's. The
 arcs are solved for exactly those (a one-leg model for the pairs, one row per date for the
-neighbours, one row for the rest) and gathered into one batch for the costs, so a 300 x 300 map
-solves 90,000 Lambert arcs, not four times as many.
+neighbours, one row for the rest), so a 300 x 300 map solves 90,000 Lambert arcs, not four
+times as many. The neighbours' and the held legs' arcs stay shared (:attr:`LegArcs.rows`): the
+costs compute their metrics, and every encounter between two of them, once per date, and only
+the encounters at the leg's own two dates per cell.
 """
 
 from __future__ import annotations
@@ -119,20 +121,9 @@ def leg_axes(
     return epochs[start_epoch] + offsets, epochs[end_epoch] + offsets
 
 
-def _take(leg: LegArcs, rows: NDArray[np.int64]) -> LegArcs:
-    """Rows of one leg's arcs (the slot layout is shared)."""
-    return LegArcs(
-        r1_km=leg.r1_km[rows],
-        r2_km=leg.r2_km[rows],
-        v1_km_s=leg.v1_km_s[rows],
-        v2_km_s=leg.v2_km_s[rows],
-        reason=leg.reason[rows],
-        tof_days=leg.tof_days[rows],
-        revolutions=leg.revolutions,
-        branch=leg.branch,
-        miss_km=None if leg.miss_km is None else leg.miss_km[rows],
-        angles_deg=None if leg.angles_deg is None else leg.angles_deg[rows],
-    )
+def _shared(leg: LegArcs, rows: NDArray[np.int64]) -> LegArcs:
+    """One leg's arcs shared by the map's cells: cell ``n`` flies row ``rows[n]``."""
+    return dataclasses.replace(leg, rows=rows)
 
 
 REACH_MARGIN_DAYS = 400.0
@@ -222,13 +213,13 @@ def _batch(
             continue
         ends = spec.leg_epochs(m)
         if a in ends:
-            legs.append(_take(by_start.legs[m], i))
+            legs.append(_shared(by_start.legs[m], i))
         elif b in ends:
-            legs.append(_take(by_end.legs[m], j))
+            legs.append(_shared(by_end.legs[m], j))
         else:
-            legs.append(_take(held.legs[m], zero))
-    body_r = held.body_r_km[zero].copy()
-    body_v = held.body_v_km_s[zero].copy()
+            legs.append(_shared(held.legs[m], zero))
+    body_r = np.repeat(held.body_r_km, n, axis=0)
+    body_v = np.repeat(held.body_v_km_s, n, axis=0)
     body_r[:, a] = by_start.body_r_km[i, a]
     body_v[:, a] = by_start.body_v_km_s[i, a]
     body_r[:, b] = by_end.body_r_km[j, b]
@@ -236,9 +227,13 @@ def _batch(
     return BatchArcs(pairs, body_r, body_v, legs)
 
 
-def _on_path(array: NDArray, slots: NDArray, *axes: int) -> NDArray[np.float64]:
-    """Values of a per-slot array (N, S...) on each row's chosen slots."""
-    rows = np.arange(array.shape[0])
+def _on_path(
+    array: NDArray, slots: NDArray, *axes: int, rows: NDArray[np.int64] | None = None
+) -> NDArray[np.float64]:
+    """Values of a per-slot array (M, S...) on each cell's chosen slots; ``rows`` maps cells to
+    the array's rows where they share them (None: one row per cell)."""
+    if rows is None:
+        rows = np.arange(slots.shape[0])
     index = tuple(np.maximum(slots[:, axis], 0) for axis in axes)
     return np.asarray(array[(rows, *index)], dtype=float)
 
@@ -286,34 +281,39 @@ def leg_map(
         angles = np.asarray(angles_deg, dtype=float).reshape(len(spec.resonant_legs), 2)
     a, b = spec.leg_epochs(leg)
     batch = _batch(model, epochs, angles, leg, start, end)
-    costs = model.costs(batch, detail=True)
+    costs = model.costs(batch, detail=True, every_leg=False)
     slots = costs.slots
     values = costs.values
     shape = (len(end), len(start))
 
-    dv = _on_path(values["legs"][0]["dv_departure_km_s"], slots, 0)
-    dv = dv + _on_path(values["legs"][-1]["dv_arrival_km_s"], slots, len(spec.legs) - 1)
+    last = len(spec.legs) - 1
+    first_rows, last_rows = values["leg_rows"][0], values["leg_rows"][last]
+    dv = _on_path(values["legs"][0]["dv_departure_km_s"], slots, 0, rows=first_rows)
+    dv = dv + _on_path(values["legs"][last]["dv_arrival_km_s"], slots, last, rows=last_rows)
     margin = np.full(len(dv), np.inf)
     flyby_dv = np.full(len(dv), -np.inf)
     for event in spec.events[1:-1]:
         ev = values[f"event{event.index}"]
+        rows = ev["rows"]
         if event.kind == "flyby":
-            burn = _on_path(ev["dv_km_s"], slots, event.leg_in, event.leg_out)
-            altitude = _on_path(ev["periapsis_altitude_km"], slots, event.leg_in, event.leg_out)
+            burn = _on_path(ev["dv_km_s"], slots, event.leg_in, event.leg_out, rows=rows)
+            altitude = _on_path(
+                ev["periapsis_altitude_km"], slots, event.leg_in, event.leg_out, rows=rows
+            )
             lowest = spec.legs[event.leg_in].altitude_min_km or 0.0
             dv = dv + burn
             margin = np.fmin(margin, altitude - lowest)
             flyby_dv = np.fmax(flyby_dv, burn)
         else:
-            dv = dv + _on_path(ev["dv_in_km_s"], slots, event.leg_in)
-            dv = dv + _on_path(ev["dv_out_km_s"], slots, event.leg_out)
+            dv = dv + _on_path(ev["dv_in_km_s"], slots, event.leg_in, rows=rows)
+            dv = dv + _on_path(ev["dv_out_km_s"], slots, event.leg_out, rows=rows)
     has_arc = (costs.reason == Reason.OK) & np.isfinite(costs.objective)
     no_flyby = np.isinf(margin)
     out: dict[str, NDArray[np.float64]] = {
         "dv_total_km_s": dv,
-        "c3_km2_s2": _on_path(values["legs"][0]["c3_km2_s2"], slots, 0),
+        "c3_km2_s2": _on_path(values["legs"][0]["c3_km2_s2"], slots, 0, rows=first_rows),
         "vinf_arrival_km_s": _on_path(
-            values["legs"][-1]["vinf_arrival_km_s"], slots, len(spec.legs) - 1
+            values["legs"][last]["vinf_arrival_km_s"], slots, last, rows=last_rows
         ),
         "duration_days": np.asarray(values["duration_days"], dtype=float),
         "flyby_margin_km": np.where(no_flyby, np.nan, margin),
