@@ -322,8 +322,9 @@ def test_a_cancel_whose_answer_the_page_lost_is_never_a_new_search():
 
 def test_the_slowdown_setting_reads_a_search_delay():
     assert Slowdown.from_text("search=2.5").search_s == 2.5
-    with pytest.raises(InputError, match="search=SECONDS"):
+    with pytest.raises(InputError, match="grid, refine, search, poll, map"):
         Slowdown.from_text("search=forever")
+    assert Slowdown.from_text("map=2,poll=0.5").map_s == 2.0
 
 
 # ---------------------------------------------------------------------------------------------

@@ -12,7 +12,8 @@ every run::
 is heard between steps); ``refine`` seconds are added to every refinement of a best arc;
 ``search`` seconds to every sequence search (in ten steps, like a grid's); ``poll`` seconds to
 every answer of the window page's grid poll (a server so busy that a poll takes longer than the
-poll interval). Unset (the default), nothing is slowed.
+poll interval); ``map`` seconds to every answer of the window page's map drawing (an answer
+that lands after the viewer has gone to another page). Unset (the default), nothing is slowed.
 """
 
 from __future__ import annotations
@@ -29,17 +30,18 @@ _STEPS = 10
 
 @dataclass(frozen=True)
 class Slowdown:
-    """Seconds added to each grid job, each refinement and each poll answer (0: none)."""
+    """Seconds added to each grid job, refinement, search, poll answer and map answer (0: none)."""
 
     grid_s: float = 0.0
     refine_s: float = 0.0
     search_s: float = 0.0
     poll_s: float = 0.0
+    map_s: float = 0.0
 
     @classmethod
     def from_text(cls, text: str | None) -> Slowdown:
-        """Read ``"grid=3,refine=4,search=2,poll=0.5"`` (any part may be left out)."""
-        values = {"grid": 0.0, "refine": 0.0, "search": 0.0, "poll": 0.0}
+        """Read ``"grid=3,refine=4,search=2,poll=0.5,map=2"`` (any part may be left out)."""
+        values = {"grid": 0.0, "refine": 0.0, "search": 0.0, "poll": 0.0, "map": 0.0}
         for part in (text or "").split(","):
             if not part.strip():
                 continue
@@ -53,7 +55,7 @@ class Slowdown:
                 raise InputError(
                     ENV_SLOWDOWN,
                     text,
-                    "grid=SECONDS,refine=SECONDS,search=SECONDS,poll=SECONDS (0 to 600)",
+                    "NAME=SECONDS, NAME one of grid, refine, search, poll, map (0 to 600 s)",
                 )
             values[name] = seconds
         return cls(
@@ -61,6 +63,7 @@ class Slowdown:
             refine_s=values["refine"],
             search_s=values["search"],
             poll_s=values["poll"],
+            map_s=values["map"],
         )
 
     @classmethod
@@ -85,6 +88,10 @@ class Slowdown:
     def poll_pause(self) -> None:
         if self.poll_s > 0:
             threading.Event().wait(self.poll_s)
+
+    def map_pause(self) -> None:
+        if self.map_s > 0:
+            threading.Event().wait(self.map_s)
 
 
 def _pause(seconds: float, check) -> None:

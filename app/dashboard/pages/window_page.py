@@ -545,6 +545,7 @@ def _register_map(app, service: WindowService) -> None:
         prevent_initial_call=True,
     )
     def draw_map(status_data, dep_drag, arr_drag, view_data, shown_data):
+        service.slowdown.map_pause()  # test-only: an answer that lands after the page is left
         out: dict[str, Any] = dict.fromkeys(map_outputs, no_update)
         view = _read_view(view_data)
         if view is None:
