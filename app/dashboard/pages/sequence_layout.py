@@ -33,7 +33,7 @@ from ..sequence_view import (
     SEQUENCE_KEYS,
     change_key,
 )
-from .window_layout import brand, details_children
+from .window_layout import brand, details_children, shortlist_form
 
 GRAPH_HEIGHT_PX = 430
 LEG_MAP_HEIGHT_PX = 500
@@ -262,48 +262,11 @@ def candidates_card() -> html.Div:
     )
 
 
-def shortlist_form() -> html.Div:
-    return html.Div(
-        [
-            html.H3("Keep in the shortlist", className="aw-subtitle"),
-            label("kept by", for_id="input-seq-shortlist-author"),
-            html.Div(
-                [
-                    dcc.Input(
-                        id="input-seq-shortlist-author",
-                        placeholder="name or initials",
-                        className="aw-input",
-                        maxLength=60,
-                        persistence=True,
-                        persistence_type="local",
-                    ),
-                    html.Button(
-                        "Add this candidate",
-                        id="button-seq-shortlist-add",
-                        className="aw-button",
-                        n_clicks=0,
-                    ),
-                ],
-                className="aw-inline",
-            ),
-            label("note", for_id="input-seq-shortlist-note"),
-            dcc.Textarea(
-                id="input-seq-shortlist-note",
-                placeholder="note (why this candidate)",
-                className="aw-input aw-textarea",
-                maxLength=500,
-            ),
-            html.Div(id="div-seq-message-shortlist", className="aw-message", role="alert"),
-        ],
-        className="aw-shortlist-form",
-    )
-
-
 def details_card() -> html.Div:
     return html.Div(
         [
             html.H2("Candidate shown", className="aw-card-title"),
-            shortlist_form(),
+            shortlist_form("seq-", "Add this candidate", "candidate"),
             html.Div(id="div-seq-details", className="aw-details"),
         ],
         className="aw-card aw-seq-card-details",

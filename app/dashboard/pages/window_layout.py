@@ -21,6 +21,7 @@ from solver.window.metrics import METRICS
 from .. import theme
 from ..controls import SLIDERS, Slider, control_field, controls_of, error_text, label
 from ..detail_rows import DetailNotes, DetailRow, DetailTable, Section
+from ..shortlist import MAX_AUTHOR_CHARS, MAX_NOTE_CHARS
 from ..view_changes import short
 from ..view_state import MAP_METRICS
 
@@ -315,38 +316,42 @@ def map_card() -> html.Div:
     )
 
 
-def shortlist_form() -> html.Div:
+def shortlist_form(
+    prefix: str = "", add_text: str = "Add selected arc", what: str = "arc"
+) -> html.Div:
+    """The "keep in the shortlist" form of a page: ids ``input-{prefix}shortlist-author`` and so
+    on, lengths capped as the shortlist store caps them."""
     return html.Div(
         [
             html.H3("Keep in the shortlist", className="aw-subtitle"),
-            label("kept by", for_id="input-shortlist-author"),
+            label("kept by", for_id=f"input-{prefix}shortlist-author"),
             html.Div(
                 [
                     dcc.Input(
-                        id="input-shortlist-author",
+                        id=f"input-{prefix}shortlist-author",
                         placeholder="name or initials",
                         className="aw-input",
-                        maxLength=60,
+                        maxLength=MAX_AUTHOR_CHARS,
                         persistence=True,
                         persistence_type="local",
                     ),
                     html.Button(
-                        "Add selected arc",
-                        id="button-shortlist-add",
+                        add_text,
+                        id=f"button-{prefix}shortlist-add",
                         className="aw-button",
                         n_clicks=0,
                     ),
                 ],
                 className="aw-inline",
             ),
-            label("note", for_id="input-shortlist-note"),
+            label("note", for_id=f"input-{prefix}shortlist-note"),
             dcc.Textarea(
-                id="input-shortlist-note",
-                placeholder="note (why this arc)",
+                id=f"input-{prefix}shortlist-note",
+                placeholder=f"note (why this {what})",
                 className="aw-input aw-textarea",
-                maxLength=500,
+                maxLength=MAX_NOTE_CHARS,
             ),
-            html.Div(id="div-message-shortlist", className="aw-message", role="alert"),
+            html.Div(id=f"div-{prefix}message-shortlist", className="aw-message", role="alert"),
         ],
         className="aw-shortlist-form",
     )
