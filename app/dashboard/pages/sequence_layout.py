@@ -16,7 +16,6 @@ from urllib.parse import urlencode
 
 from dash import dcc, html
 
-from solver.caution import CAUTION
 from solver.ephemeris.timescales import FUTURE_UTC_NOTE
 from solver.sequence.leg_map import LEG_MAP_METRICS
 from solver.sequence.spec import SequenceCase
@@ -33,7 +32,8 @@ from ..sequence_view import (
     SEQUENCE_KEYS,
     change_key,
 )
-from .window_layout import brand, details_children, shortlist_form
+from .chrome import caution_banner, page_header
+from .window_layout import details_children, shortlist_form
 
 GRAPH_HEIGHT_PX = 430
 LEG_MAP_HEIGHT_PX = 500
@@ -52,40 +52,6 @@ def _section(title: str, *children, class_name: str = ""):
     return html.Section(
         [html.H2(title, className="aw-section-title"), *children],
         className=f"aw-section {class_name}".strip(),
-    )
-
-
-def header() -> html.Header:
-    return html.Header(
-        [
-            brand(),
-            html.Div(id="text-seq-case-title", className="aw-case-title"),
-            html.Nav(
-                [
-                    dcc.Link("Window map", href="/", className="aw-nav-link"),
-                    dcc.Link("Survey results", href="/survey", className="aw-nav-link"),
-                    html.Button(
-                        "Copy link to this view",
-                        id="button-seq-copy-link",
-                        className="aw-copy",
-                        title="copy a link to this view",
-                        n_clicks=0,
-                    ),
-                ],
-                className="aw-header-tools",
-                **{"aria-label": "pages and sharing"},
-            ),
-        ],
-        className="aw-header",
-    )
-
-
-def caution() -> html.Div:
-    return html.Div(
-        [html.Strong("Caution: "), CAUTION],
-        id="div-seq-caution",
-        className="aw-caution",
-        role="note",
     )
 
 
@@ -414,8 +380,12 @@ def page(query: str = "") -> html.Div:
     return html.Div(
         [
             stores(query),
-            header(),
-            caution(),
+            page_header(
+                title_id="text-seq-case-title",
+                links=(("Window map", "/"), ("Survey results", "/survey")),
+                copy_id="button-seq-copy-link",
+            ),
+            caution_banner("div-seq-caution"),
             html.Div(id="div-seq-message", className="aw-message aw-message-bar", role="alert"),
             html.Main([controls(), views()], className="aw-main"),
         ],

@@ -15,12 +15,11 @@ from urllib.parse import parse_qsl, quote, urlencode
 
 from dash import Input, Output, State, ctx, dcc, html, no_update
 
-from solver.caution import CAUTION
 from solver.errors import InputError
 
 from ..surveys import TABLE_ROWS, SurveyShelf, SurveyTable
 from ..view_changes import short
-from .window_layout import brand
+from .chrome import caution_banner, page_header
 
 _LOG = logging.getLogger(__name__)
 
@@ -58,18 +57,8 @@ def page_layout(**query) -> html.Div:
         [
             dcc.Store(id="store-survey-query", data=search),
             html.Div(id="div-sink-survey-url", hidden=True),
-            html.Header(
-                [
-                    brand(),
-                    html.Div("Survey results", className="aw-case-title"),
-                    html.Nav(
-                        dcc.Link("Window map", href="/", className="aw-nav-link"),
-                        className="aw-header-tools",
-                    ),
-                ],
-                className="aw-header",
-            ),
-            html.Div([html.Strong("Caution: "), CAUTION], className="aw-caution", role="note"),
+            page_header("Survey results", links=(("Window map", "/"),)),
+            caution_banner(),
             html.Div(id="div-survey-message", className="aw-message aw-message-bar", role="alert"),
             html.Main(
                 html.Section(

@@ -14,7 +14,6 @@ from urllib.parse import urlencode
 
 from dash import dcc, html
 
-from solver.caution import CAUTION
 from solver.ephemeris.timescales import FUTURE_UTC_NOTE
 from solver.window.metrics import METRICS
 
@@ -24,6 +23,7 @@ from ..detail_rows import DetailNotes, DetailRow, DetailTable, Section
 from ..shortlist import MAX_AUTHOR_CHARS, MAX_NOTE_CHARS
 from ..view_changes import short
 from ..view_state import MAP_METRICS
+from .chrome import caution_banner, page_header
 
 POLL_SHORTLIST_MS = 3000
 MAP_HEIGHT_PX = 520
@@ -34,47 +34,6 @@ def _section(title: str, *children, class_name: str = ""):
     return html.Section(
         [html.H2(title, className="aw-section-title"), *children],
         className=f"aw-section {class_name}".strip(),
-    )
-
-
-def brand() -> html.Div:
-    return html.Div(
-        [html.Span("arc", className="aw-brand-a"), html.Span("window")], className="aw-brand"
-    )
-
-
-def header() -> html.Header:
-    return html.Header(
-        [
-            brand(),
-            html.Div(id="text-case-title", className="aw-case-title"),
-            html.Nav(
-                [
-                    dcc.Link("Survey results", href="/survey", className="aw-nav-link"),
-                    # A real button, so the keyboard reaches it (Tab, then Enter); the page
-                    # copies the address bar, which always holds the current view.
-                    html.Button(
-                        "Copy link to this view",
-                        id="button-copy-link",
-                        className="aw-copy",
-                        title="copy a link to this view",
-                        n_clicks=0,
-                    ),
-                ],
-                className="aw-header-tools",
-                **{"aria-label": "pages and sharing"},
-            ),
-        ],
-        className="aw-header",
-    )
-
-
-def caution() -> html.Div:
-    return html.Div(
-        [html.Strong("Caution: "), CAUTION],
-        id="div-caution-banner",
-        className="aw-caution",
-        role="note",
     )
 
 
@@ -437,8 +396,12 @@ def page(query: str = "") -> html.Div:
     return html.Div(
         [
             stores(query),
-            header(),
-            caution(),
+            page_header(
+                title_id="text-case-title",
+                links=(("Survey results", "/survey"),),
+                copy_id="button-copy-link",
+            ),
+            caution_banner("div-caution-banner"),
             html.Div(id="div-message-view", className="aw-message aw-message-bar", role="alert"),
             html.Main([controls(), views()], className="aw-main"),
         ],
