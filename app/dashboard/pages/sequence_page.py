@@ -55,6 +55,7 @@ from ..sequence_view import (
 )
 from ..view_changes import short
 from . import sequence_layout as layout
+from .callback_parts import error_lines, fired_inputs, ok_line
 from .window_layout import shortlist_children
 
 PATH = "/sequence"
@@ -64,25 +65,6 @@ NAME = "Sequences"
 
 def page_layout(**query):
     return layout.page_from_query(**query)
-
-
-def _fired() -> set[str]:
-    out = set()
-    for t in ctx.triggered or []:
-        prop = t.get("prop_id") or ""
-        if prop and prop != ".":
-            out.add(prop.rsplit(".", 1)[0])
-    return out
-
-
-def _notes(lines: list[str]):
-    if not lines:
-        return ""
-    return html.Ul([html.Li(short(line)) for line in lines], className="aw-message-error")
-
-
-def _ok(text: str):
-    return html.Div(text, className="aw-message-ok")
 
 
 def _read_view(data: Any) -> SequenceView | None:
@@ -219,7 +201,7 @@ def _register_view(app, service: SequenceService) -> None:
         click, reset, current, viewer, my_cases,
     ):  # fmt: skip
         out: dict[str, Any] = dict.fromkeys(outputs, no_update)
-        fired = _fired()
+        fired = fired_inputs()
         now = _read_view(current)
         notes: list[str] = []
         fill = False
@@ -238,7 +220,7 @@ def _register_view(app, service: SequenceService) -> None:
             try:
                 view, _ = service.view_for_case(case_id)
             except InputError as exc:
-                out["message"] = _notes([str(exc)])
+                out["message"] = error_lines([str(exc)])
                 return out
             fill = True
         else:
@@ -262,9 +244,9 @@ def _register_view(app, service: SequenceService) -> None:
                 out["map_error"] = errors.get("map", "")
             if view is None or view == now:
                 if errors is not None and errors.get("notes"):
-                    out["message"] = _notes(errors["notes"])
+                    out["message"] = error_lines(errors["notes"])
                 return out
-        out["message"] = _notes(notes)
+        out["message"] = error_lines(notes)
         assert view is not None
         if fill:
             _fill(out, service, view, my_cases)
@@ -478,7 +460,7 @@ def _register_poll(app, service: SequenceService) -> None:
         if view is None:
             out["poll_off"] = True
             return out
-        fired = _fired()
+        fired = fired_inputs()
         query = to_query(view)
         if "button-seq-retry" in fired and retry:
             new, progress = search_status(service, view, viewer)
@@ -670,7 +652,7 @@ def _register_upload(app, service: SequenceService) -> None:
             case_id = service.catalogue.add_upload(name, upload.get("contents"))
             title = service.catalogue.load(case_id).title
         except InputError as exc:
-            return _notes([f"{name} was not loaded: {exc}"]), no_update, no_update, no_update
+            return error_lines([f"{name} was not loaded: {exc}"]), no_update, no_update, no_update
         mine = remember(my_cases, case_id)
         where = (
             ""
@@ -678,7 +660,7 @@ def _register_upload(app, service: SequenceService) -> None:
             else " (a one-leg case: it opens the window map)"
         )
         return (
-            _ok(f"Loaded “{title}” from {name}; it is in your case list{where}."),
+            ok_line(f"Loaded “{title}” from {name}; it is in your case list{where}."),
             service.catalogue.options(mine),
             case_id,
             mine,
@@ -705,7 +687,7 @@ def _register_shortlist(app, service: SequenceService) -> None:
     )
     def keep_shortlist(add, removes, tick, note, author, view_data, version):
         trigger = ctx.triggered_id
-        fired = _fired()
+        fired = fired_inputs()
         if "button-seq-shortlist-add" in fired:
             trigger = "button-seq-shortlist-add"
         note_out, message = no_update, no_update
@@ -717,9 +699,9 @@ def _register_shortlist(app, service: SequenceService) -> None:
                     raise InputError("candidate", "none", "a candidate shown")
                 service.keep(view, note, author)
             except InputError as exc:
-                message = _notes([f"Not kept: {exc}"])
+                message = error_lines([f"Not kept: {exc}"])
             else:
-                note_out, message = "", _ok("Kept in the shortlist.")
+                note_out, message = "", ok_line("Kept in the shortlist.")
         elif isinstance(trigger, dict) and trigger.get("type") == "button-seq-shortlist-remove":
             if ctx.triggered and ctx.triggered[0].get("value"):
                 shortlist.remove(str(trigger["index"]))
@@ -782,7 +764,7 @@ def _register_downloads(app, service: SequenceService) -> None:
                 arc, chart, family, _ = service.selection_figures(view, shown)
                 fig = {"arcview": arc, "encounters": chart, "family": family}[kind]
         except InputError as exc:
-            return no_update, _notes([str(exc)])
+            return no_update, error_lines([str(exc)])
         names = {
             "arcview": "arc_view",
             "encounters": "encounter_chart",

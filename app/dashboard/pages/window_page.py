@@ -82,6 +82,7 @@ from ..view_state import (
 )
 from ..window_service import WindowService
 from . import window_layout as layout
+from .callback_parts import error_lines, fired_inputs, ok_line
 
 PATH = "/"
 TITLE = "arcwindow"
@@ -147,26 +148,6 @@ def slider_marks(lo: float, hi: float) -> dict:
 
 # ---------------------------------------------------------------------------------------------
 # Small helpers
-
-
-def _fired() -> set[str]:
-    """Ids of every input that changed in this round (``ctx.triggered_id`` names only one)."""
-    out = set()
-    for t in ctx.triggered or []:
-        prop = t.get("prop_id") or ""
-        if prop and prop != ".":
-            out.add(prop.rsplit(".", 1)[0])
-    return out
-
-
-def _notes(lines: list[str]):
-    if not lines:
-        return ""
-    return html.Ul([html.Li(short(line)) for line in lines], className="aw-message-error")
-
-
-def html_ok(text: str):
-    return html.Div(text, className="aw-message-ok")
 
 
 def _read_view(data: Any) -> ViewState | None:
@@ -325,7 +306,7 @@ def _register_view(app, service: WindowService) -> None:
     )
     def sync_view(page, case_id, sliders, controls, metric, arcs, click, current, viewer, my_cases):
         out: dict[str, Any] = dict.fromkeys(outputs, no_update)
-        fired = _fired()
+        fired = fired_inputs()
         view_now = _read_view(current)
         slider_ids = {s.id: s.url for s in SLIDERS}
         control_ids = {c.id: c.key for c in CONTROLS}
@@ -376,7 +357,7 @@ def _register_view(app, service: WindowService) -> None:
             if rest:
                 notes += rest
         if plan.notes is not None or notes:
-            out["message"] = _notes(notes)
+            out["message"] = error_lines(notes)
         view, case = plan.view, plan.case
         if view is None or case is None:
             return out
@@ -485,7 +466,7 @@ def _register_map(app, service: WindowService) -> None:
         prevent_initial_call=True,
     )
     def poll_grid(tick, retry, cancel, status_data, view_data, viewer):
-        fired = _fired()
+        fired = fired_inputs()
         if "interval-grid-poll" in fired:
             service.slowdown.poll_pause()  # test-only: a server too busy to answer in time
         view = _read_view(view_data)
@@ -552,7 +533,7 @@ def _register_map(app, service: WindowService) -> None:
             return out
         status = GridStatus.from_dict(status_data)
         shown = Shown.from_dict(shown_data)
-        fired = _fired()
+        fired = fired_inputs()
         trigger = "status" if "store-grid-status" in fired or not fired else "drag"
         try:
             case = service.case(view)
@@ -780,14 +761,14 @@ def _register_cases(app, service: WindowService) -> None:
             case_id = service.catalogue.add_upload(name, upload.get("contents"))
             title = service.catalogue.load(case_id).title
         except InputError as exc:
-            return _notes([f"{name} was not loaded: {exc}"]), no_update, no_update, no_update
+            return error_lines([f"{name} was not loaded: {exc}"]), no_update, no_update, no_update
         except OSError as exc:  # the server's disk (full, read-only): nothing half written
             reason = exc.strerror or type(exc).__name__
             line = f"{name} was not stored on the server ({reason}); try again later."
-            return _notes([line]), no_update, no_update, no_update
+            return error_lines([line]), no_update, no_update, no_update
         mine = remember(my_cases, case_id)
         return (
-            html_ok(f"Loaded “{title}” from {name}; it is in your case list."),
+            ok_line(f"Loaded “{title}” from {name}; it is in your case list."),
             service.catalogue.options(mine),
             case_id,
             mine,
@@ -830,7 +811,7 @@ def _register_shortlist(app, service: WindowService) -> None:
     )
     def keep_shortlist(add, removes, tick, note, author, view_data, status_data, version):
         trigger = ctx.triggered_id
-        fired = _fired()
+        fired = fired_inputs()
         if "button-shortlist-add" in fired:
             trigger = "button-shortlist-add"  # a click that lands with a poll tick still counts
         note_out, message = no_update, no_update
@@ -844,17 +825,17 @@ def _register_shortlist(app, service: WindowService) -> None:
                 best = status.best if status is not None else "refined"
                 service.keep(view, note, author, best)
             except InputError as exc:
-                message = _notes([f"Not kept: {exc}"])
+                message = error_lines([f"Not kept: {exc}"])
             except ShortlistUnavailable as exc:  # the note stays in its box for another try
-                message = _notes([str(exc)])
+                message = error_lines([str(exc)])
             else:
-                note_out, message = "", html_ok("Kept in the shortlist.")
+                note_out, message = "", ok_line("Kept in the shortlist.")
         elif isinstance(trigger, dict) and trigger.get("type") == "button-shortlist-remove":
             if ctx.triggered and ctx.triggered[0].get("value"):
                 try:
                     shortlist.remove(str(trigger["index"]))
                 except ShortlistUnavailable as exc:
-                    message = _notes([str(exc)])
+                    message = error_lines([str(exc)])
         now = shortlist.version()
         if now == version and trigger != "button-shortlist-add" and ctx.triggered_id:
             return no_update, no_update, note_out, message
@@ -900,20 +881,20 @@ def _register_downloads(app, service: WindowService) -> None:
         try:
             case = service.case(view)
         except InputError as exc:
-            return no_update, _notes([str(exc)])
+            return no_update, error_lines([str(exc)])
         grid = service.grid(case)
         stem = view_stem(case, view)
         if kind == "map":
             if grid is None:
-                return no_update, _notes(["The grid is still being solved."])
+                return no_update, error_lines(["The grid is still being solved."])
             fig = service.map_figure(view, case, grid, best)
             return dcc.send_string(figure_html(fig), f"{stem}_window_map.html"), ""
         result = service.selection_figures(view, case, grid, best)
         if result is None:
-            return no_update, _notes(["Select a cell with an arc first."])
+            return no_update, error_lines(["Select a cell with an arc first."])
         arc_fig, family_fig, _, sel = result
         if not sel.arc.ok and kind in ("oem", "json"):
-            return no_update, _notes(["The selected cell has no arc to export."])
+            return no_update, error_lines(["The selected cell has no arc to export."])
         if kind == "oem":
             return dcc.send_string(arc_oem(case, sel.arc), f"{stem}_arc.oem"), ""
         if kind == "json":
