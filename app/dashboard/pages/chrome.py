@@ -25,7 +25,11 @@ def page_header(
     title_div = html.Div(title, className="aw-case-title")
     if title_id is not None:
         title_div = html.Div(id=title_id, className="aw-case-title")
-    tools: list = [dcc.Link(text, href=path, className="aw-nav-link") for text, path in links]
+    # Another page is a full page load: answers still on their way to the page left behind
+    # (a map patch) then land nowhere, instead of on a page without their component.
+    tools: list = [
+        dcc.Link(text, href=path, className="aw-nav-link", refresh=True) for text, path in links
+    ]
     if copy_id is not None:
         # A real button, so the keyboard reaches it (Tab, then Enter); the page copies the
         # address bar, which always holds the current view.

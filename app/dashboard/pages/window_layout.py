@@ -546,7 +546,7 @@ def shortlist_children(
                     # Actions first, so they show without scrolling the table sideways.
                     html.Td(
                         [
-                            dcc.Link("open", href=page + e.view, className="aw-link"),
+                            dcc.Link("open", href=page + e.view, className="aw-link", refresh=True),
                             html.Button(
                                 "remove",
                                 id={"type": remove_type, "index": e.id},
