@@ -156,16 +156,12 @@ class CompiledStates:
 # Compiled evaluation
 
 
-_MAX_COEFFICIENTS = 32  # DE423 uses at most 14 per axis
-SCRATCH_SIZE = 2 * _MAX_COEFFICIENTS + 6
+SCRATCH_SIZE = 6  # a Kepler term's state, before its factor
 
 
 @numba.njit(cache=True, error_model="numpy")
-def _chebyshev_into(coefficients, offset, n_sets, n_coef, jd0, days, factor, jd, acc, t, dt):
-    """Add ``factor`` times one DE segment's position and velocity at ``jd`` to acc[0:6].
-
-    ``t`` and ``dt`` are scratch arrays of at least ``n_coef`` values.
-    """
+def _chebyshev_into(coefficients, offset, n_sets, n_coef, jd0, days, factor, jd, acc):
+    """Add ``factor`` times one DE segment's position and velocity at ``jd`` to acc[0:6]."""
     index = math.floor((jd - jd0) / days)
     if index < 0 or index > n_sets:
         for j in range(6):
@@ -176,35 +172,38 @@ def _chebyshev_into(coefficients, offset, n_sets, n_coef, jd0, days, factor, jd,
     offset_days = (jd - jd0) - index * days
     t1 = 2.0 * offset_days / days - 1.0
     twot1 = t1 + t1
-    # T_0 = 1, T_1 = t, T_n = 2t T_(n-1) - T_(n-2); dT_0 = 0, dT_1 = 1,
-    # dT_n = 2t dT_(n-1) - dT_(n-2) + 2 T_(n-1): the recurrences jplephem uses.
-    t[0] = 1.0
-    t[1] = t1
-    dt[0] = 0.0
-    dt[1] = 1.0
-    for n in range(2, n_coef):
-        t[n] = twot1 * t[n - 1] - t[n - 2]
-        dt[n] = twot1 * dt[n - 1] - dt[n - 2] + t[n - 1] + t[n - 1]
     scale = factor * 2.0 / days / SECONDS_PER_DAY
     base = offset + index * 3 * n_coef
-    # The three axes' sums run side by side: six independent chains of additions (each in the
-    # order of n, so the same bits as one axis after the other) keep the pipeline full.
     y = base + n_coef
     z = base + 2 * n_coef
-    px = py = pz = 0.0
-    rx = ry = rz = 0.0
-    for n in range(n_coef):
-        tn = t[n]
-        dn = dt[n]
+    # T_0 = 1, T_1 = t, T_n = 2t T_(n-1) - T_(n-2); dT_0 = 0, dT_1 = 1,
+    # dT_n = 2t dT_(n-1) - dT_(n-2) + 2 T_(n-1): the recurrences jplephem uses, carried in
+    # registers beside the sums (an array of the T_n would make each step wait on a store and
+    # a load). The three axes' sums run side by side: six independent chains of additions, each
+    # in the order of n, so the same bits as one axis after the other.
+    cx = coefficients[base]
+    cy = coefficients[y]
+    cz = coefficients[z]
+    px = 0.0 + cx * 1.0
+    py = 0.0 + cy * 1.0
+    pz = 0.0 + cz * 1.0
+    rx = 0.0 + cx * 0.0
+    ry = 0.0 + cy * 0.0
+    rz = 0.0 + cz * 0.0
+    t_prev, t_n = 1.0, t1
+    d_prev, d_n = 0.0, 1.0
+    for n in range(1, n_coef):
         cx = coefficients[base + n]
         cy = coefficients[y + n]
         cz = coefficients[z + n]
-        px += cx * tn
-        py += cy * tn
-        pz += cz * tn
-        rx += cx * dn
-        ry += cy * dn
-        rz += cz * dn
+        px += cx * t_n
+        py += cy * t_n
+        pz += cz * t_n
+        rx += cx * d_n
+        ry += cy * d_n
+        rz += cz * d_n
+        t_prev, t_n = t_n, twot1 * t_n - t_prev
+        d_prev, d_n = d_n, twot1 * d_n - d_prev + t_prev + t_prev
     acc[0] += factor * px
     acc[1] += factor * py
     acc[2] += factor * pz
@@ -235,9 +234,7 @@ def body_state_into(
     """
     for j in range(6):
         acc[j] = 0.0
-    t = scratch[:_MAX_COEFFICIENTS]
-    dt = scratch[_MAX_COEFFICIENTS : 2 * _MAX_COEFFICIENTS]
-    buf = scratch[2 * _MAX_COEFFICIENTS : 2 * _MAX_COEFFICIENTS + 6]
+    buf = scratch
     for term in range(cheb_first[k], cheb_first[k + 1]):
         _chebyshev_into(
             coefficients,
@@ -249,8 +246,6 @@ def body_state_into(
             cheb_real[term, 2],
             jd,
             acc,
-            t,
-            dt,
         )
     for term in range(kep_first[k], kep_first[k + 1]):
         s = kep_state[term]
