@@ -37,7 +37,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from solver.mechanics.parallel import PARALLEL_LOCK
 
-# Newton steps on w = 1/r_p (see periapsis_for_turn): 4-8 in practice; the cap is a guard.
+# Steps on w = 1/r_p (see _periapsis_for_turn): 3-8 in practice; the cap is a guard.
 _MAX_ITERATIONS = 60
 _REL_TOL = 1e-14
 _PARALLEL_MIN = 65_536  # one flyby is ~0.3 us: thread hand-offs dominate below this
@@ -59,29 +59,39 @@ def turn_angle_rad(vin_x, vin_y, vin_z, vout_x, vout_y, vout_z) -> float:
     return math.atan2(math.sqrt(cx * cx + cy * cy + cz * cz), dot)
 
 
-@numba.njit(cache=True, error_model="numpy", inline="always")
-def _turn_of_w(w: float, a: float, b: float) -> float:
-    """asin(1/e_in) + asin(1/e_out) as a function of w = 1/r_p (a, b = v∞²/μ in and out).
-
-    Each half is atan(t) with t = w / sqrt(a² + 2aw); their sum is one atan2 (tangent
-    addition: both halves lie in [0, π/2), so the sum lies in [0, π) and atan2 places it).
-    """
-    ta = w / math.sqrt(a * a + 2.0 * a * w)
-    tb = w / math.sqrt(b * b + 2.0 * b * w)
-    return math.atan2(ta + tb, 1.0 - ta * tb)
-
-
 @numba.njit(cache=True, error_model="numpy")
 def periapsis_for_turn(turn_rad: float, vin: float, vout: float, mu: float) -> float:
     """Periapsis radius (km) at which hyperbolas of v∞ ``vin`` and ``vout`` turn ``turn_rad``.
 
     inf for no turn; 0 for a turn of π or more (no periapsis can make it); NaN for bad input.
+    See :func:`_periapsis_for_turn`.
+    """
+    return _periapsis_for_turn(
+        turn_rad,
+        math.sin(turn_rad),
+        math.cos(turn_rad),
+        1.0 / math.sin(0.5 * turn_rad) - 1.0,
+        vin,
+        vout,
+        mu,
+    )
 
-    Newton's iteration on w = 1/r_p: the turn, atan(w/sqrt(a² + 2aw)) summed over both
-    hyperbolas (a = v∞²/μ), is increasing and concave in w, so from any point left of the root
-    (where the turn is short of δ; the smaller of the two unpowered half-turn values of w is
-    one) every step stays short of the root and the iterates rise to it monotonically, in 3-5
-    steps.
+
+@numba.njit(cache=True, error_model="numpy", inline="always")
+def _periapsis_for_turn(turn_rad, sin_turn, cos_turn, e_half_minus_one, vin, vout, mu):
+    """:func:`periapsis_for_turn` given also sin δ, cos δ and 1/sin(δ/2) - 1 (from the v∞
+    vectors in :func:`flyby_one`, without trigonometric calls).
+
+    A Newton-type iteration on w = 1/r_p. With a = v∞²/μ each hyperbola turns by α,
+    sin α = w/(a + w), cos α = A/(a + w), A = sqrt(a² + 2aw) (B, b likewise for the other); the
+    turn θ(w) = α + β is increasing and concave in w. Newton's step on θ - δ would be
+    -(θ - δ)/θ'; here θ - δ is replaced by its sine, which is rational in w, A and B (no arc
+    tangent per step) and agrees with it to third order near the root, so the convergence stays
+    quadratic. From a point left of the root (where the turn is short of δ; the smaller of the
+    two unpowered half-turn values of w is one, where θ - δ lies in [-δ/2, 0]) that step is no
+    longer than Newton's, which already falls short of the root on a concave function: the
+    iterates rise to the root monotonically. The iteration stops when the step falls below
+    1e-14 of w, or stops rising (at the root to rounding).
     """
     if not (math.isfinite(turn_rad) and vin > 0.0 and vout > 0.0 and mu > 0.0):
         return math.nan
@@ -92,25 +102,28 @@ def periapsis_for_turn(turn_rad: float, vin: float, vout: float, mu: float) -> f
     a = vin * vin / mu
     b = vout * vout / mu
     # Unpowered flybys turning δ/2 each: e = 1/sin(δ/2), w = 1/r_p = (v∞²/μ) / (e - 1).
-    e_half_minus_one = 1.0 / math.sin(0.5 * turn_rad) - 1.0
     lo = min(a, b) / e_half_minus_one
-    # One Newton step from the mean speed's unpowered value (at or right of the root, and close
-    # to it for similar speeds) lands just left of the root; from there the iterates rise. The
-    # step saves one evaluation on average; the bracket's left end is the fallback.
+    # One step from the mean speed's unpowered value (at or right of the root, and close to it
+    # for similar speeds), -tan(θ - δ)/θ': at least as long as Newton's, which from the right
+    # of the root of a concave function lands left of it, so this lands left of it too (below
+    # the bracket's left end, the fallback, at worst). It saves one evaluation on average.
     w = 0.5 * (a + b) / e_half_minus_one
-    f = _turn_of_w(w, a, b) - turn_rad
-    slope = a / ((a + w) * math.sqrt(a * a + 2.0 * a * w)) + b / (
-        (b + w) * math.sqrt(b * b + 2.0 * b * w)
-    )
-    w = w - f / slope
+    aw = math.sqrt(a * (a + 2.0 * w))
+    bw = math.sqrt(b * (b + 2.0 * w))
+    # sin(θ - δ) and cos(θ - δ) times (a + w)(b + w); θ' times (a + w)(b + w) A B.
+    sin_part = w * (aw + bw) * cos_turn - (aw * bw - w * w) * sin_turn
+    cos_part = (aw * bw - w * w) * cos_turn + w * (aw + bw) * sin_turn
+    slope_part = a * (b + w) * bw + b * (a + w) * aw
+    if cos_part > 0.0:
+        w = w - sin_part * (a + w) * (b + w) * aw * bw / (cos_part * slope_part)
     if not w > lo:
         w = lo
     for _ in range(_MAX_ITERATIONS):
-        f = _turn_of_w(w, a, b) - turn_rad
-        slope = a / ((a + w) * math.sqrt(a * a + 2.0 * a * w)) + b / (
-            (b + w) * math.sqrt(b * b + 2.0 * b * w)
-        )
-        step = -f / slope
+        aw = math.sqrt(a * (a + 2.0 * w))
+        bw = math.sqrt(b * (b + 2.0 * w))
+        sin_part = w * (aw + bw) * cos_turn - (aw * bw - w * w) * sin_turn
+        slope_part = a * (b + w) * bw + b * (a + w) * aw
+        step = -sin_part * aw * bw / slope_part
         if not step > 0.0:
             break  # at the root to rounding (the iterates only rise)
         w += step
@@ -144,8 +157,27 @@ def flyby_one(vin_x, vin_y, vin_z, vout_x, vout_y, vout_z, mu):
     |v∞out|). NaN where a speed is zero or an input is not finite."""
     vin = math.sqrt(vin_x * vin_x + vin_y * vin_y + vin_z * vin_z)
     vout = math.sqrt(vout_x * vout_x + vout_y * vout_y + vout_z * vout_z)
-    turn = turn_angle_rad(vin_x, vin_y, vin_z, vout_x, vout_y, vout_z)
-    rp = periapsis_for_turn(turn, vin, vout, mu)
+    # The turn as turn_angle_rad computes it, and its sine and cosine from the same cross and
+    # dot products (no trigonometric calls).
+    cx = vin_y * vout_z - vin_z * vout_y
+    cy = vin_z * vout_x - vin_x * vout_z
+    cz = vin_x * vout_y - vin_y * vout_x
+    cross = math.sqrt(cx * cx + cy * cy + cz * cz)
+    dot = vin_x * vout_x + vin_y * vout_y + vin_z * vout_z
+    turn = math.atan2(cross, dot)
+    norm = math.sqrt(cross * cross + dot * dot)
+    sin_turn = cross / norm
+    cos_turn = dot / norm
+    # 1/sin(δ/2) - 1 (the unpowered half-turns' e - 1), keeping its digits: below a quarter
+    # turn sin(δ/2) = sin δ / sqrt(2 (1 + cos δ)); above, sin(δ/2) = sqrt((1 - cos δ)/2) and
+    # 1 - sin(δ/2) = cos²(δ/2) / (1 + sin(δ/2)) with cos(δ/2) = sin δ / (2 sin(δ/2)).
+    if cos_turn >= 0.0:
+        e_half_minus_one = math.sqrt(2.0 * (1.0 + cos_turn)) / sin_turn - 1.0
+    else:
+        sin_half = math.sqrt(0.5 * (1.0 - cos_turn))
+        cos_half = sin_turn / (2.0 * sin_half)
+        e_half_minus_one = cos_half * cos_half / ((1.0 + sin_half) * sin_half)
+    rp = _periapsis_for_turn(turn, sin_turn, cos_turn, e_half_minus_one, vin, vout, mu)
     if not math.isfinite(vin + vout) or not (rp >= 0.0):
         return math.nan, math.nan, math.nan, vin, vout
     if rp == 0.0:
