@@ -28,8 +28,8 @@ SECTIONS: dict[str, str] = {
 OPTIONAL_SECTIONS: dict[str, str] = {
     "survey": "app.bench.survey_bench",
     "sequence": "app.bench.sequence_bench",  # about 10 minutes in full: ten 20 s searches twice
-    # valgrind's callgrind: several minutes (half an hour the first time, when the kernels are
-    # compiled for the CPU valgrind presents)
+    # valgrind's callgrind: a few minutes (the kernels are compiled natively, for the CPU
+    # valgrind presents, beforehand; see the module)
     "sequence-instructions": "app.bench.sequence_instructions",
 }
 
