@@ -159,7 +159,7 @@ class CompiledStates:
 SCRATCH_SIZE = 6  # a Kepler term's state, before its factor
 
 
-@numba.njit(cache=True, error_model="numpy")
+@numba.njit(cache=True, error_model="numpy", inline="always")
 def _chebyshev_into(coefficients, offset, n_sets, n_coef, jd0, days, factor, jd, acc):
     """Add ``factor`` times one DE segment's position and velocity at ``jd`` to acc[0:6]."""
     index = math.floor((jd - jd0) / days)
@@ -212,7 +212,7 @@ def _chebyshev_into(coefficients, offset, n_sets, n_coef, jd0, days, factor, jd,
     acc[5] += scale * rz
 
 
-@numba.njit(cache=True, error_model="numpy")
+@numba.njit(cache=True, error_model="numpy", inline="always")
 def body_state_into(
     k,
     jd,
@@ -230,7 +230,9 @@ def body_state_into(
 
     Compiled; other kernels (the sequence search) call it with a :class:`CompiledStates`'
     ``tables`` and a ``scratch`` array of :data:`SCRATCH_SIZE` values (allocated once per
-    thread, not per state).
+    thread, not per state). Inlined into its callers (numba's ``inline="always"``): a call of a
+    compiled function takes a reference to each array argument and gives it back, two atomic
+    operations per array (nine arrays here) on counters the threads share.
     """
     for j in range(6):
         acc[j] = 0.0

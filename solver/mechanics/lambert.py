@@ -227,7 +227,7 @@ def _bracketed(target: float, lo: float, hi: float, lam: float, revs: int, decre
     return x, 200, False
 
 
-@numba.njit(cache=True, error_model="numpy")
+@numba.njit(cache=True, error_model="numpy", inline="always")
 def _solve_one(
     r1,
     r2,
@@ -243,7 +243,11 @@ def _solve_one(
     iters_out,
     reason_out,
 ):
-    """Solve one case; write every slot of the output rows."""
+    """Solve one case; write every slot of the output rows.
+
+    Inlined into its callers (numba's ``inline="always"``: no reference counting of the nine
+    array arguments per call, which the sequence search pays once per leg).
+    """
     n_slots = 2 * max_revs + 1
     for k in range(n_slots):
         for j in range(3):

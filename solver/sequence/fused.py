@@ -96,6 +96,11 @@ OBJECTIVE_CODES = {
 _OK = np.int8(Reason.OK)
 _PARALLEL_MIN = 2_048  # below this one thread is faster than the pool's hand-offs (measured)
 _CHUNKS_PER_THREAD = 8
+# numba's on-disk cache keys a kernel by the content of its own file only, yet the compiled
+# functions it calls from other modules are built into it: after a change to one of them
+# (ephemeris/compiled.py, mechanics/lambert.py, sequence/flyby.py) this line must change too, or
+# a machine with the old kernel cached keeps running the old code.
+_CALLEES_REVISION = "2026-12: states and Lambert inlined; flyby periapsis without atan2"
 
 
 class UnsupportedRule(Exception):
@@ -345,16 +350,17 @@ def _departure_burn(vinf2, mode, k, v_circ):
 
 
 @numba.njit(cache=True, error_model="numpy", inline="always")
-def _surface(r, v, mu, radius, surface_scale):
+def _surface(rx, ry, rz, vx, vy, vz, mu, radius, surface_scale):
     """The surface rule's penalty for the arc leaving ``r`` at ``v`` (solver.window.metrics.
-    arc_conic, solver.sequence.limits.surface_violation)."""
+    arc_conic, solver.sequence.limits.surface_violation). Scalars, not rows of the scratch
+    arrays: a row is a new array view, whose reference counting costs atomic operations."""
     if not math.isfinite(radius):
         return 0.0
-    r1n = math.sqrt(r[0] * r[0] + r[1] * r[1] + r[2] * r[2])
-    v1sq = v[0] * v[0] + v[1] * v[1] + v[2] * v[2]
-    hx = r[1] * v[2] - r[2] * v[1]
-    hy = r[2] * v[0] - r[0] * v[2]
-    hz = r[0] * v[1] - r[1] * v[0]
+    r1n = math.sqrt(rx * rx + ry * ry + rz * rz)
+    v1sq = vx * vx + vy * vy + vz * vz
+    hx = ry * vz - rz * vy
+    hy = rz * vx - rx * vz
+    hz = rx * vy - ry * vx
     p = (hx * hx + hy * hy + hz * hz) / mu
     energy = 0.5 * v1sq - mu / r1n
     arg = 1.0 + 2.0 * energy * p / mu
@@ -537,7 +543,17 @@ def _score_rows(lo, hi, x, ints, reals, scalars, tables, scratch, outs):
                 if s >= n_k or reason[k, s] != _OK:
                     u_pen[k, s] = math.inf
                     continue
-                u_pen[k, s] = _surface(body_r[a], v1[k, s], mu, radius, surface_scale)
+                u_pen[k, s] = _surface(
+                    body_r[a, 0],
+                    body_r[a, 1],
+                    body_r[a, 2],
+                    v1[k, s, 0],
+                    v1[k, s, 1],
+                    v1[k, s, 2],
+                    mu,
+                    radius,
+                    surface_scale,
+                )
                 if k == 0:
                     dx = v1[k, s, 0] - body_v[a, 0]
                     dy = v1[k, s, 1] - body_v[a, 1]
