@@ -40,7 +40,7 @@ from solver.mechanics.parallel import PARALLEL_LOCK
 # Steps on w = 1/r_p (see _periapsis_for_turn): 3-8 in practice; the cap is a guard.
 _MAX_ITERATIONS = 60
 _REL_TOL = 1e-14
-_PARALLEL_MIN = 65_536  # one flyby is ~0.3 us: thread hand-offs dominate below this
+_PARALLEL_MIN = 65_536  # a flyby is a fraction of a microsecond: hand-offs dominate below this
 
 
 @numba.njit(cache=True, error_model="numpy", inline="always")
