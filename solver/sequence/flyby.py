@@ -17,7 +17,8 @@ With equal speeds this is the unpowered flyby of the textbooks (e = 1 + r_p v∞
 δ = 2 asin(1/e); Curtis, *Orbital Mechanics for Engineering Students*, ch. 8). The left side
 falls monotonically from π (r_p → 0) to 0 (r_p → ∞), so every turn below π has exactly one
 periapsis; it lies between the radii of the two unpowered flybys that would turn δ/2 each, which
-start a monotone Newton iteration on 1/r_p. asin(1/e) is evaluated as atan(1 / sqrt(q (2 + q)))
+start a monotone Newton-type iteration on 1/r_p (no arc tangent per step; see
+_periapsis_for_turn). asin(1/e) is evaluated as atan(1 / sqrt(q (2 + q)))
 with q = e - 1 = r_p v∞²/μ, which keeps its digits at every e.
 
 The minimum periapsis altitude is a limit of the sequence (solver.sequence.limits): a flyby that
