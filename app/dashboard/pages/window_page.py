@@ -61,6 +61,7 @@ from ..grid_jobs import grid_key
 from ..map_loop import (
     CANCELLED,
     GridStatus,
+    MapPlan,
     Progress,
     Shown,
     plan_map,
@@ -556,22 +557,31 @@ def _register_map(app, service: WindowService) -> None:
             # the view refused stay on the slider, and the view's own map must come back.
             dragging = not (_close(dep, dep_value or dep_now) and _close(arr, arr_value or arr_now))
         query = to_query(view)
-        plan = plan_map(
-            trigger,
-            status,
-            shown,
-            view=query,
-            metric=view.metric,
-            arcs=view.arcs,
-            dragging=dragging,
-        )
+
+        def planned(dragging: bool) -> MapPlan:
+            return plan_map(
+                trigger,
+                status,
+                shown,
+                view=query,
+                metric=view.metric,
+                arcs=view.arcs,
+                dragging=dragging,
+            )
+
+        plan = planned(dragging)
+        preview = None
+        if plan.action == "preview":
+            try:
+                preview = service.preview_figure(view, case, dep, arr)
+            except InputError:
+                if trigger == "drag":
+                    return out  # dates with no preview: the map stays as it is
+                plan = planned(False)  # a status is never left unshown for want of a preview
         if plan.action == "nothing":
             return out
         if plan.action == "preview":
-            try:
-                out["figure"] = service.preview_figure(view, case, dep, arr)
-            except InputError:
-                return out
+            out["figure"] = preview
         elif plan.action == "solving":
             grid = None
             if status is not None:
