@@ -216,6 +216,24 @@ def test_a_drag_previews_and_its_release_never_leaves_the_preview():
     )
 
 
+def test_a_status_landing_mid_drag_keeps_the_preview():
+    """A thumb held while the view's grid is solved (or its best arc refined): the status's
+    answer keeps the preview rather than drawing the view the drag is leaving; once the drag
+    has ended, the same status draws the view's map."""
+    preview = Shown("preview", V1)
+    for status in (ready(V1), ready(V1, best="refined"), solving(V1, G1)):
+        plan = plan_map(
+            "status", status, preview, view=V1, metric="c3_km2_s2", arcs="0", dragging=True
+        )
+        assert plan.action == "nothing"
+    # the drag's own answer was dropped (Dash asked again for the status): draw the preview
+    full = Shown("full", V1, G1, "c3_km2_s2", "0", "node")
+    plan = plan_map("status", ready(V1), full, view=V1, metric="c3_km2_s2", arcs="0", dragging=True)
+    assert plan.action == "preview" and plan.shown.kind == "preview"
+    plan = plan_map("status", ready(V1), preview, view=V1, metric="c3_km2_s2", arcs="0")
+    assert plan.action == "full"
+
+
 @settings(max_examples=300, deadline=None)
 @given(
     events=st.lists(

@@ -3,6 +3,9 @@
 * A flown gravity-assist sequence: the Venus-Earth-Earth flybys to Jupiter launched in 1989,
   rediscovered by a search over its launch year with our ephemeris (docs/references.md 8.4; the
   flown dates are recalled from memory).
+* A flown Venus flyby to Mercury launched in 1973, every date (launch, Venus, Mercury)
+  rediscovered within 15 days by a minimum-launch-energy search over its launch year
+  (docs/references.md 8.7; the flown dates are recalled from memory).
 * The two classes of Mars round trips (docs/references.md 8.5, common practice): a long stay of
   roughly 900-1000 days in all, and a short stay that costs markedly more.
 * A sequence whose flybys must be unpowered gets flybys within the tolerance and above their
@@ -11,6 +14,7 @@
 
 from __future__ import annotations
 
+import numpy as np
 import pytest
 
 from solver.ephemeris.timescales import utc_to_jd_tdb
@@ -73,6 +77,51 @@ resonance = "2:1"
 [[sequence.legs]]
 tof_min_days = 700
 tof_max_days = 1500
+"""
+
+# The flown dates, docs/references.md 8.7 [MEMORY]: launch 1973-11-03, Venus flyby 1974-02-05,
+# Mercury encounter 1974-03-29.
+FLOWN_1973 = ("1973-11-03", "1974-02-05", "1974-03-29")
+
+# The 1973 Venus flyby to Mercury as an analyst would set it up from the mission's requirements
+# (recalled from memory): one launch on a launch vehicle whose payload fell fast with launch
+# energy, an unpowered Venus flyby, and Mercury passed at speed (no burn there). So the only
+# propellant that depends on the trajectory is the launch energy: minimize the C3 over the whole
+# 1973 launch year, unpowered flybys (within 10 m/s). The TOF bounds are broad (50-250 days to
+# Venus, 30-250 days on to Mercury) and the arrival window spans two and a half years: no date
+# or duration is taken from the flown mission.
+VENUS_MERCURY_1973 = """
+[case]
+title = "Venus flyby to Mercury, 1973 launch year"
+central_body = "sun"
+departure_body = "earth"
+target_body = "mercury"
+
+[window]
+departure_start = "1973-01-01"
+departure_end = "1973-12-31"
+arrival_start = "1973-01-01"
+arrival_end = "1975-06-30"
+
+[departure_orbit]
+altitude_km = 185
+
+[arrival_orbit]
+mode = "flyby"
+
+[sequence]
+objective = "{objective}"
+unpowered_only = true
+unpowered_tolerance_km_s = 0.01
+
+[[sequence.legs]]
+to = "venus"
+tof_min_days = 50
+tof_max_days = 250
+
+[[sequence.legs]]
+tof_min_days = 30
+tof_max_days = 250
 """
 
 MARS_ROUND_TRIPS = """
@@ -185,6 +234,58 @@ def test_the_flown_1989_venus_earth_earth_sequence_is_rediscovered(validation):
         assert abs(encounter.vinf_out_km_s - encounter.vinf_in_km_s) <= 0.01
         assert encounter.dv_km_s <= 0.01
         assert encounter.periapsis_altitude_km >= encounter.altitude_min_km
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("objective", ["c3_km2_s2", "dv_total_km_s"])
+def test_the_flown_1973_venus_flyby_to_mercury_is_rediscovered(validation, objective):
+    """Every flown date within 15 days: launch, Venus flyby and Mercury encounter.
+
+    The objective is what the mission would have minimized: the launch energy (one launch whose
+    payload falls with C3, no burn at Venus or Mercury), or the same stated as the total Δv (the
+    departure burn from a 185 km parking orbit, plus any flyby burn; nothing at Mercury). Both
+    are searched over the whole 1973 launch year; the optimum is inside every bound, not on a
+    window's edge, and the cost rises on every side of it (docs/references.md 8.7: launching
+    15 days earlier or later costs 1.3 or 2.5 km²/s² more; arriving at Mercury 15 days earlier
+    costs 1.3 km²/s² more, and 15 days later needs the next opportunity).
+
+    What the model leaves out of the flown mission (from memory): the trajectory correction
+    manoeuvres on the way (there were no large deep-space manoeuvres to leave out), the aim
+    point at Mercury (the model reaches Mercury's centre; the orbit after the flown pass, about
+    700 km up, returned to Mercury twice more, which the model does not ask for), the Venus
+    flyby's altitude as flown (about 5,770 km; the model's flyby, at about 2,750 km, is whatever
+    turns the v∞ onto the model's Mercury leg), the planets' pulls on each other's legs, finite
+    spheres of influence and the launch period set by operations.
+    """
+    sequence_case = parse_sequence_case(VENUS_MERCURY_1973.format(objective=objective))
+    found = search_case(sequence_case, SearchSettings(top=3, seed=1))
+    best = found.candidates[0]
+    assert best.within_limits, best.breaches
+    flown = [float(utc_to_jd_tdb(t)) for t in FLOWN_1973]
+    misses = [abs(a - b) for a, b in zip(best.epochs_jd_tdb, flown, strict=True)]
+    assert max(misses) <= 15.0, misses
+    for name, miss in zip(("launch", "Venus flyby", "Mercury encounter"), misses, strict=True):
+        validation.record(
+            f"flown 1973 Venus flyby to Mercury rediscovered ({objective}): {name} date",
+            source="the flown mission's dates (docs/references.md 8.7)",
+            tag="MEMORY",
+            measured=miss,
+            tolerance=15.0,
+            unit="days",
+            note=f"search over the 1973 launch year, minimum {objective}, unpowered Venus "
+            "flyby, Mercury passed without a burn",
+        )
+    # The optimum is not held by a bound: each date and each TOF is well inside its window.
+    window = sequence_case.case
+    assert window.departure_start_jd_tdb + 30 < best.epochs_jd_tdb[0]
+    assert best.epochs_jd_tdb[0] < window.departure_end_jd_tdb - 30
+    for leg, tof in zip(sequence_case.sequences[0].legs, np.diff(best.epochs_jd_tdb), strict=True):
+        assert leg.tof_min_days + 15 < tof < leg.tof_max_days - 15
+    # An unpowered Venus flyby above its lowest altitude, as flown.
+    venus = best.encounters[1]
+    assert abs(venus.vinf_out_km_s - venus.vinf_in_km_s) <= 0.01
+    assert venus.dv_km_s <= 0.01
+    assert venus.periapsis_altitude_km >= venus.altitude_min_km
 
 
 @pytest.mark.slow

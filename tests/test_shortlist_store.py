@@ -279,6 +279,30 @@ def test_a_damaged_store_is_set_aside_once_when_two_open_it_at_once(tmp_path):
     ]
 
 
+def test_a_new_store_held_by_another_opener_is_waited_for(tmp_path):
+    # Another opener (another handle or server) holds a write lock on the new, still empty
+    # file. SQLite refuses the change to write-ahead logging at once in that state instead of
+    # waiting, and an add failed with "database is locked" (one in a hundred runs of
+    # test_concurrent_writers_lose_no_entry under load). The add must wait for the lock.
+    path = tmp_path / STORE_NAME
+    holder = sqlite3.connect(path, isolation_level=None)
+    holder.execute("BEGIN IMMEDIATE")
+    shortlist = Shortlist(path)
+    refused = threading.Event()
+    shortlist._pause_at = lambda step: refused.set() if step == "wal:busy" else None
+    errors: list[str] = []
+    thread = _adding(shortlist, "after the lock", errors)
+    try:
+        held = refused.wait(30)  # the add met the lock (and is waiting, not failed)
+    finally:
+        holder.execute("ROLLBACK")
+        holder.close()
+    thread.join(60)
+    assert errors == [] and held
+    assert [e.note for e in Shortlist(path).entries()] == ["after the lock"]
+    assert shortlist.problems() == []
+
+
 def _add_many(folder: str, writer: int, count: int) -> None:
     shortlist = Shortlist(Path(folder) / STORE_NAME)
     for k in range(count):

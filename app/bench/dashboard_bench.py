@@ -114,6 +114,10 @@ class DashClient:
                 for prop, value in props.items():
                     if not (isinstance(value, dict) and "__dash_patch_update" in value):
                         self.values[f"{component}.{prop}"] = value
+                        if prop == "value" and f"{component}.drag_value" in self.values:
+                            # a slider given a value copies it to its drag value (dcc's own
+                            # effect in the browser)
+                            self.values[f"{component}.drag_value"] = value
         return status, reply
 
     # The page's steps ---------------------------------------------------------------------

@@ -323,14 +323,19 @@ def plan_map(
     view, metric, arcs : str
         The tab's current view (its URL query), metric and arcs shown.
     dragging : bool
-        A slider's dragged dates differ from the view's dates.
+        A slider's dragged dates differ from the view's dates (a drag in progress, or just
+        released and not yet the view), whichever input fired.
     """
-    if trigger == "drag":
-        if dragging:
-            return MapPlan("preview", Shown("preview", view))
-        if shown.kind != "preview":
+    if dragging:
+        # A drag in progress owns the map until it ends, whatever status lands meanwhile: Dash
+        # drops the answer to a drag when the same callback is asked again for a status before
+        # that answer arrives, so a status round must draw the preview itself.
+        if trigger == "status" and shown.kind == "preview":
             return MapPlan("nothing")
-        # the drag ended where the view is: fall through and show the view's own state
+        return MapPlan("preview", Shown("preview", view))
+    if trigger == "drag" and shown.kind != "preview":
+        return MapPlan("nothing")
+    # a drag that ended where the view is falls through and shows the view's own state
     if status is None or status.view != view:
         return MapPlan("nothing")  # a status for another view: the current one's is coming
     if status.phase == "solving":

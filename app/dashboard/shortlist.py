@@ -250,8 +250,9 @@ class Shortlist:
         self._ready = False
         self._notes: list[str] = []
         # Test-only: called with each step of opening the store ("judged": found unreadable,
-        # not yet set aside; "schema:<name>": a table or index made), so that a test can stop
-        # two openers at chosen steps and drive one interleaving every run.
+        # not yet set aside; "schema:<name>": a table or index made; "wal:busy": the change to
+        # write-ahead logging refused for now), so that a test can stop two openers at chosen
+        # steps and drive one interleaving every run.
         self._pause_at: Callable[[str], None] = _no_pause
 
     # -- the store -------------------------------------------------------------------------
@@ -298,7 +299,7 @@ class Shortlist:
         then waits to create itself) or all of them, never a store with half its tables, which
         it would take for a file that is not a shortlist store and set aside.
         """
-        connection.execute("PRAGMA journal_mode = WAL")  # outside a transaction, by SQLite's rule
+        self._use_wal(connection)
         connection.execute("BEGIN IMMEDIATE")
         try:
             for name, statement in _SCHEMA:
@@ -313,6 +314,28 @@ class Shortlist:
         except BaseException:
             connection.execute("ROLLBACK")
             raise
+
+    def _use_wal(self, connection: sqlite3.Connection) -> None:
+        """Put the store in write-ahead-log mode (outside a transaction, by SQLite's rule).
+
+        On a new, still empty file that another opener holds a write lock on, SQLite refuses
+        the change at once, without waiting as it does for other locks: the first writers of a
+        new store then failed with "database is locked" (one add in a hundred with two handles
+        and forty writers). So the change is asked again until the busy timeout has passed;
+        the store would still work in the rollback mode it is left in, only less concurrently.
+        """
+        deadline = time.monotonic() + _BUSY_TIMEOUT_S
+        wait_s = 0.005
+        while True:
+            try:
+                connection.execute("PRAGMA journal_mode = WAL")
+                return
+            except sqlite3.OperationalError as exc:
+                if "locked" not in str(exc) or time.monotonic() + wait_s > deadline:
+                    raise
+            self._pause_at("wal:busy")
+            time.sleep(wait_s)
+            wait_s = min(2 * wait_s, 0.25)
 
     def _check_store(self) -> str | None:
         """Why the existing store cannot be trusted, or None (a store with no table yet is one

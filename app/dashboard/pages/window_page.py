@@ -61,6 +61,7 @@ from ..grid_jobs import grid_key
 from ..map_loop import (
     CANCELLED,
     GridStatus,
+    MapPlan,
     Progress,
     Shown,
     plan_map,
@@ -520,12 +521,14 @@ def _register_map(app, service: WindowService) -> None:
             "status_data": Input("store-grid-status", "data"),
             "dep_drag": Input(SLIDER_IDS["dep"], "drag_value"),
             "arr_drag": Input(SLIDER_IDS["arr"], "drag_value"),
+            "dep_value": State(SLIDER_IDS["dep"], "value"),
+            "arr_value": State(SLIDER_IDS["arr"], "value"),
             "view_data": State("store-view-state", "data"),
             "shown_data": State("store-map-shown", "data"),
         },
         prevent_initial_call=True,
     )
-    def draw_map(status_data, dep_drag, arr_drag, view_data, shown_data):
+    def draw_map(status_data, dep_drag, arr_drag, dep_value, arr_value, view_data, shown_data):
         service.slowdown.map_pause()  # test-only: an answer that lands after the page is left
         out: dict[str, Any] = dict.fromkeys(map_outputs, no_update)
         view = _read_view(view_data)
@@ -541,31 +544,44 @@ def _register_map(app, service: WindowService) -> None:
             out["figure"] = theme.empty_figure(short(str(exc)))
             out["shown"] = Shown("error", to_query(view), message=str(exc)).to_dict()
             return out
-        dragging = False
-        dep = arr = None
+        dep_now = [iso_to_unix_days(case.departure_start), iso_to_unix_days(case.departure_end)]
+        arr_now = [iso_to_unix_days(case.arrival_start), iso_to_unix_days(case.arrival_end)]
+        dep = dep_drag or dep_now
+        arr = arr_drag or arr_now
         if trigger == "drag":
-            dep_now = [iso_to_unix_days(case.departure_start), iso_to_unix_days(case.departure_end)]
-            arr_now = [iso_to_unix_days(case.arrival_start), iso_to_unix_days(case.arrival_end)]
-            dep = dep_drag or dep_now
-            arr = arr_drag or arr_now
+            # dragged dates that are not the view's yet: held, or released and on their way
             dragging = not (_close(dep, dep_now) and _close(arr, arr_now))
+        else:
+            # A status that lands mid-drag must keep the preview (plan_map). Only a thumb still
+            # held counts here (its drag value is not yet the slider's value): released dates
+            # the view refused stay on the slider, and the view's own map must come back.
+            dragging = not (_close(dep, dep_value or dep_now) and _close(arr, arr_value or arr_now))
         query = to_query(view)
-        plan = plan_map(
-            trigger,
-            status,
-            shown,
-            view=query,
-            metric=view.metric,
-            arcs=view.arcs,
-            dragging=dragging,
-        )
+
+        def planned(dragging: bool) -> MapPlan:
+            return plan_map(
+                trigger,
+                status,
+                shown,
+                view=query,
+                metric=view.metric,
+                arcs=view.arcs,
+                dragging=dragging,
+            )
+
+        plan = planned(dragging)
+        preview = None
+        if plan.action == "preview":
+            try:
+                preview = service.preview_figure(view, case, dep, arr)
+            except InputError:
+                if trigger == "drag":
+                    return out  # dates with no preview: the map stays as it is
+                plan = planned(False)  # a status is never left unshown for want of a preview
         if plan.action == "nothing":
             return out
         if plan.action == "preview":
-            try:
-                out["figure"] = service.preview_figure(view, case, dep, arr)
-            except InputError:
-                return out
+            out["figure"] = preview
         elif plan.action == "solving":
             grid = None
             if status is not None:
