@@ -96,11 +96,6 @@ OBJECTIVE_CODES = {
 _OK = np.int8(Reason.OK)
 _PARALLEL_MIN = 2_048  # below this one thread is faster than the pool's hand-offs (measured)
 _CHUNKS_PER_THREAD = 8
-# numba's on-disk cache keys a kernel by the content of its own file only, yet the compiled
-# functions it calls from other modules are built into it: after a change to one of them
-# (ephemeris/compiled.py, mechanics/lambert.py, sequence/flyby.py) this line must change too, or
-# a machine with the old kernel cached keeps running the old code.
-_CALLEES_REVISION = "2026-12: states and Lambert inlined; flyby periapsis without atan2"
 
 
 class UnsupportedRule(Exception):

@@ -24,11 +24,6 @@ from solver.time_units import SECONDS_PER_DAY
 
 _NOT_REQUESTED = np.int8(Reason.NOT_REQUESTED)
 _PARALLEL_MIN = 16_384  # below this the thread hand-offs cost more than they save (measured)
-# numba's on-disk cache keys a kernel by the content of its own file only, yet the compiled
-# functions it calls from other modules are built into it: after a change to one of them
-# (solver/ephemeris/compiled.py, solver/mechanics/lambert.py) this line must change too, or
-# a machine with the old kernel cached keeps running the old code.
-_CALLEES_REVISION = "2026-12: Chebyshev recurrence in registers"
 
 
 @numba.njit(cache=True, error_model="numpy")
