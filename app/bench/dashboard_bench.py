@@ -81,6 +81,7 @@ class DashClient:
         self._deps = {self._name(d): d for d in dependencies if not d.get("clientside_function")}
         self.values: dict[str, object] = {"store-viewer-id.data": uuid.uuid4().hex}
         self.statuses: list[int] = []
+        self.failures: list[str] = []  # "<status> <callback>" of each answer other than 200
 
     @staticmethod
     def _name(dep: dict) -> str:
@@ -109,6 +110,8 @@ class DashClient:
         }
         status, reply = self._post("/_dash-update-component", body)
         self.statuses.append(status)
+        if status != 200:
+            self.failures.append(f"{status} {first_output}")
         if status == 200 and reply:
             for component, props in reply.get("response", {}).items():
                 for prop, value in props.items():
@@ -730,6 +733,7 @@ def _soak_lines(folder: Path, seconds: float, viewers: int) -> list[BenchLine]:
         if reason:
             stale.append(reason)
     errors = sum(1 for s in statuses if s != 200)
+    failures = [f for client, _ in finals for f in client.failures]
     requests = len(statuses)
     ok = not stale and errors == 0 and idle_s <= IDLE_WITHIN_S
     return [
@@ -746,7 +750,8 @@ def _soak_lines(folder: Path, seconds: float, viewers: int) -> list[BenchLine]:
             f"{errors} error responses; server slowed by {SOAK_SLOWDOWN}; CPU idle "
             f"{idle_s:.1f} s after the last viewer settled; memory {rss_start:.0f} -> "
             f"{rss_end:.0f} MB (+{rss_end - rss_start:.0f} MB)"
-            + (f"; stale: {stale[:3]}" if stale else ""),
+            + (f"; stale: {stale[:3]}" if stale else "")
+            + (f"; failed: {failures[:3]}" if failures else ""),
             extra={
                 "stale": len(stale),
                 "errors": errors,
