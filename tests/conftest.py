@@ -154,3 +154,27 @@ def pytest_sessionfinish(session, exitstatus) -> None:
     VALIDATION_RECORD.write_text(
         json.dumps({"engine_version": ENGINE_VERSION, "checks": list(rows.values())}, indent=1)
     )
+
+
+# ---------------------------------------------------------------------------------------------
+# The browser tests' shared fixtures (tests/browser_support.py holds what they wait for)
+
+
+@pytest.fixture(scope="module")
+def browser():
+    """A headless Chromium (Debian's), one per test module, driven by Playwright."""
+    from browser_support import CHROMIUM, CHROMIUM_ARGS
+
+    sync_api = pytest.importorskip("playwright.sync_api")
+    with sync_api.sync_playwright() as p:
+        b = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
+        yield b
+        b.close()
+
+
+@pytest.fixture
+def tabs(browser, request):
+    """Opens tabs; screenshots each on failure and fails on any browser console error."""
+    from browser_support import tab_factory
+
+    yield from tab_factory(browser, request)

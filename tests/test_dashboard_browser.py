@@ -17,7 +17,6 @@ from pathlib import Path
 import pytest
 from browser_support import (
     CHROMIUM,
-    CHROMIUM_ARGS,
     GRAPH,
     ROOT,
     click_cell,
@@ -25,7 +24,6 @@ from browser_support import (
     expected_cell,
     figure_title,
     running_server,
-    tab_factory,
     wait_details,
     wait_views_drawn,
 )
@@ -48,19 +46,6 @@ def server(server_folder):
     """`arcwindow serve` in a subprocess with its own cache and data folders."""
     with running_server(server_folder) as url:
         yield url
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with playwright_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
-
-
-@pytest.fixture
-def tabs(browser, request):
-    yield from tab_factory(browser, request)
 
 
 # ---------------------------------------------------------------------------------------------

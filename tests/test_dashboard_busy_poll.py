@@ -19,10 +19,8 @@ from pathlib import Path
 import pytest
 from browser_support import (
     CHROMIUM,
-    CHROMIUM_ARGS,
     expected_map,
     running_server,
-    tab_factory,
     wait_map_shows,
     wait_views_drawn,
 )
@@ -45,19 +43,6 @@ def busy_server(tmp_path_factory):
     delays = f"poll={POLL_DELAY_S:g},refine={REFINE_DELAY_S:g}"
     with running_server(folder, {"ARCWINDOW_TEST_SLOWDOWN": delays}) as url:
         yield url
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with playwright_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
-
-
-@pytest.fixture
-def tabs(browser, request):
-    yield from tab_factory(browser, request)
 
 
 def _is_poll(request) -> bool:

@@ -20,11 +20,9 @@ from urllib.parse import parse_qs, urlparse
 import pytest
 from browser_support import (
     CHROMIUM,
-    CHROMIUM_ARGS,
     expected_map,
     figure_title,
     running_server,
-    tab_factory,
     wait_map_shows,
 )
 
@@ -46,19 +44,6 @@ def slow_server(tmp_path_factory):
     delays = f"grid={GRID_DELAY_S:g},map={MAP_DELAY_S:g}"
     with running_server(folder, {"ARCWINDOW_TEST_SLOWDOWN": delays}) as url:
         yield url
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with playwright_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
-
-
-@pytest.fixture
-def tabs(browser, request):
-    yield from tab_factory(browser, request)
 
 
 def progress_text(page) -> str:

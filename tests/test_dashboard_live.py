@@ -18,14 +18,12 @@ from urllib.parse import parse_qs, urlparse
 import pytest
 from browser_support import (
     CHROMIUM,
-    CHROMIUM_ARGS,
     GRAPH,
     cell_point,
     click_cell,
     details_value,
     expected_map,
     running_server,
-    tab_factory,
     wait_details,
     wait_map_shows,
     wait_views_drawn,
@@ -57,19 +55,6 @@ def slow_server(slow_folder):
     delays = f"grid={GRID_DELAY_S:g},refine={REFINE_DELAY_S:g}"
     with running_server(slow_folder, {"ARCWINDOW_TEST_SLOWDOWN": delays}) as url:
         yield url
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with playwright_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
-
-
-@pytest.fixture
-def tabs(browser, request):
-    yield from tab_factory(browser, request)
 
 
 def query(page) -> dict[str, str]:

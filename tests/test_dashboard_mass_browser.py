@@ -17,7 +17,6 @@ from pathlib import Path
 import pytest
 from browser_support import (
     CHROMIUM,
-    CHROMIUM_ARGS,
     GRAPH,
     ROOT,
     cell_point,
@@ -25,7 +24,6 @@ from browser_support import (
     details_value,
     expected_map,
     running_server,
-    tab_factory,
     wait_details,
     wait_map_shows,
     wait_views_drawn,
@@ -46,19 +44,6 @@ SETTLE_S = 90.0
 def server(tmp_path_factory):
     with running_server(tmp_path_factory.mktemp("dashboard_mass")) as url:
         yield url
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with playwright_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
-
-
-@pytest.fixture
-def tabs(browser, request):
-    yield from tab_factory(browser, request)
 
 
 def engine_reports(changes: dict | None = None):

@@ -17,10 +17,8 @@ from pathlib import Path
 import pytest
 from browser_support import (
     CHROMIUM,
-    CHROMIUM_ARGS,
     GRAPH,
     running_server,
-    tab_factory,
     wait_views_drawn,
 )
 
@@ -39,19 +37,6 @@ def slow_map_server(tmp_path_factory):
     folder = tmp_path_factory.mktemp("page_switch")
     with running_server(folder, {"ARCWINDOW_TEST_SLOWDOWN": f"map={MAP_DELAY_S:g}"}) as url:
         yield url
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with playwright_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
-
-
-@pytest.fixture
-def tabs(browser, request):
-    yield from tab_factory(browser, request)
 
 
 def test_bn01_leaving_the_window_page_with_a_map_patch_on_its_way_logs_no_error(

@@ -15,7 +15,7 @@ from pathlib import Path
 from urllib.parse import parse_qsl, urlparse
 
 import pytest
-from browser_support import CHROMIUM, CHROMIUM_ARGS, GRAPH, ROOT, running_server, tab_factory
+from browser_support import CHROMIUM, GRAPH, ROOT, running_server
 
 pytestmark = [
     pytest.mark.browser,
@@ -34,19 +34,6 @@ VIEWPORTS = [(1600, 1000), (1280, 800), (1024, 768)]
 def server(tmp_path_factory):
     with running_server(tmp_path_factory.mktemp("sequence_page")) as url:
         yield url
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with playwright_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
-
-
-@pytest.fixture
-def tabs(browser, request):
-    yield from tab_factory(browser, request)
 
 
 # ---------------------------------------------------------------------------------------------

@@ -68,14 +68,6 @@ def served(tmp_path_factory):
     log.close()
 
 
-@pytest.fixture(scope="module")
-def browser():
-    with playwright_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
-
-
 def shot(page, name: str) -> None:
     ARTIFACTS.mkdir(parents=True, exist_ok=True)
     page.screenshot(path=str(ARTIFACTS / f"served_{name}.png"), full_page=False)
