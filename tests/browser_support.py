@@ -21,6 +21,7 @@ import time
 import urllib.request
 from contextlib import contextmanager
 from pathlib import Path
+from urllib.parse import parse_qs, urlparse
 
 ROOT = Path(__file__).resolve().parents[1]
 ARTIFACTS = ROOT / "test-artifacts" / "browser"
@@ -353,3 +354,32 @@ __all__ = [
     "wait_views_drawn",
     "zoom_to",
 ]
+
+
+# ---------------------------------------------------------------------------------------------
+# Gestures
+
+
+def hold_departure_thumb_moved(page, pixels: float = 30.0) -> None:
+    """Press the departure slider's start thumb and drag it right by ``pixels`` (in two moves,
+    as a hand would); the mouse stays down until the test calls ``page.mouse.up()``."""
+    box = page.locator("#slider-departure-range .dash-slider-thumb-1").bounding_box()
+    x, y = box["x"] + box["width"] / 2, box["y"] + box["height"] / 2
+    page.mouse.move(x, y)
+    page.mouse.down()
+    page.mouse.move(x + pixels / 2, y, steps=3)
+    page.mouse.move(x + pixels, y, steps=3)
+
+
+def map_after_departure_drag(page, case_name: str, changes: dict) -> dict:
+    """The map a released departure drag must end on: the engine's map of ``case_name`` with
+    ``changes`` and the departure window the address bar now names (``dep=START~END``)."""
+    page.wait_for_function("() => window.location.search.includes('dep=')")
+    query = {k: v[0] for k, v in parse_qs(urlparse(page.url).query).items()}
+    start, end = query["dep"].split("~")
+    changes = dict(changes)
+    if start:
+        changes["window.departure_start"] = start
+    if end:
+        changes["window.departure_end"] = end
+    return expected_map(case_name, changes, "c3_km2_s2", 0)

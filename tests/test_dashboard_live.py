@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import re
 from pathlib import Path
-from urllib.parse import parse_qs, urlparse
+from urllib.parse import urlparse
 
 import pytest
 from browser_support import (
@@ -23,6 +23,8 @@ from browser_support import (
     click_cell,
     details_value,
     expected_map,
+    hold_departure_thumb_moved,
+    map_after_departure_drag,
     running_server,
     wait_details,
     wait_map_shows,
@@ -57,10 +59,6 @@ def slow_server(slow_folder):
         yield url
 
 
-def query(page) -> dict[str, str]:
-    return {k: v[0] for k, v in parse_qs(urlparse(page.url).query).items()}
-
-
 def set_number(page, what: str, value: str) -> None:
     page.fill(CONTROL[what], value)
     page.press(CONTROL[what], "Enter")
@@ -76,13 +74,7 @@ def test_bl01_drag_during_a_solve_ends_on_the_new_map(slow_server, tabs):
     page = tab.page
     page.goto(slow_server + "?case=tallis_rendezvous&dstep=2")
     page.locator("#text-grid-progress").get_by_text("Solving").wait_for()
-    thumb = page.locator("#slider-departure-range .dash-slider-thumb-1")
-    box = thumb.bounding_box()
-    x, y = box["x"] + box["width"] / 2, box["y"] + box["height"] / 2
-    page.mouse.move(x, y)
-    page.mouse.down()
-    page.mouse.move(x + 15, y, steps=3)
-    page.mouse.move(x + 30, y, steps=3)
+    hold_departure_thumb_moved(page)
     page.wait_for_function(
         "() => { const gd = " + GRAPH.format("graph-window-map") + ";"
         " const t = gd && gd.layout && gd.layout.title;"
@@ -90,14 +82,8 @@ def test_bl01_drag_during_a_solve_ends_on_the_new_map(slow_server, tabs):
     )
     tab.shot("dragging")
     page.mouse.up()
-    page.wait_for_function("() => window.location.search.includes('dep=')")
-    dep = query(page)["dep"].split("~")
-    changes = {"window.departure_step_days": 2.0}
-    if dep[0]:
-        changes["window.departure_start"] = dep[0]
-    if dep[1]:
-        changes["window.departure_end"] = dep[1]
-    wait_map_shows(page, expected_map("tallis_rendezvous", changes, "c3_km2_s2", 0), SETTLE_S)
+    want = map_after_departure_drag(page, "tallis_rendezvous", {"window.departure_step_days": 2.0})
+    wait_map_shows(page, want, SETTLE_S)
     tab.shot("released")
 
 
